@@ -1,0 +1,5 @@
+import sys
+
+from rvkep.cli import main
+
+sys.exit(main())

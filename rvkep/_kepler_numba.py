@@ -1,0 +1,157 @@
+"""Compiled (numba) kernels of :mod:`rvkep.kepler`: plain loops, no library calls.
+
+Same algorithm as the numpy path (Markley 1995), but three library calls are replaced
+by arithmetic that the compiler can pipeline and vectorize: sin/cos of the starter (E1
+lies in [0, pi], so a fixed polynomial about pi/2 needs no range reduction) and the
+cube root (a bit-level first guess in single precision, refined by two Halley steps to
+1e-13, far below what the starter needs; the argument is never below 1e-21 for any
+double e < 1, well inside single precision). Branches are written as selects and
+numba's division checks are off (``error_model="numpy"``), so the loops vectorize.
+
+The functions are defined at module level so that numba's on-disk cache finds them;
+when no cache folder is writable (read-only package and home), caching is switched off
+instead of failing at import.
+"""
+
+import math
+
+import numpy as np
+from llvmlite import ir
+from numba import njit, types
+from numba.extending import intrinsic
+
+from rvkep.kepler import _ALPHA_A, _ALPHA_B, _PI, _SMALL_E, _TWO_PI
+
+__all__ = ["ecc_anom_flat", "rv_flat", "rv_rows"]
+
+# Taylor coefficients of sin and cos; on |x| <= pi/2 the first omitted terms are below
+# 2e-18, so these reproduce libm to rounding (tested against numpy).
+_SIN_C = tuple((-1) ** k / math.factorial(2 * k + 1) for k in range(11))
+_COS_C = tuple((-1) ** k / math.factorial(2 * k) for k in range(12))
+_HALF_PI = 0.5 * math.pi
+# first guess of a single-precision cube root from its bits: exponent divided by three
+_CBRT_BIAS32 = 709921077
+
+
+def _probe():
+    return 0
+
+
+try:
+    njit(cache=True)(_probe)
+    cache = True
+except RuntimeError:  # "cannot cache function ...: no locator available"
+    cache = False
+
+
+@intrinsic
+def _as_int(typingctx, x):
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], ir.IntType(32))
+
+    return types.int32(types.float32), codegen
+
+
+@intrinsic
+def _as_float(typingctx, x):
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], ir.FloatType())
+
+    return types.float32(types.int32), codegen
+
+
+s0, s1, s2, s3, s4, s5, s6, s7, s8, s9, s10 = _SIN_C
+c0, c1, c2, c3, c4, c5, c6, c7, c8, c9, c10, c11 = _COS_C
+
+
+# fmt: off
+@njit(cache=cache, inline="always", error_model="numpy")
+def sincos_0_pi(E):
+    """(sin E, cos E) for 0 <= E <= pi, from Taylor series about pi/2 (Horner form)."""
+    x = E - _HALF_PI
+    z = x * x
+    sx = x * (s0 + z * (s1 + z * (s2 + z * (s3 + z * (s4 + z * (s5 + z * (s6 + z * (
+        s7 + z * (s8 + z * (s9 + z * s10))))))))))
+    cx = c0 + z * (c1 + z * (c2 + z * (c3 + z * (c4 + z * (c5 + z * (c6 + z * (
+        c7 + z * (c8 + z * (c9 + z * (c10 + z * c11))))))))))
+    return cx, -sx
+# fmt: on
+
+
+@njit(cache=cache, inline="always", error_model="numpy")
+def two_thirds_power(x):
+    bits = _as_int(np.float32(x))
+    y = np.float64(_as_float(np.int32(bits // np.int32(3) + np.int32(_CBRT_BIAS32))))
+    y3 = y * y * y
+    y = y * (y3 + 2.0 * x) / (2.0 * y3 + x)
+    y3 = y * y * y
+    y = y * (y3 + 2.0 * x) / (2.0 * y3 + x)
+    return y * y
+
+
+@njit(cache=cache, inline="always", error_model="numpy")
+def markley(M, e):
+    m = abs(M)
+    sign = math.copysign(1.0, M)
+    alpha = _ALPHA_A + _ALPHA_B * (_PI - m) / (1.0 + e)
+    d = 3.0 * (1.0 - e) + alpha * e
+    q = 2.0 * alpha * d * (1.0 - e) - m * m
+    r = 3.0 * alpha * d * (d - 1.0 + e) * m + m * m * m
+    w = two_thirds_power(abs(r) + math.sqrt(q * q * q + r * r))
+    E1 = (2.0 * r * w / (w * w + w * q + q * q) + m) / d
+    s1, c1 = sincos_0_pi(E1)
+    x2 = E1 * E1
+    series = (
+        E1
+        * x2
+        * (
+            1.0 / 6.0
+            - x2 * (1.0 / 120.0 - x2 * (1.0 / 5040.0 - x2 * (1.0 / 362880.0 - x2 / 39916800.0)))
+        )
+    )
+    f0_small = (1.0 - e) * E1 + e * series - m
+    f0_large = E1 - e * s1 - m
+    f0 = f0_small if E1 < _SMALL_E else f0_large
+    f1 = 1.0 - e * c1
+    f2 = e * s1
+    f3 = 1.0 - f1
+    d3 = -f0 / (f1 - 0.5 * f0 * f2 / f1)
+    d4 = -f0 / (f1 + 0.5 * d3 * f2 + d3 * d3 * f3 / 6.0)
+    dE = -f0 / (f1 + 0.5 * d4 * f2 + d4 * d4 * f3 / 6.0 - d4 * d4 * d4 * f2 / 24.0)
+    d2 = dE * dE
+    cd = 1.0 - d2 * (0.5 - d2 / 24.0)
+    sd = dE * (1.0 - d2 * (1.0 / 6.0 - d2 / 120.0))
+    return sign * (E1 + dE), sign * (s1 * cd + c1 * sd), c1 * cd - s1 * sd
+
+
+@njit(cache=cache, inline="always", error_model="numpy")
+def rv_point(t, tp, n, e, cosw, sinw, K, root):
+    M = n * (t - tp)
+    M = M - math.floor((M + _PI) / _TWO_PI) * _TWO_PI
+    _, sE, cE = markley(M, e)
+    den = 1.0 - e * cE
+    return K * ((cE - e) * cosw - root * sE * sinw) / den + K * e * cosw
+
+
+@njit(cache=cache, error_model="numpy")
+def ecc_anom_flat(M, e, out):
+    for i in range(M.size):
+        k = math.floor((M[i] + _PI) / _TWO_PI)
+        out[i] = markley(M[i] - k * _TWO_PI, e[i])[0] + k * _TWO_PI
+
+
+@njit(cache=cache, error_model="numpy")
+def rv_flat(t, tp, n, e, cosw, sinw, K, out):
+    for i in range(t.size):
+        out[i] = rv_point(
+            t[i], tp[i], n[i], e[i], cosw[i], sinw[i], K[i], math.sqrt(1.0 - e[i] * e[i])
+        )
+
+
+@njit(cache=cache, error_model="numpy")
+def rv_rows(t, tp, n, e, cosw, sinw, K, out):
+    for j in range(tp.size):
+        root = math.sqrt(1.0 - e[j] * e[j])
+        tpj, nj, ej, cj, sj, Kj = tp[j], n[j], e[j], cosw[j], sinw[j], K[j]
+        for i in range(t.size):
+            out[j, i] = rv_point(t[i], tpj, nj, ej, cj, sj, Kj, root)
