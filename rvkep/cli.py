@@ -34,8 +34,53 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _add_data_args(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "files",
+        nargs="+",
+        metavar="FILE",
+        help="RV tables (one per instrument, or with an instrument column)",
+    )
+    p.add_argument("--kms", action="store_true", help="velocities and errors are in km/s")
+
+
+def _load(args: argparse.Namespace):
+    """Read the data files, printing unit warnings as one line each."""
+    import warnings
+
+    from rvkep.data import UnitWarning, load_rv
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", UnitWarning)
+        data = load_rv(args.files, kms=args.kms)
+    for w in caught:
+        if issubclass(w.category, UnitWarning):
+            print(f"rvkep {args.command}: warning: {w.message}", file=sys.stderr)
+    return data
+
+
+def _run_check(args: argparse.Namespace) -> int:
+    data = _load(args)
+    print(data.summary())
+    print(f"reference epoch: {data.epoch:.1f} (same time system as the input)")
+    if data.extra:
+        print("extra columns: " + ", ".join(data.extra))
+    return 0
+
+
+def _add_check(sub) -> None:
+    p = sub.add_parser(
+        "check",
+        help="read and validate RV files, print a summary",
+        description="Read and validate RV files; print per instrument the "
+        "number of points, time span, median error and RMS.",
+    )
+    _add_data_args(p)
+    p.set_defaults(run=_run_check)
+
+
 # each entry adds one subcommand: add(subparsers) -> None, setting defaults(run=...)
-_SUBCOMMANDS: list = []
+_SUBCOMMANDS: list = [_add_check]
 
 
 def main(argv: Sequence[str] | None = None) -> int:

@@ -1,0 +1,638 @@
+"""Reading, validating and describing radial-velocity time series.
+
+Accepted layouts (one or many files, each a text table):
+
+* whitespace-, tab- or comma-separated; comment lines starting with ``#``, ``!`` or
+  ``%`` (and ``#`` comments at the end of a row); Windows line endings; a UTF-8
+  byte-order mark;
+* with a header row naming the columns (also a commented header such as
+  ``# bjd rv e_rv``), or without one: then 3 or more columns read as time, rv, err and,
+  when the 4th is not numeric, the instrument; further numeric columns become extras;
+* time, rv, err and instrument columns recognised by the names the trade uses (see
+  :data:`COLUMN_NAMES`); any other numeric column is kept by name (activity indicators
+  such as ``fwhm``, ``bis`` or ``rhk``);
+* the instrument from its column when there is one, otherwise from the file's stem
+  (``north.txt`` -> ``north``);
+* velocities in m/s, or in km/s with ``kms=True`` (or a header that says ``km/s``);
+  a warning (:class:`UnitWarning`) when m/s was assumed but the values look like km/s;
+* times as full BJD or with an offset subtracted; they stay in the file's system (all
+  files of one star must share it). The object records the reference epoch (the middle
+  of the time span, a whole day) that the model subtracts before any phase arithmetic.
+
+Every problem raises :class:`rvkep.errors.DataError` whose message names the file, the
+line where a row is at fault, and the problem. Parsing runs in numpy's C reader; the
+per-line Python scan only runs to locate an error.
+"""
+
+from __future__ import annotations
+
+import re
+import warnings
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from rvkep.errors import DataError
+
+__all__ = [
+    "RVData",
+    "DataSummary",
+    "UnitWarning",
+    "load_rv",
+    "read_rv_file",
+    "COLUMN_NAMES",
+    "MIN_POINTS",
+]
+
+#: Header names (lower case, with ``-``, ``.`` and spaces turned into ``_`` and any unit
+#: in brackets removed) that identify each column.
+COLUMN_NAMES: dict[str, tuple[str, ...]] = {
+    "time": (
+        "time", "t", "bjd", "jd", "mjd", "hjd", "rjd", "bjd_tdb", "bjd_utc", "hjd_utc",
+        "date", "epoch", "jdb", "bjdtdb", "bjd_2450000", "bjd_2400000", "jd_2450000",
+        "jd_2400000", "mjd_tdb", "btjd", "time_bjd", "obs_time",
+    ),
+    "rv": (
+        "rv", "vrad", "v_rad", "velocity", "radial_velocity", "radvel", "vr", "v", "rv_mps",
+        "rv_kms", "vel", "mnvel", "rv_m_s", "rv_km_s",
+    ),
+    "err": (
+        "err", "error", "sigma", "e_rv", "rv_err", "err_rv", "erv", "sig", "svrad", "s_rv",
+        "sigma_rv", "rv_sigma", "uncertainty", "unc", "e_vrad", "vrad_err", "errvel", "e_v",
+        "sigma_v", "rv_error", "error_rv", "evrad", "e_velocity", "velocity_err",
+    ),
+    "instrument": (
+        "instrument", "inst", "tel", "telescope", "spectrograph", "instr", "site", "source",
+    ),
+}  # fmt: skip
+
+#: The fewest points rvkep accepts for one star (a one-companion fit has seven
+#: parameters with one instrument).
+MIN_POINTS = 8
+
+_COMMENT_CHARS = ("#", "!", "%")
+_NAME_TO_ROLE = {name: role for role, names in COLUMN_NAMES.items() for name in names}
+_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eEdD][+-]?\d+)?$|^[+-]?(nan|inf)$", re.I)
+
+
+class UnitWarning(UserWarning):
+    """Velocities were read as m/s but look like km/s (or the reverse)."""
+
+
+@dataclass(frozen=True)
+class DataSummary:
+    """Per-instrument description of an RV data set.
+
+    Attributes are parallel lists, one entry per instrument, plus the totals.
+    """
+
+    instruments: list[str]
+    n_points: list[int]
+    span_days: list[float]
+    median_err: list[float]
+    rms: list[float]
+    total_points: int
+    total_span_days: float
+
+    def rows(self) -> list[tuple[str, int, float, float, float]]:
+        return list(
+            zip(
+                self.instruments,
+                self.n_points,
+                self.span_days,
+                self.median_err,
+                self.rms,
+                strict=True,
+            )
+        )
+
+    def __str__(self) -> str:
+        lines = [
+            f"{'instrument':<16} {'points':>7} {'span [d]':>10} {'median err [m/s]':>17}"
+            f" {'rms [m/s]':>10}"
+        ]
+        for name, n, span, med, rms in self.rows():
+            lines.append(f"{name:<16} {n:>7d} {span:>10.1f} {med:>17.2f} {rms:>10.2f}")
+        lines.append(f"{'total':<16} {self.total_points:>7d} {self.total_span_days:>10.1f}")
+        return "\n".join(lines)
+
+    __repr__ = __str__
+
+    def _repr_markdown_(self) -> str:
+        out = [
+            "| instrument | points | span [d] | median err [m/s] | rms [m/s] |",
+            "|---|---|---|---|---|",
+        ]
+        for name, n, span, med, rms in self.rows():
+            out.append(f"| {name} | {n} | {span:.1f} | {med:.2f} | {rms:.2f} |")
+        out.append(f"| total | {self.total_points} | {self.total_span_days:.1f} | | |")
+        return "\n".join(out)
+
+    def to_pandas(self):
+        """The summary as a pandas DataFrame indexed by instrument."""
+        try:
+            import pandas as pd
+        except ImportError as exc:  # pragma: no cover - pandas is in the test extra
+            raise ImportError("to_pandas needs pandas: pip install pandas") from exc
+        return pd.DataFrame(
+            {
+                "points": self.n_points,
+                "span_days": self.span_days,
+                "median_err_mps": self.median_err,
+                "rms_mps": self.rms,
+            },
+            index=pd.Index(self.instruments, name="instrument"),
+        )
+
+
+@dataclass
+class RVData:
+    """Radial velocities of one star, from one or several instruments, sorted by time.
+
+    Attributes
+    ----------
+    time : ndarray
+        Times in the system of the input files (e.g. BJD, or BJD - 2450000), days.
+    rv, err : ndarray
+        Velocities and their 1-sigma errors, m/s.
+    instrument : ndarray of str
+        Instrument name of each point.
+    extra : dict of str -> ndarray
+        Further numeric columns by name (NaN where a file lacks the column).
+    files : list of str
+        The files read.
+    epoch : float
+        Reference epoch subtracted by the model before phase arithmetic (a whole day
+        near the middle of the time span).
+    """
+
+    time: np.ndarray
+    rv: np.ndarray
+    err: np.ndarray
+    instrument: np.ndarray
+    extra: dict[str, np.ndarray] = field(default_factory=dict)
+    files: list[str] = field(default_factory=list)
+    epoch: float = 0.0
+
+    def __post_init__(self) -> None:
+        order = np.argsort(self.time, kind="stable")
+        self.time = np.asarray(self.time, float)[order]
+        self.rv = np.asarray(self.rv, float)[order]
+        self.err = np.asarray(self.err, float)[order]
+        self.instrument = np.asarray(self.instrument, dtype=str)[order]
+        self.extra = {k: np.asarray(v, float)[order] for k, v in self.extra.items()}
+        if self.epoch == 0.0 and self.time.size:
+            self.epoch = float(np.round(0.5 * (self.time[0] + self.time[-1])))
+
+    @property
+    def instruments(self) -> list[str]:
+        """Instrument names, in order of their first point in time."""
+        names, first = np.unique(self.instrument, return_index=True)
+        return [str(n) for n in names[np.argsort(first)]]
+
+    @property
+    def instrument_index(self) -> np.ndarray:
+        """Index of each point's instrument in :attr:`instruments`."""
+        lookup = {name: i for i, name in enumerate(self.instruments)}
+        return np.array([lookup[n] for n in self.instrument], dtype=np.intp)
+
+    @property
+    def t_rel(self) -> np.ndarray:
+        """Times minus :attr:`epoch` (days)."""
+        return self.time - self.epoch
+
+    def __len__(self) -> int:
+        return int(self.time.size)
+
+    def select(self, mask: np.ndarray) -> RVData:
+        """A copy holding only the points where ``mask`` is true (same epoch)."""
+        return RVData(
+            self.time[mask],
+            self.rv[mask],
+            self.err[mask],
+            self.instrument[mask],
+            {k: v[mask] for k, v in self.extra.items()},
+            list(self.files),
+            self.epoch,
+        )
+
+    def summary(self) -> DataSummary:
+        """Per instrument: points, time span, median error and RMS of the velocities."""
+        names = self.instruments
+        n, span, med, rms = [], [], [], []
+        for name in names:
+            m = self.instrument == name
+            t, v = self.time[m], self.rv[m]
+            n.append(int(m.sum()))
+            span.append(float(t.max() - t.min()))
+            med.append(float(np.median(self.err[m])))
+            rms.append(float(np.std(v)))
+        return DataSummary(names, n, span, med, rms, len(self), float(self.time[-1] - self.time[0]))
+
+    def __repr__(self) -> str:
+        return f"RVData({len(self)} points, epoch {self.epoch:.1f})\n{self.summary()}"
+
+    def _repr_markdown_(self) -> str:
+        s = self.summary()._repr_markdown_()
+        return f"**RVData**: {len(self)} points, reference epoch {self.epoch:.1f}\n\n{s}"
+
+    def to_pandas(self):
+        """All points as a pandas DataFrame."""
+        import pandas as pd
+
+        cols = {"time": self.time, "rv": self.rv, "err": self.err, "instrument": self.instrument}
+        cols.update(self.extra)
+        return pd.DataFrame(cols)
+
+
+# ---------------------------------------------------------------------------
+# reading one file
+# ---------------------------------------------------------------------------
+
+
+def _normalise_name(token: str) -> str:
+    token = token.strip().strip("\"'").lower()
+    token = re.sub(r"[\[(].*?[\])]", "", token)  # units in brackets
+    return re.sub(r"[-.\s/]+", "_", token).strip("_")
+
+
+def _is_comment(line: str) -> bool:
+    s = line.lstrip()
+    return not s or s.startswith(_COMMENT_CHARS)
+
+
+def _split(line: str, delimiter: str | None) -> list[str]:
+    line = line.split("#", 1)[0]
+    if delimiter is None:
+        return line.split()
+    return [c.strip().strip("\"'") for c in line.split(delimiter)]
+
+
+def _looks_numeric(token: str) -> bool:
+    return bool(_NUMBER.match(token.strip().strip("\"'")))
+
+
+def _decode(path: Path) -> str:
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise DataError(f"{path}: no such file") from None
+    except IsADirectoryError:
+        raise DataError(f"{path}: is a folder, not a data file") from None
+    except OSError as exc:
+        raise DataError(f"{path}: cannot read ({exc.strerror})") from None
+    control = np.frombuffer(raw, dtype=np.uint8)
+    control = control[(control < 32) & ~np.isin(control, (9, 10, 12, 13))]
+    if control.size:
+        raise DataError(f"{path}: not a text file (binary content)")
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        try:
+            return raw.decode("latin-1")
+        except UnicodeDecodeError:  # pragma: no cover - latin-1 decodes any byte
+            raise DataError(f"{path}: not a text file (undecodable bytes)") from None
+
+
+@dataclass
+class _Layout:
+    first_data: int  # index (0-based) of the first data line
+    delimiter: str | None
+    n_columns: int
+    roles: list[str]  # per column: time / rv / err / instrument / extra:<name>
+    header_line: int | None  # 1-based line number of the header, if any
+    header_kms: bool
+
+
+def _find_layout(path: Path, lines: list[str]) -> _Layout:
+    candidates: list[tuple[int, str]] = []  # (index, text) of comment/header lines
+    first_data = None
+    for i, line in enumerate(lines):
+        if _is_comment(line):
+            s = line.strip().lstrip("#!% ").strip()
+            if s:
+                candidates.append((i, s))
+            continue
+        tokens = line.replace(",", " ").replace(";", " ").split()
+        if tokens and _looks_numeric(tokens[0]):
+            first_data = i
+            break
+        candidates.append((i, line.strip()))  # a header row (not commented)
+        if len(candidates) > 200:
+            break
+    if first_data is None:
+        if any(not _is_comment(ln) for ln in lines):
+            raise DataError(f"{path}: only a header, no data rows")
+        raise DataError(f"{path}: empty file (no data rows)")
+    first = lines[first_data]
+    delimiter: str | None = None
+    if "," in first.split("#", 1)[0]:
+        delimiter = ","
+    elif ";" in first.split("#", 1)[0]:
+        delimiter = ";"
+    cells = _split(first, delimiter)
+    ncol = len(cells)
+    # a header is the last candidate line with as many names as there are columns
+    header = None
+    for idx, text in reversed(candidates):
+        names = _split(text, delimiter if delimiter and delimiter in text else None)
+        if len(names) == ncol and not all(_looks_numeric(n) for n in names):
+            header = (idx, names)
+            break
+        if idx == first_data - 1 and not lines[idx].lstrip().startswith(_COMMENT_CHARS):
+            break
+    kms = False
+    if header is not None:
+        idx, names = header
+        roles = []
+        for raw in names:
+            norm = _normalise_name(raw)
+            role = _NAME_TO_ROLE.get(norm)
+            if role is None and norm.startswith(("bjd_", "jd_", "mjd_", "hjd_")):
+                role = "time"
+            if role is None or role in roles:
+                role = f"extra:{norm or 'column'}"
+            if role in ("rv", "err") and "km" in raw.lower():
+                kms = True
+            roles.append(role)
+        missing = [r for r in ("time", "rv", "err") if r not in roles]
+        if missing:
+            known = ", ".join(COLUMN_NAMES[missing[0]][:6])
+            raise DataError(
+                f"{path}, line {idx + 1}: header has no {missing[0]} column "
+                f"(found {', '.join(names)}; expected a name such as {known})"
+            )
+        return _Layout(first_data, delimiter, ncol, roles, idx + 1, kms)
+    if ncol < 3:
+        raise DataError(
+            f"{path}, line {first_data + 1}: {ncol} column(s) without a header; "
+            "need at least time, rv and err"
+        )
+    roles = ["time", "rv", "err"]
+    for j in range(3, ncol):
+        if j == 3 and not _looks_numeric(cells[3]):
+            roles.append("instrument")
+        else:
+            roles.append(f"extra:column{j + 1}")
+    return _Layout(first_data, delimiter, ncol, roles, None, False)
+
+
+def _locate_bad_row(path: Path, lines: list[str], layout: _Layout) -> str:
+    """Scan the data lines for the first one at fault; return the error message."""
+    numeric = [j for j, r in enumerate(layout.roles) if r != "instrument"]
+    for i in range(layout.first_data, len(lines)):
+        line = lines[i]
+        if _is_comment(line):
+            continue
+        cells = _split(line, layout.delimiter)
+        if len(cells) != layout.n_columns:
+            return (
+                f"{path}, line {i + 1}: {len(cells)} columns where the table has {layout.n_columns}"
+            )
+        for j in numeric:
+            if not _looks_numeric(cells[j]):
+                name = layout.roles[j].removeprefix("extra:")
+                return f"{path}, line {i + 1}: non-numeric value {cells[j]!r} in column {name}"
+    return f"{path}: unreadable table"
+
+
+def _byte_class(chars: bytes) -> np.ndarray:
+    table = np.zeros(256, dtype=bool)
+    table[np.frombuffer(chars, dtype=np.uint8)] = True
+    return table
+
+
+_BLANK_BYTES = _byte_class(b" \t\r\x0b\x0c")
+_LINE_COMMENT_BYTES = _byte_class(b"!%")
+
+
+def _fields_per_line(body: list[str], delimiter: str | None) -> np.ndarray:
+    """Number of cells on each line (0 for blank and comment lines), vectorized.
+
+    Works on the bytes of the whole table at once: a ``#`` comment runs to the end of
+    its line, ``!`` and ``%`` only start comment lines; cells are runs of non-blank
+    characters (whitespace tables) or pieces between delimiters.
+    """
+    b = np.frombuffer(("\n".join(body) + "\n").encode("utf-8", "replace"), dtype=np.uint8)
+    newline = b == 10
+    ends = np.flatnonzero(newline)  # one per line, the last byte of the table included
+    n_lines = ends.size
+    begins = np.concatenate(([0], ends[:-1] + 1))
+    line_id = np.repeat(np.arange(n_lines), ends - begins + 1)
+    line_start = np.zeros_like(newline)
+    line_start[begins] = True
+    comment_at = np.flatnonzero((b == 35) | (_LINE_COMMENT_BYTES[b] & line_start))
+    cut = ends.copy()  # each line is live up to its first comment character
+    first = np.unique(line_id[comment_at], return_index=True)
+    cut[first[0]] = comment_at[first[1]]
+    live = np.arange(b.size) < cut[line_id]
+    token = live & ~_BLANK_BYTES[b]
+    if delimiter is None:
+        starts = token.copy()
+        starts[1:] &= ~token[:-1]
+        return np.bincount(line_id[starts], minlength=n_lines)
+    has_token = np.bincount(line_id[token], minlength=n_lines) > 0
+    delim = live & (b == ord(delimiter))
+    return np.where(has_token, np.bincount(line_id[delim], minlength=n_lines) + 1, 0)
+
+
+def read_rv_file(path: str | Path, *, kms: bool = False, instrument: str | None = None) -> RVData:
+    """Read one RV file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The text table.
+    kms : bool
+        Velocities and errors are in km/s (converted to m/s).
+    instrument : str, optional
+        Instrument name for every row; default: the instrument column, else the stem
+        of the file name.
+
+    Returns
+    -------
+    RVData
+
+    Raises
+    ------
+    DataError
+        With the file, the line and the problem.
+    """
+    path = Path(path)
+    lines = _decode(path).replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    layout = _find_layout(path, lines)
+    body = lines[layout.first_data :]
+    widths = _fields_per_line(body, layout.delimiter)
+    data_rows = np.flatnonzero(widths > 0)
+    line_numbers = data_rows + layout.first_data + 1  # 1-based line of each data row
+    ragged = widths[data_rows] != layout.n_columns
+    if np.any(ragged):
+        k = int(np.argmax(ragged))
+        raise DataError(
+            f"{path}, line {line_numbers[k]}: {widths[data_rows][k]} columns where the "
+            f"table has {layout.n_columns}"
+        )
+    numeric_cols = [j for j, r in enumerate(layout.roles) if r != "instrument"]
+    rows = [body[i] for i in data_rows]  # comment and blank lines left out
+    read = {"delimiter": layout.delimiter, "comments": "#", "ndmin": 2, "quotechar": '"'}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # numpy's note on blank lines and max_rows
+        try:
+            table = np.loadtxt(rows, usecols=numeric_cols, dtype=float, **read)
+        except ValueError:
+            raise DataError(_locate_bad_row(path, lines, layout)) from None
+        names = None
+        if "instrument" in layout.roles:
+            col = [layout.roles.index("instrument")]
+            names = np.loadtxt(rows, usecols=col, dtype=str, **read)
+            names = np.char.strip(names[:, 0], "\"' ")
+    n_rows = table.shape[0]
+    col = {
+        r: table[:, numeric_cols.index(j)] for j, r in enumerate(layout.roles) if j in numeric_cols
+    }
+    time, rv, err = col["time"], col["rv"], col["err"]
+    extra = {r.removeprefix("extra:"): v for r, v in col.items() if r.startswith("extra:")}
+    for label, arr in col.items():
+        bad = ~np.isfinite(arr)
+        if np.any(bad):
+            name = label.removeprefix("extra:")
+            raise DataError(
+                f"{path}, line {line_numbers[np.argmax(bad)]}: {name} is not a finite number"
+            )
+    bad = err <= 0
+    if np.any(bad):
+        raise DataError(
+            f"{path}, line {line_numbers[np.argmax(bad)]}: error must be positive, "
+            f"got {err[bad][0]:g}"
+        )
+    if instrument is not None or names is None:
+        names = np.full(n_rows, instrument or path.stem)
+    if np.any(names == ""):
+        raise DataError(
+            f"{path}, line {line_numbers[np.argmax(names == '')]}: empty instrument name"
+        )
+    _check_duplicates(path, line_numbers, time, names)
+    scale = 1000.0 if (kms or layout.header_kms) else 1.0
+    if scale == 1.0:
+        _warn_if_kms(path, rv, err)
+    return RVData(
+        time, rv * scale, err * scale, names, {k: v.copy() for k, v in extra.items()}, [str(path)]
+    )
+
+
+def _warn_if_kms(path: Path, rv: np.ndarray, err: np.ndarray) -> None:
+    med_err = float(np.median(err))
+    spread = float(np.ptp(rv)) if rv.size else 0.0
+    if med_err < 0.05 and spread < 200.0:
+        warnings.warn(
+            f"{path}: velocities look like km/s (median error {med_err:g}, spread "
+            f"{spread:g}); read as m/s. Pass kms=True (--kms) if they are km/s.",
+            UnitWarning,
+            stacklevel=3,
+        )
+
+
+def _first_duplicate(time: np.ndarray, names: np.ndarray) -> tuple[int, int] | None:
+    """Indices (i < j) of the first pair of rows with the same instrument and time."""
+    _, codes = np.unique(names, return_inverse=True)
+    order = np.lexsort((time, codes))
+    same = (time[order][1:] == time[order][:-1]) & (codes[order][1:] == codes[order][:-1])
+    if not np.any(same):
+        return None
+    k = int(np.argmax(same))
+    i, j = sorted((int(order[k]), int(order[k + 1])))
+    return i, j
+
+
+def _check_duplicates(path: Path, line_numbers: np.ndarray, time, names) -> None:
+    pair = _first_duplicate(time, names)
+    if pair is not None:
+        first, second = pair
+        raise DataError(
+            f"{path}, line {line_numbers[second]}: duplicate of line {line_numbers[first]} "
+            f"(same time {float(time[first])!r} and instrument {str(names[first])!r})"
+        )
+
+
+# ---------------------------------------------------------------------------
+# several files
+# ---------------------------------------------------------------------------
+
+
+def _time_system(time: np.ndarray) -> str:
+    mid = float(np.median(time))
+    if mid > 2_000_000:
+        return "full JD/BJD (about 2.4e6)"
+    if mid > 30_000:
+        return "JD - 2400000 or MJD (about 5e4-6e4)"
+    return "JD - 2450000 or another offset (below 3e4)"
+
+
+def load_rv(
+    paths: str | Path | Iterable[str | Path],
+    *,
+    kms: bool | Sequence[bool] = False,
+    instruments: Sequence[str | None] | None = None,
+    min_points: int = MIN_POINTS,
+) -> RVData:
+    """Load RV files of one star into one :class:`RVData`, sorted by time.
+
+    Parameters
+    ----------
+    paths : path or iterable of paths
+        One file per instrument, or files with an instrument column.
+    kms : bool or sequence of bool
+        Input in km/s (one flag for all files, or one per file).
+    instruments : sequence of str or None, optional
+        Instrument name per file (None keeps the column or the file stem).
+    min_points : int
+        Fewest points accepted in total.
+
+    Raises
+    ------
+    DataError
+        For any unreadable or invalid file, files in different time systems, duplicate
+        rows across files, or too few points.
+    """
+    if isinstance(paths, (str, Path)):
+        paths = [paths]
+    paths = [Path(p) for p in paths]
+    if not paths:
+        raise DataError("no data files given")
+    flags = [kms] * len(paths) if isinstance(kms, bool) else list(kms)
+    names = list(instruments) if instruments is not None else [None] * len(paths)
+    parts = [
+        read_rv_file(p, kms=k, instrument=n) for p, k, n in zip(paths, flags, names, strict=True)
+    ]
+    systems = {str(d.files[0]): _time_system(d.time) for d in parts}
+    if len(set(systems.values())) > 1:
+        detail = "; ".join(f"{f}: {s}" for f, s in systems.items())
+        raise DataError(f"files use different time systems ({detail}); give them in one system")
+    keys = sorted({k for d in parts for k in d.extra})
+    extra = {
+        k: np.concatenate([d.extra.get(k, np.full(len(d), np.nan)) for d in parts]) for k in keys
+    }
+    data = RVData(
+        np.concatenate([d.time for d in parts]),
+        np.concatenate([d.rv for d in parts]),
+        np.concatenate([d.err for d in parts]),
+        np.concatenate([d.instrument for d in parts]),
+        extra,
+        [str(p) for p in paths],
+    )
+    if len(parts) > 1:
+        pair = _first_duplicate(data.time, data.instrument)
+        if pair is not None:
+            t, inst = float(data.time[pair[0]]), str(data.instrument[pair[0]])
+            raise DataError(
+                f"{', '.join(map(str, paths))}: time {t!r} of instrument {inst!r} appears in "
+                "more than one file"
+            )
+    if len(data) < min_points:
+        raise DataError(
+            f"{', '.join(map(str, paths))}: {len(data)} points, fewer than the "
+            f"{min_points} a fit needs"
+        )
+    return data
