@@ -16,7 +16,9 @@ from rvkep.cli import main
 from rvkep.data import UnitWarning, load_rv, read_rv_file
 from rvkep.errors import DataError
 
-ROWS = [(2459000.1 + 1.3 * i, round(10.0 * np.sin(i), 3), round(1.0 + 0.1 * i, 3)) for i in range(10)]
+ROWS = [
+    (2459000.1 + 1.3 * i, round(10.0 * np.sin(i), 3), round(1.0 + 0.1 * i, 3)) for i in range(10)
+]
 
 
 def write(tmp_path, name, text, mode="w"):
