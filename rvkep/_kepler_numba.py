@@ -20,9 +20,13 @@ from llvmlite import ir
 from numba import njit, types
 from numba.extending import intrinsic
 
-from rvkep.kepler import _ALPHA_A, _ALPHA_B, _PI, _SMALL_E, _TWO_PI
+from rvkep._constants import ALPHA_A as _ALPHA_A
+from rvkep._constants import ALPHA_B as _ALPHA_B
+from rvkep._constants import PI as _PI
+from rvkep._constants import SMALL_E as _SMALL_E
+from rvkep._constants import TWO_PI as _TWO_PI
 
-__all__ = ["ecc_anom_flat", "rv_flat", "rv_rows"]
+__all__ = ["ecc_anom_flat", "rv_flat", "rv_rows", "white_noise_loglike"]
 
 # Taylor coefficients of sin and cos; on |x| <= pi/2 the first omitted terms are below
 # 2e-18, so these reproduce libm to rounding (tested against numpy).
@@ -155,3 +159,88 @@ def rv_rows(t, tp, n, e, cosw, sinw, K, out):
         tpj, nj, ej, cj, sj, Kj = tp[j], n[j], e[j], cosw[j], sinw[j], K[j]
         for i in range(t.size):
             out[j, i] = rv_point(t[i], tpj, nj, ej, cj, sj, Kj, root)
+
+
+@njit(cache=cache, error_model="numpy")
+def white_noise_loglike(t, y, err2, inst, n_inst, X, tp, n, e, cosw, sinw, K, jit):
+    """Marginal and profile Gaussian log-likelihoods for many parameter sets at once.
+
+    One pass per set: the Keplerian sum, residuals, weights 1 / (err^2 + jitter^2), the
+    normal equations A = X^T W X, b = X^T W r of the linear part, then a Cholesky solve
+    of the small m x m system. Shapes: companions' parameters (S, n_comp), ``jit``
+    (S, n_inst), ``X`` (n, m) with the instrument indicator columns first (``inst``
+    gives each point's column, so only the trend columns are read from ``X``).
+    Returns (S, 2): columns are -1/2 (r^T W r - b^T A^-1 b) + 1/2 sum ln w, and
+    -1/2 ln|A|.
+    The sum of ln w is taken as the log of products of 16 weights, one log call per 16
+    points.
+    """
+    S, n_comp = tp.shape
+    npts = t.size
+    m = X.shape[1]
+    out = np.empty((S, 2))
+    resid = np.empty(npts)
+    w = np.empty(npts)
+    A = np.zeros((m, m))
+    b = np.zeros(m)
+    L = np.zeros((m, m))
+    for s in range(S):
+        for i in range(npts):
+            resid[i] = y[i]
+        for c in range(n_comp):
+            ec = e[s, c]
+            root = math.sqrt(1.0 - ec * ec)
+            tpc, nc, cc, sc, Kc = tp[s, c], n[s, c], cosw[s, c], sinw[s, c], K[s, c]
+            for i in range(npts):
+                resid[i] -= rv_point(t[i], tpc, nc, ec, cc, sc, Kc, root)
+        for a in range(m):
+            b[a] = 0.0
+            for c2 in range(m):
+                A[a, c2] = 0.0
+        chi2 = 0.0
+        for i in range(npts):
+            k = inst[i]
+            jj = jit[s, k]
+            wi = 1.0 / (err2[i] + jj * jj)
+            w[i] = wi
+            wr = wi * resid[i]
+            chi2 += wr * resid[i]
+            b[k] += wr
+            A[k, k] += wi
+            for a in range(n_inst, m):  # trend columns
+                xa = X[i, a]
+                b[a] += wr * xa
+                A[a, k] += wi * xa
+                for c2 in range(n_inst, a + 1):
+                    A[a, c2] += wi * xa * X[i, c2]
+        logw = 0.0
+        i = 0
+        while i < npts:
+            prod = 1.0
+            stop = min(i + 16, npts)
+            for q in range(i, stop):
+                prod *= w[q]
+            logw += math.log(prod)
+            i = stop
+        # Cholesky A = L L^T (lower), then z = L^-1 b: b^T A^-1 b = z^T z
+        logdet = 0.0
+        red = 0.0
+        for a in range(m):
+            for c2 in range(a + 1):
+                acc = A[a, c2]
+                for q in range(c2):
+                    acc -= L[a, q] * L[c2, q]
+                if a == c2:
+                    L[a, a] = math.sqrt(acc)
+                else:
+                    L[a, c2] = acc / L[c2, c2]
+            logdet += 2.0 * math.log(L[a, a])
+        for a in range(m):
+            acc = b[a]
+            for q in range(a):
+                acc -= L[a, q] * b[q]
+            b[a] = acc / L[a, a]  # b now holds z
+            red += b[a] * b[a]
+        out[s, 0] = -0.5 * (chi2 - red) + 0.5 * logw
+        out[s, 1] = -0.5 * logdet
+    return out

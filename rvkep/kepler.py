@@ -32,7 +32,6 @@ References
 
 from __future__ import annotations
 
-import math
 import os
 
 import numpy as np
@@ -48,12 +47,11 @@ __all__ = [
     "rv_kernel",
 ]
 
-_PI = math.pi
-_TWO_PI = 2.0 * math.pi
-_ALPHA_DEN = _PI * _PI - 6.0
-_ALPHA_A = 3.0 * _PI * _PI / _ALPHA_DEN
-_ALPHA_B = 1.6 * _PI / _ALPHA_DEN
-_SMALL_E = 0.25  # below this |E|, E - sin E comes from its series
+from rvkep._constants import ALPHA_A as _ALPHA_A
+from rvkep._constants import ALPHA_B as _ALPHA_B
+from rvkep._constants import PI as _PI
+from rvkep._constants import SMALL_E as _SMALL_E
+from rvkep._constants import TWO_PI as _TWO_PI
 
 
 def check_eccentricity(e: ArrayLike) -> np.ndarray:

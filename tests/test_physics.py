@@ -15,7 +15,9 @@ def test_semi_amplitude_constant():
     # (Lovis & Fischer 2010, Radial Velocity Techniques for Exoplanets, in Exoplanets,
     # ed. Seager; from memory). The published constant neglects m in M + m, so compare
     # with the light-companion limit and the exact value separately.
-    K_light = physics.semi_amplitude(YEAR_D, 1.0, 1.0) * (1 + (const.M_jup / const.M_sun).value) ** (2 / 3)
+    K_light = physics.semi_amplitude(YEAR_D, 1.0, 1.0) * (
+        1 + (const.M_jup / const.M_sun).value
+    ) ** (2 / 3)
     assert K_light == pytest.approx(28.4329, abs=2e-3)
     assert physics.semi_amplitude(YEAR_D, 1.0, 1.0) == pytest.approx(28.4329 / 1.000636, rel=1e-4)
 

@@ -1,0 +1,380 @@
+"""The system model: star, companions, instruments, trend, and the parameter vector.
+
+Sampled coordinates (each companion labelled b, c, d ... in the order found):
+
+=============================  =================================================
+coordinate                     physical parameter and implied prior
+=============================  =================================================
+``<label>.ln_period``          period P (days); the prior is stated on P and the
+                               Jacobian dP/dlnP = P is added, so the default
+                               log-uniform prior on P is uniform in ln P
+``<label>.tc``                 time of conjunction (days, minus the reference
+                               epoch); prior stated on tc in the data's time
+                               system. Default: uniform over one period centred
+                               on the start value (one phase mode)
+``<label>.sqrt_e_cos_omega``,  (e, omega): uniform in these two inside the unit
+``<label>.sqrt_e_sin_omega``   disc is uniform in e and in omega (Eastman et al.
+                               2013), so the prior on e applies as stated and
+                               omega is uniform on [0, 2 pi). Absent when the
+                               orbit is circular (e fixed at 0)
+``<label>.K``                  semi-amplitude K (m/s), prior as stated
+``jitter.<instrument>``        extra white noise (m/s) added in quadrature
+=============================  =================================================
+
+Offsets (one per instrument) and the trend coefficients (slope in m/s/yr, curvature in
+m/s/yr^2, about the reference epoch) are linear parameters with flat priors; the
+likelihood marginalizes (or, for best fits, solves for) them analytically, so they are
+not in the sampled vector. Their posterior is drawn afterwards from the conditional
+Gaussian of each sample.
+
+Default priors (used when the model is built from a search rather than a model file):
+period log-uniform over the search range; tc uniform over one period around the start;
+e uniform on [0, 0.99]; K uniform on [0, 2 x peak-to-peak of the velocities]; jitter
+uniform on [0, max(10, 3 x RMS)] m/s per instrument.
+
+References
+----------
+.. [1] Eastman, J., Gaudi, B. S. & Agol, E. (2013), PASP 125, 83.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+
+import numpy as np
+
+from rvkep.data import RVData
+from rvkep.physics import StarProperties
+from rvkep.priors import Fixed, LogUniform, Prior, Uniform
+
+__all__ = ["Companion", "Instrument", "SystemModel", "LABELS", "DEFAULT_MAX_ECC"]
+
+LABELS = "bcdefghijklmnopqrstuvwxyz"
+DEFAULT_MAX_ECC = 0.99
+YEAR = 365.25
+
+
+@dataclass
+class Companion:
+    """One Keplerian companion: priors on P, tc, e, K and start values.
+
+    ``start`` holds any of ``period``, ``tc`` (data time system), ``ecc``, ``omega``
+    (radians) and ``K``; missing ones are filled by the best-fit search.
+    """
+
+    label: str
+    period: Prior
+    tc: Prior
+    K: Prior
+    ecc: Prior = field(default_factory=lambda: Uniform(0.0, DEFAULT_MAX_ECC))
+    start: dict = field(default_factory=dict)
+
+    @property
+    def circular(self) -> bool:
+        return isinstance(self.ecc, Fixed)
+
+    def __post_init__(self) -> None:
+        if isinstance(self.ecc, Fixed) and self.ecc.value != 0.0:
+            raise ValueError(
+                f"companion {self.label}: eccentricity can only be fixed at 0 (circular)"
+            )
+
+
+@dataclass
+class Instrument:
+    """One instrument: its name and the prior on its jitter (m/s)."""
+
+    name: str
+    jitter: Prior
+    start_jitter: float = 1.0
+
+
+@dataclass
+class SystemModel:
+    """Star + companions + instruments + trend, bound to one data set.
+
+    Parameters
+    ----------
+    data : RVData
+    companions : list of Companion
+    instruments : list of Instrument, optional
+        One per instrument in ``data`` (default priors when omitted).
+    trend : int
+        Polynomial degree of the long-term trend: 0 (none), 1 (linear), 2 (quadratic).
+    star : StarProperties, optional
+    """
+
+    data: RVData
+    companions: list[Companion] = field(default_factory=list)
+    instruments: list[Instrument] | None = None
+    trend: int = 0
+    star: StarProperties | None = None
+
+    def __post_init__(self) -> None:
+        names = self.data.instruments
+        if self.instruments is None:
+            self.instruments = [default_instrument(self.data, n) for n in names]
+        given = {i.name for i in self.instruments}
+        if given != set(names):
+            missing = sorted(set(names) - given)
+            extra = sorted(given - set(names))
+            raise ValueError(
+                "instruments in the model do not match the data"
+                + (f"; missing {', '.join(missing)}" if missing else "")
+                + (f"; not in the data: {', '.join(extra)}" if extra else "")
+            )
+        order = {n: i for i, n in enumerate(names)}
+        self.instruments = sorted(self.instruments, key=lambda i: order[i.name])
+        if self.trend not in (0, 1, 2):
+            raise ValueError(f"trend degree must be 0, 1 or 2, got {self.trend!r}")
+        self._build()
+
+    # -- layout ---------------------------------------------------------------
+
+    def _build(self) -> None:
+        d = self.data
+        self.t = d.t_rel.copy()
+        self.inst_index = d.instrument_index
+        n_inst = len(self.instruments)
+        # centre each instrument on its median so the linear solve is well scaled
+        self.rv_shift = np.array(
+            [np.median(d.rv[self.inst_index == k]) for k in range(n_inst)], dtype=float
+        )
+        self.y = d.rv - self.rv_shift[self.inst_index]
+        self.err2 = d.err**2
+        cols = [(self.inst_index == k).astype(float) for k in range(n_inst)]
+        cols += [(self.t / YEAR) ** p for p in range(1, self.trend + 1)]
+        self.design = np.column_stack(cols)
+        names: list[str] = []
+        slots: list[tuple[str, int, str]] = []  # (kind, owner index, field)
+        for ci, c in enumerate(self.companions):
+            if not c.period.is_fixed:
+                names.append(f"{c.label}.ln_period")
+                slots.append(("companion", ci, "ln_period"))
+            if not c.tc.is_fixed:
+                names.append(f"{c.label}.tc")
+                slots.append(("companion", ci, "tc"))
+            if not c.circular:
+                names += [f"{c.label}.sqrt_e_cos_omega", f"{c.label}.sqrt_e_sin_omega"]
+                slots += [("companion", ci, "h"), ("companion", ci, "k")]
+            if not c.K.is_fixed:
+                names.append(f"{c.label}.K")
+                slots.append(("companion", ci, "K"))
+        for ii, inst in enumerate(self.instruments):
+            if not inst.jitter.is_fixed:
+                names.append(f"jitter.{inst.name}")
+                slots.append(("instrument", ii, "jitter"))
+        self.names = names
+        self._slots = slots
+        self._index = {(kind, i, f): j for j, (kind, i, f) in enumerate(slots)}
+
+    @property
+    def ndim(self) -> int:
+        return len(self.names)
+
+    @property
+    def n_linear(self) -> int:
+        """Number of analytically handled parameters (offsets and trend terms)."""
+        return self.design.shape[1]
+
+    @property
+    def linear_names(self) -> list[str]:
+        out = [f"offset.{i.name}" for i in self.instruments]
+        return out + ["trend.slope", "trend.curvature"][: self.trend]
+
+    def labels(self) -> list[str]:
+        return [c.label for c in self.companions]
+
+    # -- coordinates <-> physical ---------------------------------------------
+
+    def _column(self, theta, kind, i, f, fixed_value):
+        j = self._index.get((kind, i, f))
+        if j is None:
+            return np.full(theta.shape[0], fixed_value, dtype=float)
+        return theta[:, j]
+
+    def to_physical(self, theta: np.ndarray) -> dict[str, np.ndarray]:
+        """Physical parameters of each row of ``theta`` (shape (n_sets, ndim)).
+
+        Keys: ``<label>.period``, ``.tc``, ``.tp`` (both minus the epoch), ``.ecc``,
+        ``.omega`` (radians, [0, 2 pi)), ``.K``, and ``jitter.<instrument>``. Rows with
+        e >= 1 give e >= 1 here; :meth:`log_prior` marks them invalid.
+        """
+        theta = np.atleast_2d(np.asarray(theta, float))
+        out: dict[str, np.ndarray] = {}
+        for ci, c in enumerate(self.companions):
+            fixedP = c.period.value if c.period.is_fixed else np.nan
+            fixed_tc = c.tc.value - self.data.epoch if c.tc.is_fixed else np.nan
+            j = self._index.get(("companion", ci, "ln_period"))
+            P = np.exp(theta[:, j]) if j is not None else np.full(theta.shape[0], fixedP)
+            tc = self._column(theta, "companion", ci, "tc", fixed_tc)
+            h = self._column(theta, "companion", ci, "h", 0.0)
+            k = self._column(theta, "companion", ci, "k", 0.0)
+            K = self._column(theta, "companion", ci, "K", c.K.value if c.K.is_fixed else np.nan)
+            e = h * h + k * k
+            omega = (
+                np.mod(np.arctan2(k, h), 2 * np.pi)
+                if not c.circular
+                else np.full_like(e, 0.5 * np.pi)
+            )
+            L = c.label
+            out[f"{L}.period"] = P
+            out[f"{L}.tc"] = tc
+            out[f"{L}.ecc"] = e
+            out[f"{L}.omega"] = omega
+            out[f"{L}.K"] = K
+            out[f"{L}.tp"] = tc - P * _conjunction_mean_anomaly(np.minimum(e, _E_CAP), omega) / (
+                2 * np.pi
+            )
+        for ii, inst in enumerate(self.instruments):
+            fixed = inst.jitter.value if inst.jitter.is_fixed else np.nan
+            out[f"jitter.{inst.name}"] = self._column(theta, "instrument", ii, "jitter", fixed)
+        return out
+
+    def from_physical(self, values: dict[str, float | np.ndarray]) -> np.ndarray:
+        """Sampled coordinates from physical values (keys as :meth:`to_physical`;
+        ``tc`` minus the epoch, ``omega`` in radians). Returns shape (n_sets, ndim)."""
+        n = max(np.size(v) for v in values.values()) if values else 1
+        theta = np.empty((n, self.ndim))
+        for j, (kind, i, f) in enumerate(self._slots):
+            if kind == "instrument":
+                theta[:, j] = values[f"jitter.{self.instruments[i].name}"]
+                continue
+            L = self.companions[i].label
+            e = np.asarray(values.get(f"{L}.ecc", 0.0), float)
+            w = np.asarray(values.get(f"{L}.omega", 0.0), float)
+            if f == "ln_period":
+                theta[:, j] = np.log(values[f"{L}.period"])
+            elif f == "tc":
+                theta[:, j] = values[f"{L}.tc"]
+            elif f == "h":
+                theta[:, j] = np.sqrt(e) * np.cos(w)
+            elif f == "k":
+                theta[:, j] = np.sqrt(e) * np.sin(w)
+            else:
+                theta[:, j] = values[f"{L}.K"]
+        return theta
+
+    def start_physical(self) -> dict[str, float]:
+        """Physical start values from each companion's ``start`` and the jitter starts."""
+        out: dict[str, float] = {}
+        for c in self.companions:
+            s = c.start
+            missing = [k for k in ("period", "tc", "K") if k not in s]
+            if missing:
+                raise ValueError(f"companion {c.label}: no start value for {', '.join(missing)}")
+            out[f"{c.label}.period"] = float(s["period"])
+            out[f"{c.label}.tc"] = float(s["tc"]) - self.data.epoch
+            out[f"{c.label}.K"] = float(s["K"])
+            out[f"{c.label}.ecc"] = 0.0 if c.circular else float(s.get("ecc", 0.0))
+            out[f"{c.label}.omega"] = float(s.get("omega", 0.5 * np.pi))
+        for inst in self.instruments:
+            value = inst.jitter.value if inst.jitter.is_fixed else inst.start_jitter
+            out[f"jitter.{inst.name}"] = float(value)
+        return out
+
+    def start_theta(self) -> np.ndarray:
+        """The start vector (ndim,)."""
+        return self.from_physical(self.start_physical())[0]
+
+    # -- priors ---------------------------------------------------------------
+
+    def log_prior(self, theta: np.ndarray, phys: dict | None = None) -> np.ndarray:
+        """Log prior density in the sampled coordinates, (n_sets,); -inf when invalid.
+
+        Includes the Jacobian of ln P; the sqrt(e) coordinates have a constant
+        Jacobian (dropped).
+        """
+        theta = np.atleast_2d(np.asarray(theta, float))
+        phys = self.to_physical(theta) if phys is None else phys
+        lp = np.zeros(theta.shape[0])
+        epoch = self.data.epoch
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+            for c in self.companions:
+                L = c.label
+                P, e, K = phys[f"{L}.period"], phys[f"{L}.ecc"], phys[f"{L}.K"]
+                if not c.period.is_fixed:
+                    lp += c.period.logpdf(P) + np.log(P)
+                if not c.tc.is_fixed:
+                    lp += c.tc.logpdf(phys[f"{L}.tc"] + epoch)
+                if not c.circular:
+                    lp += np.where(e < 1.0, c.ecc.logpdf(e), -np.inf)
+                if not c.K.is_fixed:
+                    lp += np.where(K >= 0, c.K.logpdf(K), -np.inf)
+            for inst in self.instruments:
+                if not inst.jitter.is_fixed:
+                    s = phys[f"jitter.{inst.name}"]
+                    lp += np.where(s >= 0, inst.jitter.logpdf(s), -np.inf)
+        return np.where(np.isfinite(lp), lp, -np.inf)
+
+    # -- building -------------------------------------------------------------
+
+    def with_companions(self, companions: list[Companion]) -> SystemModel:
+        """The same data, instruments, trend and star with other companions."""
+        return replace(self, companions=list(companions))
+
+    def describe_priors(self) -> list[tuple[str, str]]:
+        """(parameter, prior statement) for every sampled and fixed parameter."""
+        rows = []
+        for c in self.companions:
+            rows += [
+                (f"{c.label}.period [d]", c.period.describe()),
+                (f"{c.label}.tc [time]", c.tc.describe()),
+                (f"{c.label}.ecc", c.ecc.describe() if not c.circular else "fixed at 0 (circular)"),
+                (f"{c.label}.omega", "uniform(0, 2 pi)" if not c.circular else "undefined"),
+                (f"{c.label}.K [m/s]", c.K.describe()),
+            ]
+        rows += [(f"jitter.{i.name} [m/s]", i.jitter.describe()) for i in self.instruments]
+        rows += [(n, "flat (marginalized analytically)") for n in self.linear_names]
+        return rows
+
+
+_E_CAP = 1.0 - 1e-12  # e >= 1 rows are refused by the prior; keep their tp finite
+
+
+def _conjunction_mean_anomaly(e: np.ndarray, omega: np.ndarray) -> np.ndarray:
+    """Mean anomaly at conjunction (nu = pi/2 - omega), in (-pi, pi]; no validation
+    (the hot-path twin of :func:`rvkep.orbit.tc_to_tp`, tested against it)."""
+    half_nu = 0.5 * (np.mod(1.5 * np.pi - omega, 2 * np.pi) - np.pi)
+    E = 2.0 * np.arctan2(np.sqrt(1.0 - e) * np.sin(half_nu), np.sqrt(1.0 + e) * np.cos(half_nu))
+    return E - e * np.sin(E)
+
+
+def default_instrument(data: RVData, name: str) -> Instrument:
+    """An instrument with the default jitter prior, uniform on [0, max(10, 3 RMS)] m/s."""
+    m = data.instrument == name
+    rms = float(np.std(data.rv[m])) if m.sum() > 1 else 10.0
+    med_err = float(np.median(data.err[m]))
+    return Instrument(
+        name, Uniform(0.0, max(10.0, 3.0 * rms)), start_jitter=max(0.5 * med_err, 0.1)
+    )
+
+
+def default_companion(
+    data: RVData,
+    label: str,
+    period: float,
+    tc: float,
+    K: float,
+    ecc: float = 0.0,
+    omega: float = 0.5 * math.pi,
+    period_range: tuple[float, float] | None = None,
+    circular: bool = False,
+) -> Companion:
+    """A companion with the default priors around start values (tc in data time)."""
+    lo, hi = period_range if period_range is not None else (0.5, 10.0 * _baseline(data))
+    lo, hi = min(lo, 0.8 * period), max(hi, 1.25 * period)
+    K_max = max(2.0 * float(np.ptp(data.rv)), 2.0 * K, 1.0)
+    return Companion(
+        label=label,
+        period=LogUniform(lo, hi),
+        tc=Uniform(tc - 0.5 * period, tc + 0.5 * period),
+        K=Uniform(0.0, K_max),
+        ecc=Fixed(0.0) if circular else Uniform(0.0, DEFAULT_MAX_ECC),
+        start={"period": period, "tc": tc, "K": K, "ecc": ecc, "omega": omega},
+    )
+
+
+def _baseline(data: RVData) -> float:
+    return float(data.time[-1] - data.time[0])

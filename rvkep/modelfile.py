@@ -1,0 +1,313 @@
+"""The model file: a TOML description of the star, instruments, companions and options.
+
+It is data, read with :mod:`tomllib`, never executed. Every key is optional except
+``star.mass`` (for physical results) and, per companion, a start period. Example::
+
+    [star]
+    name = "Veyla"
+    mass = 0.92            # solar masses
+    mass_err = 0.04
+    radius = 0.88          # solar radii (optional: transit probability)
+    teff = 5400            # K (optional: equilibrium temperature, insolation)
+
+    [data]
+    files = ["kestrel.txt", "osprey.csv"]   # relative to this file
+    kms = false
+
+    [trend]
+    degree = 1             # 0 none, 1 linear, 2 quadratic
+
+    [instruments.osprey]
+    jitter = { prior = "uniform", min = 0, max = 20 }    # m/s
+
+    [companions.b]
+    period = { start = 11.87, prior = "loguniform", min = 5, max = 20 }   # days
+    tc = { start = 2459807.5, prior = "normal", mean = 2459807.52, sd = 0.01 }
+    K = { start = 18, prior = "uniform", min = 0, max = 100 }              # m/s
+    ecc = { start = 0.1, prior = "beta", a = 0.867, b = 3.03 }
+    omega_deg = 50         # start only; the prior on omega is uniform
+    # circular = true      # e fixed at 0
+
+    [sampling]
+    walkers = 32
+    max_steps = 20000
+    seed = 1
+
+A parameter is a number (a start value with the default prior) or a table with
+``start`` and a prior: ``prior`` is one of ``uniform`` / ``loguniform`` (``min``,
+``max``), ``normal`` (``mean``, ``sd``), ``truncnormal`` (``mean``, ``sd``, optional
+``min``, ``max``), ``beta`` (``a``, ``b``) or ``fixed`` (``value``). Times are in the
+data's time system. Errors name the file, the key and the problem.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from rvkep.data import RVData
+from rvkep.errors import ModelFileError
+from rvkep.model import (
+    DEFAULT_MAX_ECC,
+    Companion,
+    Instrument,
+    SystemModel,
+    _baseline,
+    default_instrument,
+)
+from rvkep.physics import StarProperties
+from rvkep.priors import Fixed, LogUniform, Prior, Uniform, prior_from_dict
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+__all__ = ["ModelSpec", "CompanionSpec", "read_model_file", "parse_model"]
+
+_TOP = {"star", "data", "trend", "instruments", "companions", "sampling"}
+_STAR = {"name", "mass", "mass_err", "radius", "radius_err", "teff", "teff_err"}
+_DATA = {"files", "kms"}
+_TREND = {"degree"}
+_INSTRUMENT = {"jitter"}
+_COMPANION = {"period", "tc", "K", "ecc", "omega_deg", "circular"}
+_SAMPLING = {"walkers", "max_steps", "seed", "min_steps", "thin"}
+
+
+@dataclass
+class CompanionSpec:
+    """A companion as written in the file: priors (None: default) and start values."""
+
+    label: str
+    period: Prior | None = None
+    tc: Prior | None = None
+    K: Prior | None = None
+    ecc: Prior | None = None
+    start: dict = field(default_factory=dict)
+
+    def build(self, data: RVData) -> Companion:
+        """The :class:`Companion`, default priors filled in; tc's default needs a
+        start tc, so call after the start search when tc has no start."""
+        P = self.start["period"]
+        period = self.period or LogUniform(min(0.5, 0.8 * P), max(10.0 * _baseline(data), 1.25 * P))
+        tc = self.tc
+        if tc is None:
+            tc0 = self.start["tc"]
+            tc = Uniform(tc0 - 0.5 * P, tc0 + 0.5 * P)
+        K = self.K or Uniform(
+            0.0, max(2.0 * float(np.ptp(data.rv)), 2.0 * self.start.get("K", 1.0), 1.0)
+        )
+        ecc = self.ecc or Uniform(0.0, DEFAULT_MAX_ECC)
+        return Companion(self.label, period, tc, K, ecc, dict(self.start))
+
+
+@dataclass
+class ModelSpec:
+    """Everything a model file says; :meth:`build` binds it to data."""
+
+    path: str = "<model>"
+    star: StarProperties | None = None
+    star_name: str = ""
+    files: list[str] = field(default_factory=list)
+    kms: bool = False
+    trend: int = 0
+    jitter: dict[str, Prior] = field(default_factory=dict)
+    companions: list[CompanionSpec] = field(default_factory=list)
+    sampling: dict = field(default_factory=dict)
+
+    def instruments_for(self, data: RVData) -> list[Instrument]:
+        unknown = sorted(set(self.jitter) - set(data.instruments))
+        if unknown:
+            raise ModelFileError(
+                f"{self.path}: instruments.{unknown[0]}: no such instrument in the data "
+                f"(the data have {', '.join(data.instruments)})"
+            )
+        out = []
+        for name in data.instruments:
+            inst = default_instrument(data, name)
+            if name in self.jitter:
+                inst.jitter = self.jitter[name]
+                lo, hi = inst.jitter.bounds
+                if not lo <= inst.start_jitter <= hi:
+                    inst.start_jitter = (
+                        inst.jitter.value
+                        if inst.jitter.is_fixed
+                        else 0.5 * (lo + min(hi, lo + 20.0))
+                    )
+            out.append(inst)
+        return out
+
+    def base_model(self, data: RVData) -> SystemModel:
+        """The model without companions (instruments, trend, star)."""
+        return SystemModel(data, [], self.instruments_for(data), self.trend, self.star)
+
+
+def _where(path, *keys):
+    return f"{path}: {'.'.join(keys)}"
+
+
+def _number(value, where, positive=False):
+    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
+        raise ModelFileError(f"{where}: must be a number, got {value!r}")
+    if positive and value <= 0:
+        raise ModelFileError(f"{where}: must be positive, got {value!r}")
+    return float(value)
+
+
+def _check_keys(table, allowed, where):
+    if not isinstance(table, dict):
+        raise ModelFileError(f"{where}: must be a table")
+    for key in table:
+        if key not in allowed:
+            raise ModelFileError(
+                f"{where}: unknown key {key!r} (allowed: {', '.join(sorted(allowed))})"
+            )
+
+
+def _parameter(value, where) -> tuple[Prior | None, float | None]:
+    """A parameter entry: a number (start) or a table (start and prior)."""
+    if isinstance(value, dict):
+        spec = dict(value)
+        start = spec.pop("start", None)
+        if start is not None:
+            start = _number(start, f"{where}.start")
+        prior = None
+        if spec:
+            if "prior" not in spec:
+                raise ModelFileError(f"{where}: keys {', '.join(spec)} need a 'prior' name")
+            try:
+                prior = prior_from_dict(spec, where)
+            except ValueError as exc:
+                raise ModelFileError(str(exc)) from None
+            if start is not None and not prior.is_fixed:
+                lo, hi = prior.bounds
+                if not lo <= start <= hi:
+                    raise ModelFileError(
+                        f"{where}: start {start:g} is outside the prior {prior.describe()}"
+                    )
+            if prior.is_fixed:
+                start = prior.value
+        return prior, start
+    return None, _number(value, where)
+
+
+def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
+    """Validate a parsed TOML document and turn it into a :class:`ModelSpec`."""
+    _check_keys(doc, _TOP, path)
+    spec = ModelSpec(path=path)
+    star = doc.get("star", {})
+    _check_keys(star, _STAR, _where(path, "star"))
+    if star:
+        if "mass" not in star:
+            raise ModelFileError(f"{_where(path, 'star')}: needs 'mass' (solar masses)")
+        vals = {k: _number(v, _where(path, "star", k), positive=k in ("mass", "radius", "teff"))
+                for k, v in star.items() if k != "name"}  # fmt: skip
+        spec.star = StarProperties(
+            mass=vals["mass"], mass_err=vals.get("mass_err", 0.0),
+            radius=vals.get("radius"), radius_err=vals.get("radius_err", 0.0),
+            teff=vals.get("teff"), teff_err=vals.get("teff_err", 0.0),
+        )  # fmt: skip
+        spec.star_name = str(star.get("name", ""))
+    data = doc.get("data", {})
+    _check_keys(data, _DATA, _where(path, "data"))
+    files = data.get("files", [])
+    if not isinstance(files, list) or not all(isinstance(f, str) for f in files):
+        raise ModelFileError(f"{_where(path, 'data', 'files')}: must be a list of file names")
+    base = Path(path).parent
+    spec.files = [str(base / f) for f in files]
+    kms = data.get("kms", False)
+    if not isinstance(kms, bool):
+        raise ModelFileError(f"{_where(path, 'data', 'kms')}: must be true or false")
+    spec.kms = kms
+    trend = doc.get("trend", {})
+    _check_keys(trend, _TREND, _where(path, "trend"))
+    degree = trend.get("degree", 0)
+    if degree not in (0, 1, 2) or isinstance(degree, bool):
+        raise ModelFileError(
+            f"{_where(path, 'trend', 'degree')}: must be 0, 1 or 2, got {degree!r}"
+        )
+    spec.trend = int(degree)
+    instruments = doc.get("instruments", {})
+    _check_keys(
+        instruments,
+        set(instruments) if isinstance(instruments, dict) else set(),
+        _where(path, "instruments"),
+    )
+    for name, table in instruments.items():
+        where = _where(path, "instruments", name)
+        _check_keys(table, _INSTRUMENT, where)
+        if "jitter" in table:
+            prior, start = _parameter(table["jitter"], f"{where}.jitter")
+            if prior is None:
+                prior = Fixed(start) if start is not None else None
+            if prior is not None:
+                spec.jitter[name] = prior
+    companions = doc.get("companions", {})
+    if not isinstance(companions, dict):
+        raise ModelFileError(f"{_where(path, 'companions')}: must be a table of tables")
+    for label, table in companions.items():
+        where = _where(path, "companions", label)
+        _check_keys(table, _COMPANION, where)
+        c = CompanionSpec(label=label)
+        for key in ("period", "tc", "K", "ecc"):
+            if key in table:
+                prior, start = _parameter(table[key], f"{where}.{key}")
+                setattr(c, key, prior)
+                if start is not None:
+                    c.start[key] = start
+        if "omega_deg" in table:
+            prior, start = _parameter(table["omega_deg"], f"{where}.omega_deg")
+            if prior is not None:
+                raise ModelFileError(
+                    f"{where}.omega_deg: takes a start value only (its prior is uniform)"
+                )
+            c.start["omega"] = math.radians(start)
+        circular = table.get("circular", False)
+        if not isinstance(circular, bool):
+            raise ModelFileError(f"{where}.circular: must be true or false")
+        if circular:
+            c.ecc = Fixed(0.0)
+            c.start["ecc"] = 0.0
+        elif isinstance(c.ecc, Fixed) and c.ecc.value != 0.0:
+            raise ModelFileError(f"{where}.ecc: can only be fixed at 0 (write circular = true)")
+        if "period" not in c.start:
+            if c.period is not None and not c.period.is_fixed:
+                lo, hi = c.period.bounds
+                c.start["period"] = math.sqrt(lo * hi) if lo > 0 and math.isfinite(hi) else None
+            if c.start.get("period") is None:
+                raise ModelFileError(f"{where}.period: needs a start value")
+        if "ecc" in c.start and not 0 <= c.start["ecc"] < 1:
+            raise ModelFileError(f"{where}.ecc: start must be in [0, 1), got {c.start['ecc']:g}")
+        spec.companions.append(c)
+    sampling = doc.get("sampling", {})
+    _check_keys(sampling, _SAMPLING, _where(path, "sampling"))
+    for key, value in sampling.items():
+        v = _number(value, _where(path, "sampling", key), positive=key != "seed")
+        if key in ("walkers", "max_steps", "seed", "min_steps", "thin"):
+            if v != int(v):
+                raise ModelFileError(f"{_where(path, 'sampling', key)}: must be a whole number")
+            v = int(v)
+        spec.sampling[key] = v
+    return spec
+
+
+def read_model_file(path: str | Path) -> ModelSpec:
+    """Read and validate a model file. Raises ModelFileError naming the key."""
+    path = Path(path)
+    try:
+        raw = path.read_bytes()
+    except FileNotFoundError:
+        raise ModelFileError(f"{path}: no such file") from None
+    except OSError as exc:
+        raise ModelFileError(f"{path}: cannot read ({exc.strerror})") from None
+    try:
+        doc = tomllib.loads(raw.decode("utf-8-sig"))
+    except UnicodeDecodeError:
+        raise ModelFileError(f"{path}: not a text file") from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ModelFileError(f"{path}: not valid TOML ({exc})") from None
+    return parse_model(doc, str(path))

@@ -1,0 +1,498 @@
+"""Best fit (maximum a posteriori) with a global start search.
+
+Local optimizers find the nearest optimum; RV posteriors have many (aliases, the
+phase of eccentric orbits, the e-omega degeneracy at low e). The start search here
+uses the fact that, at fixed period P, eccentricity e and time of periastron tp, the
+Keplerian curve is LINEAR in (K cos omega, K sin omega):
+
+    v = K cos omega (cos nu + e) - K sin omega sin nu,
+
+so a grid over (e, tp) at each candidate period is solved by weighted least squares
+together with the offsets and trend, exactly and cheaply. The best grid points start a
+bounded quasi-Newton (L-BFGS-B) optimization of all parameters jointly, with gradients
+by central differences evaluated in one vectorized call.
+
+Companions are added one at a time (:func:`fit_companions`): each new one is searched
+on the residuals of the previous best fit, then all are refined together.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from rvkep.data import RVData
+from rvkep.likelihood import LogPosterior, keplerian_velocity
+from rvkep.model import LABELS, SystemModel, default_companion
+from rvkep.orbit import tp_to_tc
+
+__all__ = ["FitResult", "fit", "fit_companions", "grid_starts", "GRID_ECC", "GRID_PHASES"]
+
+#: eccentricities and periastron phases of the start grid
+GRID_ECC = (
+    0.02,
+    0.2,
+    0.4,
+    0.6,
+    0.8,
+)  # not 0: the origin of the sqrt(e) plane is a stationary point
+GRID_PHASES = 24
+
+
+@dataclass
+class FitResult:
+    """A best fit and its statistics.
+
+    ``params`` holds physical values (``<label>.period``, ``.tc`` and ``.tp`` in the
+    data's time system, ``.ecc``, ``.omega`` in radians, ``.K``, ``jitter.<inst>``,
+    ``offset.<inst>``, ``trend.slope`` ...). ``log_likelihood`` is the maximum
+    (offsets solved), ``n_free`` counts every fitted parameter including offsets and
+    trend, and BIC = n_free ln n - 2 ln L, AIC = 2 n_free - 2 ln L.
+    """
+
+    model: SystemModel
+    theta: np.ndarray
+    params: dict[str, float]
+    log_likelihood: float
+    log_posterior: float
+    chi2: float
+    n_points: int
+    n_free: int
+    rms: dict[str, float]
+    residuals: np.ndarray
+    success: bool = True
+    message: str = ""
+    extra: dict = field(default_factory=dict)
+
+    @property
+    def bic(self) -> float:
+        return self.n_free * math.log(self.n_points) - 2.0 * self.log_likelihood
+
+    @property
+    def aic(self) -> float:
+        return 2.0 * self.n_free - 2.0 * self.log_likelihood
+
+    @property
+    def n_companions(self) -> int:
+        return len(self.model.companions)
+
+    def summary(self) -> str:
+        lines = [
+            f"best fit: {self.n_companions} companion(s), ln L = {self.log_likelihood:.2f}, "
+            f"chi2 = {self.chi2:.1f} for {self.n_points} points, BIC = {self.bic:.1f}, "
+            f"AIC = {self.aic:.1f}"
+        ]
+        for c in self.model.companions:
+            p = self.params
+            L = c.label
+            lines.append(
+                f"  {L}: P = {p[f'{L}.period']:.5g} d, K = {p[f'{L}.K']:.4g} m/s, "
+                f"e = {p[f'{L}.ecc']:.3f}, omega = {math.degrees(p[f'{L}.omega']):.1f} deg, "
+                f"tc = {p[f'{L}.tc']:.4f}"
+            )
+        for name, r in self.rms.items():
+            lines.append(
+                f"  {name}: offset = {self.params[f'offset.{name}']:.2f} m/s, "
+                f"jitter = {self.params[f'jitter.{name}']:.2f} m/s, rms = {r:.2f} m/s"
+            )
+        return "\n".join(lines)
+
+    __str__ = summary
+
+
+def _bounds(model: SystemModel) -> list[tuple[float, float]]:
+    out = []
+    for kind, i, f in model._slots:
+        if kind == "instrument":
+            lo, hi = model.instruments[i].jitter.bounds
+            out.append((max(lo, 0.0), hi if np.isfinite(hi) else None))
+            continue
+        c = model.companions[i]
+        if f == "ln_period":
+            lo, hi = c.period.bounds
+            out.append(
+                (math.log(lo) if lo > 0 else None, math.log(hi) if np.isfinite(hi) else None)
+            )
+        elif f == "tc":
+            lo, hi = c.tc.bounds
+            ep = model.data.epoch
+            out.append((lo - ep if np.isfinite(lo) else None, hi - ep if np.isfinite(hi) else None))
+        elif f in ("h", "k"):
+            out.append((-1.0, 1.0))
+        else:
+            lo, hi = c.K.bounds
+            out.append((max(lo, 0.0), hi if np.isfinite(hi) else None))
+    return out
+
+
+def _curvature_scales(post: LogPosterior, x: np.ndarray, lo, hi) -> np.ndarray:
+    """Per-coordinate scales 1 / sqrt(d2f/dx2) from one vectorized call (the diagonal
+    of the Hessian by central differences), so the optimizer sees a well-conditioned
+    problem: a period known to 1e-5 and an offset known to 1 m/s become steps of one."""
+    ndim = x.size
+    h = 1e-5 * np.maximum(np.abs(x), 1.0)
+    pts = np.repeat(x[None, :], 2 * ndim + 1, axis=0)
+    for j in range(ndim):
+        pts[1 + 2 * j, j] = min(x[j] + h[j], hi[j])
+        pts[2 + 2 * j, j] = max(x[j] - h[j], lo[j])
+    f = -post(pts)
+    scales = np.ones(ndim)
+    for j in range(ndim):
+        hu, hd = pts[1 + 2 * j, j] - x[j], x[j] - pts[2 + 2 * j, j]
+        fu, fd = f[1 + 2 * j], f[2 + 2 * j]
+        if hu > 0 and hd > 0 and np.all(np.isfinite([fu, fd, f[0]])):
+            curv = 2.0 * (hd * fu + hu * fd - (hu + hd) * f[0]) / (hu * hd * (hu + hd))
+            if curv > 0:
+                scales[j] = 1.0 / math.sqrt(curv)
+    return np.clip(scales, 1e-9, 1e3)
+
+
+def _minimize(
+    post: LogPosterior, theta0: np.ndarray, bounds
+) -> tuple[np.ndarray, float, bool, str]:
+    """L-BFGS-B in coordinates rescaled by the local curvature, restarted once with
+    scales re-measured at the first optimum."""
+    from scipy.optimize import minimize
+
+    ndim = theta0.size
+    lo = np.array([b[0] if b[0] is not None else -np.inf for b in bounds])
+    hi = np.array([b[1] if b[1] is not None else np.inf for b in bounds])
+    penalty = 1e6
+    h = 1e-6  # finite-difference step in the rescaled coordinates
+    x = theta0.copy()
+    res = None
+    for _ in range(2):
+        scale = _curvature_scales(post, x, lo, hi)
+        x0 = x.copy()
+        ulo, uhi = (lo - x0) / scale, (hi - x0) / scale
+        last = [np.zeros(ndim), float(-post(x0[None, :])[0])]
+
+        def value_and_grad(u, x0=x0, scale=scale, ulo=ulo, uhi=uhi, last=last):
+            pts = np.repeat(u[None, :], 2 * ndim + 1, axis=0)
+            for j in range(ndim):  # steps stay inside the bounds
+                pts[1 + 2 * j, j] = min(u[j] + h, uhi[j])
+                pts[2 + 2 * j, j] = max(u[j] - h, ulo[j])
+            vals = -post(x0 + pts * scale)
+            f0 = vals[0]
+            if not np.isfinite(f0):
+                # outside the prior: a steep bowl around the last valid point, so the
+                # line search backs off instead of stopping
+                d = u - last[0]
+                return last[1] + penalty * (1.0 + d @ d), 2.0 * penalty * d
+            last[0], last[1] = u.copy(), f0
+            grad = np.zeros(ndim)
+            for j in range(ndim):
+                fu, fd = vals[1 + 2 * j], vals[2 + 2 * j]
+                hu, hd = pts[1 + 2 * j, j] - u[j], u[j] - pts[2 + 2 * j, j]
+                if np.isfinite(fu) and np.isfinite(fd) and hu + hd > 0:
+                    grad[j] = (fu - fd) / (hu + hd)
+                elif np.isfinite(fu) and hu > 0:
+                    grad[j] = (fu - f0) / hu
+                elif np.isfinite(fd) and hd > 0:
+                    grad[j] = (f0 - fd) / hd
+            return f0, grad
+
+        ubounds = [
+            (None if not np.isfinite(a) else a, None if not np.isfinite(b) else b)
+            for a, b in zip(ulo, uhi, strict=True)
+        ]
+        res = minimize(
+            value_and_grad, np.zeros(ndim), jac=True, method="L-BFGS-B", bounds=ubounds,
+            options={"maxiter": 3000, "ftol": 1e-13, "gtol": 1e-7},
+        )  # fmt: skip
+        x = np.clip(x0 + res.x * scale, lo, hi)
+    fx = float(-post(x[None, :])[0])
+    return x, fx, bool(res.success) and np.isfinite(fx), str(res.message)
+
+
+def _result(model: SystemModel, theta: np.ndarray, success=True, message="") -> FitResult:
+    prof = LogPosterior(model, linear="profile", include_prior=False)
+    _, det = prof.evaluate(theta[None, :])
+    logL = float(prof(theta[None, :])[0])
+    logpost = float(LogPosterior(model, linear="profile")(theta[None, :])[0])
+    phys = {k: float(v[0]) for k, v in det["phys"].items()}
+    epoch = model.data.epoch
+    for c in model.companions:
+        phys[f"{c.label}.tc"] += epoch
+        phys[f"{c.label}.tp"] += epoch
+    lin = prof.linear_parameters(theta[None, :])[0]
+    for name, value in zip(model.linear_names, lin, strict=True):
+        phys[name] = float(value)
+    resid_centred = det["resid"][0] - model.design @ det["beta"][0]
+    rms = {}
+    for k, inst in enumerate(model.instruments):
+        m = model.inst_index == k
+        rms[inst.name] = float(np.sqrt(np.mean(resid_centred[m] ** 2)))
+    return FitResult(
+        model=model,
+        theta=theta.copy(),
+        params=phys,
+        log_likelihood=logL,
+        log_posterior=logpost,
+        chi2=float(det["chi2"][0]),
+        n_points=len(model.data),
+        n_free=model.ndim + model.n_linear,
+        rms=rms,
+        residuals=resid_centred,
+        success=success,
+        message=message,
+    )
+
+
+def fit(model: SystemModel, starts: list[np.ndarray] | None = None) -> FitResult:
+    """Best fit of ``model`` from one or several start vectors (default: its starts).
+
+    Returns the best optimum found, by log-posterior (offsets solved).
+    """
+    post = LogPosterior(model, linear="profile")
+    bounds = _bounds(model)
+    starts = [model.start_theta()] if starts is None else starts
+    best = None
+    for theta0 in starts:
+        theta0 = np.clip(
+            theta0,
+            [b[0] if b[0] is not None else -np.inf for b in bounds],
+            [b[1] if b[1] is not None else np.inf for b in bounds],
+        )
+        x, fx, ok, msg = (
+            _minimize(post, theta0, bounds)
+            if model.ndim
+            else (theta0, float(-post(theta0[None])[0]), True, "")
+        )
+        if best is None or fx < best[1]:
+            best = (x, fx, ok, msg)
+    x, fx, ok, msg = best
+    return _result(model, x, ok, msg)
+
+
+def grid_starts(
+    data: RVData,
+    residual: np.ndarray,
+    weights: np.ndarray,
+    design: np.ndarray,
+    period: float,
+    n_best: int = 3,
+    ecc_grid=GRID_ECC,
+    n_phase: int = GRID_PHASES,
+) -> list[dict]:
+    """Best (e, tp) grid points at one period, solved linearly for K and omega.
+
+    ``residual`` is what the other companions leave (centred velocities), ``weights``
+    1 / (err^2 + jitter^2), ``design`` the offset/trend columns. Returns up to
+    ``n_best`` dicts with ``period, tp, tc`` (minus the epoch), ``ecc``, ``omega``,
+    ``K`` and ``chi2``, best first.
+    """
+    from rvkep.kepler import eccentric_anomaly
+
+    t = data.t_rel
+    phases = np.arange(n_phase) / n_phase
+    e = np.repeat(np.asarray(ecc_grid, float), n_phase)
+    tp = np.tile(phases * period, len(ecc_grid))
+    M = 2 * np.pi * (t[None, :] - tp[:, None]) / period
+    E = eccentric_anomaly(M, e[:, None])
+    cosE, sinE = np.cos(E), np.sin(E)
+    den = 1 - e[:, None] * cosE
+    cos_nu = (cosE - e[:, None]) / den
+    sin_nu = np.sqrt(1 - e[:, None] ** 2) * sinE / den
+    G = e.size
+    cols = np.concatenate(
+        [
+            np.stack([cos_nu + e[:, None], -sin_nu], axis=2),
+            np.broadcast_to(design[None], (G, *design.shape)),
+        ],
+        axis=2,
+    )  # (G, n, 2 + m)
+    Wc = cols * weights[None, :, None]
+    A = np.einsum("gni,gnj->gij", Wc, cols)
+    b = np.einsum("gni,n->gi", Wc, residual)
+    A += 1e-12 * np.eye(A.shape[1]) * np.trace(A, axis1=1, axis2=2)[:, None, None]
+    coef = np.linalg.solve(A, b[:, :, None])[:, :, 0]
+    model_v = np.einsum("gni,gi->gn", cols, coef)
+    chi2 = np.sum(weights[None, :] * (residual[None, :] - model_v) ** 2, axis=1)
+    order = np.argsort(chi2)
+    out = []
+    for g in order:
+        a_, b_ = coef[g, 0], coef[g, 1]  # K cos(omega), K sin(omega)
+        K = float(math.hypot(a_, b_))
+        omega = float(math.atan2(b_, a_) % (2 * math.pi))
+        cand = {"period": period, "tp": float(tp[g]), "ecc": float(e[g]), "omega": omega, "K": K}
+        cand["tc"] = float(tp_to_tc(cand["tp"], period, cand["ecc"], omega))
+        cand["chi2"] = float(chi2[g])
+        # skip near-duplicates (same e, neighbouring phase)
+        if any(
+            abs(c["ecc"] - cand["ecc"]) < 1e-9
+            and abs(c["tp"] - cand["tp"]) <= period / n_phase * 1.01
+            for c in out
+        ):
+            continue
+        out.append(cand)
+        if len(out) >= n_best:
+            break
+    return out
+
+
+def _nearest_tc(tc_rel: float, period: float) -> float:
+    """Shift a conjunction time by whole periods to the one nearest the epoch."""
+    return tc_rel - period * round(tc_rel / period)
+
+
+def fit_companions(
+    data: RVData,
+    periods: list[list[float]] | list[float],
+    trend: int = 0,
+    base: SystemModel | None = None,
+    period_range: tuple[float, float] | None = None,
+    n_starts: int = 3,
+    previous: FitResult | None = None,
+    specs: list | None = None,
+) -> FitResult:
+    """Best fit with one companion per entry of ``periods``, added one at a time.
+
+    Parameters
+    ----------
+    data : RVData
+    periods : list
+        For each companion, a candidate period or a list of candidate periods (e.g.
+        the top periodogram peaks); each candidate is tried with the grid starts.
+    trend : int
+        Trend degree.
+    base : SystemModel, optional
+        A model whose instruments, trend and star to keep (its companions are ignored).
+    period_range : (float, float), optional
+        Bounds of the default log-uniform period prior.
+    n_starts : int
+        Grid starts tried per candidate period.
+    previous : FitResult, optional
+        An existing fit whose companions are kept; ``periods`` then adds more.
+    specs : list of rvkep.modelfile.CompanionSpec, optional
+        Priors (and start values) per companion, from a model file; their start
+        values are tried as one more start.
+    """
+    if base is None:
+        base = SystemModel(data, [], trend=trend)
+    if previous is not None:
+        current = previous
+    else:
+        current = fit(base.with_companions([]))
+    for j, cand in enumerate(periods):
+        cands = [cand] if np.isscalar(cand) else list(cand)
+        spec = specs[j] if specs is not None else None
+        current = _add_one(current, data, cands, period_range, n_starts, spec)
+    return current
+
+
+def _new_companion(data, label, P, start, period_range, spec):
+    """A companion built from a start (tc in data time), default priors or ``spec``'s."""
+    if spec is None:
+        return default_companion(
+            data, label, P, start["tc"], max(start["K"], 0.1), start["ecc"], start["omega"],
+            period_range,
+        )  # fmt: skip
+    from dataclasses import replace
+
+    ecc = 0.0 if spec.ecc is not None and spec.ecc.is_fixed else start["ecc"]
+    full = {
+        "period": P,
+        "tc": start["tc"],
+        "K": max(start["K"], 0.1),
+        "ecc": ecc,
+        "omega": start["omega"],
+    }
+    return replace(spec, label=label, start=full).build(data)
+
+
+def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitResult:
+    model = current.model
+    label = LABELS[len(model.companions)]
+    # residuals of the current fit (linear part free again), weights from its jitters
+    phys = model.to_physical(current.theta[None, :])
+    resid = model.y - keplerian_velocity(model, phys)[0]
+    jit = np.array([current.params[f"jitter.{i.name}"] for i in model.instruments])
+    weights = 1.0 / (model.err2 + jit[model.inst_index] ** 2)
+    best = None
+    if spec is not None:
+        label = spec.label
+    for P in periods:
+        starts = []
+        # conjunction nearest the epoch, or nearest the centre of a given tc prior
+        centre = data.epoch
+        if spec is not None and spec.tc is not None:
+            lo, hi = spec.tc.bounds
+            centre = getattr(spec.tc, "mean", 0.5 * (lo + hi))
+        for g in grid_starts(data, resid, weights, model.design, float(P), n_best=n_starts):
+            tc = g["tc"] + data.epoch - centre
+            starts.append(dict(g, tc=_nearest_tc(tc, P) + centre))
+        if spec is not None and {"tc", "K"} <= set(spec.start):
+            user = {"ecc": 0.0, "omega": 0.5 * np.pi, **spec.start}
+            starts.append(user)
+        for s in starts:
+            new = _new_companion(data, label, P, s, period_range, spec)
+            trial = model.with_companions([*model.companions, new])
+            start = current.params.copy()
+            for c in model.companions:  # previous companions: their best values
+                start[f"{c.label}.tc"] -= data.epoch
+            vals = {
+                **{k: v for k, v in start.items() if k in _phys_keys(trial)},
+                **_start_of(new, data),
+            }
+            theta0 = trial.from_physical(vals)[0]
+            result = fit(trial, [theta0])
+            if best is None or result.log_posterior > best.log_posterior:
+                best = result
+    # re-centre a default tc prior on the result (one phase mode around the best fit)
+    return _recentre(best, label if spec is None else None)
+
+
+def _phys_keys(model: SystemModel) -> set[str]:
+    keys = {f"jitter.{i.name}" for i in model.instruments}
+    for c in model.companions:
+        keys |= {f"{c.label}.{f}" for f in ("period", "tc", "ecc", "omega", "K")}
+    return keys
+
+
+def _start_of(c, data: RVData) -> dict[str, float]:
+    s = c.start
+    return {
+        f"{c.label}.period": s["period"],
+        f"{c.label}.tc": s["tc"] - data.epoch,
+        f"{c.label}.ecc": s["ecc"],
+        f"{c.label}.omega": s["omega"],
+        f"{c.label}.K": s["K"],
+    }
+
+
+def _recentre(result: FitResult, label: str | None) -> FitResult:
+    """Move companion ``label``'s default tc prior (one period wide) so the best tc sits
+    at its centre, and store the best values as every companion's start."""
+    from rvkep.priors import Uniform
+
+    model = result.model
+    p = result.params
+    comps = []
+    for c in model.companions:
+        L = c.label
+        P, tc = p[f"{L}.period"], p[f"{L}.tc"]
+        tc_prior = c.tc
+        if L == label and isinstance(c.tc, Uniform):
+            width = c.tc.high - c.tc.low
+            tc_prior = Uniform(tc - 0.5 * width, tc + 0.5 * width)
+        start = {
+            "period": P,
+            "tc": tc,
+            "K": p[f"{L}.K"],
+            "ecc": p[f"{L}.ecc"],
+            "omega": p[f"{L}.omega"],
+        }
+        comps.append(type(c)(c.label, c.period, tc_prior, c.K, c.ecc, start))
+    new_model = model.with_companions(comps)
+    for inst in new_model.instruments:
+        inst.start_jitter = max(p[f"jitter.{inst.name}"], 1e-3)
+    theta = new_model.from_physical(
+        {
+            **{k: v for k, v in p.items()},
+            **{f"{c.label}.tc": p[f"{c.label}.tc"] - model.data.epoch for c in comps},
+        }
+    )[0]
+    return _result(new_model, theta, result.success, result.message)
