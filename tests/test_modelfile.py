@@ -73,7 +73,8 @@ BAD = [
         "can only be fixed at 0",
     ),
     (
-        "[companions.b]\nperiod = 3\nomega_deg = { start = 3, prior = 'uniform', min = 0, max = 9 }",
+        "[companions.b]\nperiod = 3\n"
+        "omega_deg = { start = 3, prior = 'uniform', min = 0, max = 9 }",
         "start value only",
     ),
     ("[sampling]\nwalkers = 10.5", "sampling.walkers: must be a whole number"),
