@@ -79,8 +79,75 @@ def _add_check(sub) -> None:
     p.set_defaults(run=_run_check)
 
 
+def _run_periodogram(args: argparse.Namespace) -> int:
+    from rvkep.errors import OptionError
+
+    data = _load(args)
+    from rvkep.outputs import save_figure
+    from rvkep.plots import plot_periodograms
+    from rvkep.search import search
+
+    try:
+        result = search(
+            data,
+            min_period=args.min_period,
+            max_period=args.max_period,
+            fap_threshold=args.fap,
+            max_signals=args.max_signals,
+            trend=args.trend,
+        )
+    except ValueError as exc:
+        raise OptionError(str(exc)) from None
+    print(result.table())
+    path = save_figure(plot_periodograms(result), f"{args.out}/periodogram.{args.format}")
+    print(f"figure: {path}")
+    return 0
+
+
+def _add_periodogram(sub) -> None:
+    p = sub.add_parser(
+        "periodogram",
+        help="search for periodic signals (iterative, with false-alarm levels)",
+        description="Generalized Lomb-Scargle periodograms of the velocities and of the "
+        "residuals after each signal found, Baluev false-alarm probabilities, the "
+        "spectral window and alias flags.",
+    )
+    _add_data_args(p)
+    p.add_argument(
+        "--min-period",
+        type=float,
+        default=None,
+        metavar="DAYS",
+        help="shortest period searched (default 1.2 d)",
+    )
+    p.add_argument(
+        "--max-period",
+        type=float,
+        default=None,
+        metavar="DAYS",
+        help="longest period searched (default: the time span)",
+    )
+    p.add_argument(
+        "--fap",
+        type=float,
+        default=1e-3,
+        help="false-alarm probability below which a peak counts (default 0.001)",
+    )
+    p.add_argument("--max-signals", type=int, default=5, help="most signals to look for")
+    p.add_argument(
+        "--trend",
+        type=int,
+        default=0,
+        choices=(0, 1, 2),
+        help="polynomial trend degree fitted along (default 0)",
+    )
+    p.add_argument("--out", default=".", metavar="DIR", help="folder for the figure")
+    p.add_argument("--format", default="png", choices=("png", "pdf"), help="figure format")
+    p.set_defaults(run=_run_periodogram)
+
+
 # each entry adds one subcommand: add(subparsers) -> None, setting defaults(run=...)
-_SUBCOMMANDS: list = [_add_check]
+_SUBCOMMANDS: list = [_add_check, _add_periodogram]
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -98,6 +165,11 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"rvkep {args.command}: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into a program that stopped reading
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -41,8 +41,9 @@ def observing_nights(rng, n, span_days=820.0):
     season = (nights % 365.25) < 245.0  # target observable 8 months a year
     nights = nights[season]
     chosen = np.sort(rng.choice(nights, size=n, replace=False))
-    # observed near the same hour each night, with +-1.5 h scatter
-    return EPOCH0 + chosen + 0.1 + rng.uniform(-0.06, 0.06, n)
+    # observed near the same hour angle each night (one sidereal day, 0.99727 d, apart),
+    # with +-1.5 h scatter
+    return EPOCH0 + 0.99726957 * chosen + 0.1 + rng.uniform(-0.06, 0.06, n)
 
 
 def model(t):

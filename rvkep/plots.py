@@ -1,0 +1,202 @@
+"""Figures. Each function returns a matplotlib Figure and can draw into a given one.
+
+Colours are the Okabe & Ito (2008) colour-blind-safe palette; each instrument keeps its
+colour and marker in every figure (by its order in the data). Axes carry units.
+matplotlib is imported inside the functions so the rest of rvkep starts fast.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+__all__ = [
+    "INSTRUMENT_COLOURS",
+    "INSTRUMENT_MARKERS",
+    "instrument_style",
+    "plot_periodograms",
+    "plot_timeseries",
+    "plot_phase",
+    "plot_corner",
+]
+
+#: Okabe & Ito (2008), "Color Universal Design": blue, vermillion, bluish green,
+#: reddish purple, orange, sky blue, yellow, black.
+INSTRUMENT_COLOURS = (
+    "#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442", "#000000",
+)  # fmt: skip
+INSTRUMENT_MARKERS = ("o", "s", "^", "D", "v", "P", "X", "h")
+MODEL_COLOUR = "#222222"
+BAND_COLOUR = "#999999"
+
+
+def instrument_style(index: int) -> dict:
+    """Colour and marker of the instrument with this index (stable across figures)."""
+    return {
+        "color": INSTRUMENT_COLOURS[index % len(INSTRUMENT_COLOURS)],
+        "marker": INSTRUMENT_MARKERS[index % len(INSTRUMENT_MARKERS)],
+    }
+
+
+def _figure(fig, nrows, height_ratios=None, figsize=(8, 6), sharex=True):
+    import matplotlib.pyplot as plt
+
+    if fig is None:
+        fig = plt.figure(figsize=figsize, layout="constrained")
+    else:
+        fig.clear()
+    axes = fig.subplots(nrows, 1, sharex=sharex, squeeze=False, height_ratios=height_ratios)[:, 0]
+    return fig, axes
+
+
+def plot_periodograms(result, fig=None, activity: bool = True):
+    """Periodogram of the data, of the residuals after each signal, and the window.
+
+    Parameters
+    ----------
+    result : rvkep.search.SearchResult
+    fig : matplotlib Figure, optional
+        Drawn into (cleared first) instead of a new one.
+    activity : bool
+        Add one panel per activity indicator.
+    """
+    pgs = list(result.periodograms)
+    extra = list(result.activity.values()) if activity else []
+    n = len(pgs) + len(extra) + 1
+    fig, axes = _figure(fig, n, figsize=(8, 1.7 * n + 0.6))
+    found = [c for c in result.candidates if c.significant]
+    for k, (ax, pg) in enumerate(zip(axes, pgs + extra, strict=False)):
+        ax.plot(pg.period, pg.power, lw=0.7, color=MODEL_COLOUR)
+        for (fap, level), ls in zip(pg.fap_levels.items(), (":", "--", "-."), strict=True):
+            ax.axhline(level, color=INSTRUMENT_COLOURS[1], lw=0.8, ls=ls, label=f"FAP {fap:g}")
+        if k < len(pgs) and k < len(result.candidates):
+            c = result.candidates[k]
+            ax.plot([c.period], [c.power], "v", color=INSTRUMENT_COLOURS[0], ms=6)
+            tag = f"{c.period:.4g} d, FAP {c.fap:.1e}"
+            ax.annotate(tag, (c.period, c.power), xytext=(4, -2), textcoords="offset points",
+                        fontsize=8, va="top")  # fmt: skip
+        ax.text(0.01, 0.95, pg.label, transform=ax.transAxes, va="top", fontsize=9)
+        ax.set_ylabel("power")
+        ax.set_ylim(0, max(1.05 * float(pg.power.max()), 1.1 * max(pg.fap_levels.values())))
+        for c in found:
+            ax.axvline(c.period, color=INSTRUMENT_COLOURS[2], lw=0.6, alpha=0.6)
+    axes[0].legend(loc="upper right", fontsize=7, frameon=False)
+    ax = axes[-1]
+    ax.plot(1.0 / result.frequency, result.window, lw=0.7, color=INSTRUMENT_COLOURS[4])
+    ax.text(0.01, 0.95, "spectral window", transform=ax.transAxes, va="top", fontsize=9)
+    ax.set_ylabel("window")
+    ax.set_xscale("log")
+    ax.set_xlabel("period [d]")
+    return fig
+
+
+def _time_offset(t):
+    """A round offset to subtract from times for readable axes (e.g. 2459000)."""
+    t0 = float(np.min(t))
+    if t0 > 2_400_000:
+        return 1000.0 * math.floor(t0 / 1000.0)
+    return 0.0
+
+
+def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=None, fig=None):
+    """Velocities per instrument with the model and its posterior band; residuals below.
+
+    Parameters
+    ----------
+    data : RVData
+    curve_t, curve : arrays
+        Model times and velocities (offsets removed).
+    band : (low, high) arrays, optional
+        Posterior band of the model at ``curve_t`` (e.g. 16th and 84th percentiles).
+    residuals : array, optional
+        Data minus model at the data times.
+    offsets : dict, optional
+        Offset per instrument, subtracted from its velocities.
+    """
+    fig, axes = _figure(
+        fig,
+        2 if residuals is not None else 1,
+        height_ratios=[3, 1] if residuals is not None else None,
+        figsize=(9, 5.5),
+    )
+    t0 = _time_offset(data.time)
+    ax = axes[0]
+    if band is not None:
+        ax.fill_between(curve_t - t0, band[0], band[1], color=BAND_COLOUR, alpha=0.4, lw=0,
+                        label="68% posterior band")  # fmt: skip
+    ax.plot(curve_t - t0, curve, color=MODEL_COLOUR, lw=0.8, label="model")
+    for k, name in enumerate(data.instruments):
+        m = data.instrument == name
+        off = offsets.get(name, 0.0) if offsets else 0.0
+        st = instrument_style(k)
+        ax.errorbar(data.time[m] - t0, data.rv[m] - off, data.err[m], ls="none", ms=4,
+                    mec="white", mew=0.4, elinewidth=0.8, label=name, **st)  # fmt: skip
+        if residuals is not None:
+            axes[1].errorbar(data.time[m] - t0, residuals[m], data.err[m], ls="none", ms=4,
+                             mec="white", mew=0.4, elinewidth=0.8, **st)  # fmt: skip
+    ax.set_ylabel("radial velocity [m/s]")
+    ax.legend(fontsize=8, frameon=False, ncol=4, loc="upper left")
+    xlabel = f"time - {t0:.0f} [d]" if t0 else "time [d]"
+    if residuals is not None:
+        axes[1].axhline(0, color=MODEL_COLOUR, lw=0.8)
+        axes[1].set_ylabel("O - C [m/s]")
+        axes[1].set_xlabel(xlabel)
+    else:
+        ax.set_xlabel(xlabel)
+    return fig
+
+
+def plot_phase(data, phase, velocity, curve_phase, curve, label, period, band=None,
+               n_bins: int = 12, fig=None, ax=None):  # fmt: skip
+    """One companion's phase-folded curve, the other signals and offsets removed.
+
+    ``phase`` (in [0, 1), 0 at conjunction) and ``velocity`` are the points;
+    ``curve_phase``/``curve`` the model; binned weighted means are drawn over the
+    points.
+    """
+    import matplotlib.pyplot as plt
+
+    if ax is None:
+        if fig is None:
+            fig = plt.figure(figsize=(6, 4), layout="constrained")
+        ax = fig.add_subplot(1, 1, 1)
+    else:
+        fig = ax.figure
+    if band is not None:
+        ax.fill_between(curve_phase, band[0], band[1], color=BAND_COLOUR, alpha=0.4, lw=0)
+    ax.plot(curve_phase, curve, color=MODEL_COLOUR, lw=1.0)
+    for k, name in enumerate(data.instruments):
+        m = data.instrument == name
+        st = instrument_style(k)
+        ax.errorbar(phase[m], velocity[m], data.err[m], ls="none", ms=3.5, alpha=0.6,
+                    mec="white", mew=0.3, elinewidth=0.6, label=name, **st)  # fmt: skip
+    edges = np.linspace(0, 1, n_bins + 1)
+    w = 1.0 / data.err**2
+    centres, means, errs = [], [], []
+    for lo, hi in zip(edges[:-1], edges[1:], strict=True):
+        m = (phase >= lo) & (phase < hi)
+        if m.sum() >= 2:
+            centres.append(0.5 * (lo + hi))
+            means.append(np.sum(w[m] * velocity[m]) / np.sum(w[m]))
+            errs.append(np.std(velocity[m]) / math.sqrt(m.sum()))
+    ax.errorbar(centres, means, errs, fmt="o", color="black", mfc="white", ms=6, zorder=5,
+                label="binned")  # fmt: skip
+    ax.set_xlim(0, 1)
+    ax.set_xlabel("phase from conjunction")
+    ax.set_ylabel("radial velocity [m/s]")
+    ax.set_title(f"{label}: P = {period:.5g} d", fontsize=10)
+    ax.legend(fontsize=7, frameon=False)
+    return fig
+
+
+def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None, fig=None):
+    """Corner plot (corner) of the named posterior columns."""
+    import corner
+
+    x = np.column_stack([np.asarray(samples[n]) for n in names])
+    return corner.corner(
+        x, labels=labels, truths=truths, fig=fig, quantiles=[0.16, 0.5, 0.84],
+        show_titles=True, title_fmt=".3g", title_kwargs={"fontsize": 8},
+        label_kwargs={"fontsize": 9}, color=INSTRUMENT_COLOURS[0],
+    )  # fmt: skip

@@ -1,0 +1,202 @@
+"""Iterative signal search: periodogram, Keplerian fit, residual periodogram, repeat.
+
+At each step the residuals of the current joint best fit (all companions found so far,
+per-instrument offsets and jitters, trend) are searched with a generalized Lomb-Scargle
+periodogram weighted by err^2 + jitter^2. If the highest peak's Baluev false-alarm
+probability is below the threshold (default 0.1%), the top few peaks are tried as the
+next companion's period in a joint Keplerian best fit (:mod:`rvkep.optimize`), which
+keeps whichever fits best; then the search goes on with the new residuals. It stops at
+the first peak that is not significant, or at ``max_signals``.
+
+Each candidate carries its period, power, FAP, the fitted semi-amplitude, its alias
+candidates (+- one sidereal day, +- one year, flagged where the spectral window allows
+them and the periodogram shows a competing peak), and whether an activity indicator
+(an extra data column) has a significant peak at the same period.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from rvkep.data import RVData
+from rvkep.likelihood import keplerian_velocity
+from rvkep.model import SystemModel
+from rvkep.optimize import FitResult, fit, fit_companions
+from rvkep.periodogram import (
+    AliasCandidate,
+    Periodogram,
+    alias_candidates,
+    frequency_grid,
+    periodogram,
+    spectral_window,
+)
+
+__all__ = ["Candidate", "SearchResult", "search", "residual_velocities"]
+
+
+@dataclass
+class Candidate:
+    """One signal proposed by the search."""
+
+    period: float
+    power: float
+    fap: float
+    K: float | None
+    significant: bool
+    aliases: list[AliasCandidate] = field(default_factory=list)
+    activity: list[str] = field(default_factory=list)  # indicators peaking here
+
+    @property
+    def alias_flags(self) -> str:
+        return ",".join(a.kind for a in self.aliases if a.flagged) or "-"
+
+
+@dataclass
+class SearchResult:
+    """Candidates in the order found, periodograms of the data and of each residual,
+    the spectral window, activity periodograms, and the best fit after each signal."""
+
+    candidates: list[Candidate]
+    periodograms: list[Periodogram]
+    window: np.ndarray
+    frequency: np.ndarray
+    activity: dict[str, Periodogram]
+    fits: list[FitResult]
+    fap_threshold: float
+
+    @property
+    def significant(self) -> list[Candidate]:
+        return [c for c in self.candidates if c.significant]
+
+    @property
+    def best_fit(self) -> FitResult:
+        """The fit with all significant signals."""
+        return self.fits[len(self.significant)]
+
+    def rows(self) -> list[dict]:
+        out = []
+        for i, c in enumerate(self.candidates):
+            out.append(
+                {
+                    "signal": i + 1,
+                    "period_d": c.period,
+                    "power": c.power,
+                    "fap": c.fap,
+                    "K_mps": c.K,
+                    "significant": c.significant,
+                    "aliases": c.alias_flags,
+                    "activity": ",".join(c.activity) or "-",
+                }
+            )
+        return out
+
+    def table(self) -> str:
+        head = (
+            f"{'#':>2} {'period [d]':>12} {'power':>7} {'FAP':>10} {'K [m/s]':>9}"
+            f" {'signif.':>8} {'aliases':>16} {'activity':>10}"
+        )
+        lines = [head]
+        for r in self.rows():
+            K = f"{r['K_mps']:.2f}" if r["K_mps"] is not None else "-"
+            lines.append(
+                f"{r['signal']:>2} {r['period_d']:>12.4f} {r['power']:>7.3f} {r['fap']:>10.2e}"
+                f" {K:>9} {'yes' if r['significant'] else 'no':>8} {r['aliases']:>16}"
+                f" {r['activity']:>10}"
+            )
+        lines.append(
+            f"FAP threshold {self.fap_threshold:g} (Baluev 2008); aliases flagged where the "
+            "window allows them and the periodogram shows a competing peak"
+        )
+        return "\n".join(lines)
+
+    def __str__(self) -> str:
+        return self.table()
+
+
+def residual_velocities(fit_result: FitResult) -> tuple[np.ndarray, np.ndarray]:
+    """Residuals of a fit (offsets and trend removed) and errors with jitter added."""
+    model = fit_result.model
+    p = fit_result.params
+    jit = np.array([p[f"jitter.{i.name}"] for i in model.instruments])
+    dy = np.sqrt(model.err2 + jit[model.inst_index] ** 2)
+    return fit_result.residuals, dy
+
+
+def search(
+    data: RVData,
+    min_period: float | None = None,
+    max_period: float | None = None,
+    fap_threshold: float = 1e-3,
+    max_signals: int = 5,
+    oversampling: float = 10.0,
+    trend: int = 0,
+    base: SystemModel | None = None,
+    n_peaks: int = 3,
+) -> SearchResult:
+    """Find signals one at a time (see the module text).
+
+    Parameters
+    ----------
+    data : RVData
+    min_period, max_period : float, optional
+        Search range in days (default 1.2 d to the baseline).
+    fap_threshold : float
+        Stop at the first peak with a larger false-alarm probability.
+    max_signals : int
+        Most companions to look for.
+    trend : int
+        Trend degree fitted throughout.
+    base : SystemModel, optional
+        Instruments (jitter priors), trend and star to use.
+    n_peaks : int
+        Highest periodogram peaks tried as each new companion's period.
+    """
+    freq = frequency_grid(data.time, min_period, max_period, oversampling)
+    period_range = (1.0 / freq[-1], 1.0 / freq[0])
+    window = spectral_window(data.time, freq)
+    base = base if base is not None else SystemModel(data, [], trend=trend)
+    current = fit(base.with_companions([]))
+    fits = [current]
+    candidates: list[Candidate] = []
+    periodograms: list[Periodogram] = []
+    activity = {
+        name: periodogram(data.time, col, None, data.instrument, freq, label=name)
+        for name, col in data.extra.items()
+        if np.all(np.isfinite(col)) and np.ptp(col) > 0
+    }
+    for _ in range(max_signals + 1):
+        resid, dy = residual_velocities(current)
+        label = "velocities" if not candidates else f"residuals after {len(candidates)} signal(s)"
+        pg = periodogram(data.time, resid, dy, data.instrument, freq, label=label)
+        periodograms.append(pg)
+        period, power, fap = pg.best()
+        significant = fap < fap_threshold and len(candidates) < max_signals
+        cand = Candidate(period, power, fap, None, significant)
+        cand.aliases = alias_candidates(pg, period, data.time)
+        for name, apg in activity.items():
+            p_here = apg.power_at(period)
+            if float(apg.fap(p_here)) < 0.01:
+                cand.activity.append(name)
+        candidates.append(cand)
+        if not significant:
+            break
+        tries = [p for p, _ in pg.peaks(n_peaks)]
+        current = fit_companions(
+            data, [tries], base=base, period_range=period_range, previous=current
+        )
+        fits.append(current)
+        new = current.model.companions[-1].label
+        cand.period = current.params[f"{new}.period"]
+        cand.K = current.params[f"{new}.K"]
+    return SearchResult(candidates, periodograms, window, freq, activity, fits, fap_threshold)
+
+
+def model_curve(fit_result: FitResult, t: np.ndarray) -> np.ndarray:
+    """Keplerian sum of a fit at times ``t`` (data time system), offsets excluded."""
+    model = fit_result.model
+    phys = model.to_physical(fit_result.theta[None, :])
+    shifted = model.with_companions(model.companions)
+    shifted.t = np.asarray(t, float) - model.data.epoch
+    return keplerian_velocity(shifted, phys)[0]
