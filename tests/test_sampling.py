@@ -1,0 +1,254 @@
+"""Posterior sampling: an analytic posterior, exact resume after kills, calibration."""
+
+import math
+import os
+import signal
+import subprocess
+import sys
+import time
+import warnings
+
+import h5py
+import numpy as np
+import pytest
+
+from rvkep.data import RVData
+from rvkep.model import Companion, Instrument, SystemModel
+from rvkep.orbit import radial_velocity
+from rvkep.posterior import PosteriorSamples
+from rvkep.priors import Fixed, LogUniform, Uniform
+from rvkep.sampling import SamplerOptions, UnconvergedWarning, run_sampler
+
+
+def linear_star(seed=0, n=30):
+    """Invented data: two circular companions with known P and tc, so the model is
+    linear in (K_b, K_c) and the offset."""
+    rng = np.random.default_rng(seed)
+    t = np.sort(rng.uniform(0, 100, n))
+    err = rng.uniform(1.0, 2.0, n)
+    # circular orbits, conjunctions at t = 53 and 51 (tp = tc for omega = pi/2)
+    v = radial_velocity(t, 7.0, 53.0, 0.0, np.pi / 2, 4.0)
+    v += radial_velocity(t, 17.0, 51.0, 0.0, np.pi / 2, 2.5)
+    return RVData(t, v + 10.0 + rng.normal(0, err), err, np.full(n, "a"), epoch=50.0)
+
+
+def test_linear_model_matches_analytic_posterior():
+    # with P, tc fixed, e = 0 and jitter 0, v = K_b cos(.) + K_c cos(.) + offset: the
+    # posterior (flat priors) is Gaussian with covariance (X^T W X)^-1
+    # (common practice, no source; Bayesian linear regression)
+    data = linear_star()
+    comps = [
+        Companion("b", Fixed(7.0), Fixed(53.0), Uniform(-50, 50), Fixed(0.0)),
+        Companion("c", Fixed(17.0), Fixed(51.0), Uniform(-50, 50), Fixed(0.0)),
+    ]
+    comps[0].start = {"period": 7.0, "tc": 53.0, "K": 4.0}
+    comps[1].start = {"period": 17.0, "tc": 51.0, "K": 2.5}
+    model = SystemModel(data, comps, [Instrument("a", Fixed(0.0))])
+    # the design: each companion's curve at unit K
+    X = np.column_stack([
+        radial_velocity(data.time, 7.0, 53.0, 0.0, np.pi / 2, 1.0),
+        radial_velocity(data.time, 17.0, 51.0, 0.0, np.pi / 2, 1.0),
+        np.ones(len(data)),
+    ])  # fmt: skip
+    W = np.diag(1 / data.err**2)
+    cov = np.linalg.inv(X.T @ W @ X)
+    mean = cov @ X.T @ W @ data.rv
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        res = run_sampler(
+            model, mean[:2], SamplerOptions(walkers=16, seed=2, progress=False, max_steps=6000)
+        )
+    flat = res.flat
+    sd = np.sqrt(np.diag(cov))[:2]
+    assert np.all(np.abs(flat.mean(0) - mean[:2]) < 0.1 * sd)
+    assert np.allclose(np.cov(flat.T), cov[:2, :2], rtol=0.12, atol=0.05 * sd[0] * sd[1])
+    post = PosteriorSamples.from_chain(model, flat, rng=1)
+    # the offset drawn from its conditional Gaussian recovers its marginal posterior
+    assert post["offset.a"].mean() == pytest.approx(mean[2], abs=0.1 * math.sqrt(cov[2, 2]))
+    assert post["offset.a"].std() == pytest.approx(math.sqrt(cov[2, 2]), rel=0.06)
+
+
+def one_planet(seed=4, n=40):
+    """Invented star, seed given: P = 9.4 d, K = 12 m/s, e = 0.2."""
+    rng = np.random.default_rng(seed)
+    t = np.sort(rng.uniform(2459000, 2459150, n))
+    err = np.full(n, 2.0)
+    v = radial_velocity(t, 9.4, 2459001.0, 0.2, 1.0, 12.0)
+    return RVData(t, v + rng.normal(0, 2.0, n), err, np.full(n, "a"))
+
+
+def planet_model(data):
+    from rvkep.optimize import fit_companions
+
+    return fit_companions(data, [[9.4]])
+
+
+SCRIPT = r"""
+import sys, warnings
+import numpy as np
+sys.path.insert(0, {tests!r})
+from test_sampling import one_planet, planet_model
+from rvkep.sampling import SamplerOptions, run_sampler
+warnings.simplefilter("ignore")
+fit = planet_model(one_planet())
+opts = SamplerOptions(seed=5, max_steps={steps}, check_every=100, tau_factor=1e9,
+                      progress=False, checkpoint={path!r})
+res = run_sampler(fit.model, fit.theta, opts)
+np.save({out!r}, res.chain)
+"""
+
+
+def run_script(tmp_path, path, out, steps, kill_after=None):
+    code = SCRIPT.format(tests=os.path.dirname(__file__), steps=steps, path=str(path), out=str(out))
+    proc = subprocess.Popen([sys.executable, "-c", code], stderr=subprocess.PIPE)
+    if kill_after is None:
+        assert proc.wait(timeout=300) == 0, proc.stderr.read().decode()
+        return
+    deadline = time.time() + 120
+    while time.time() < deadline:  # kill once some, but not all, steps are on disk
+        time.sleep(0.2)
+        if proc.poll() is not None:
+            break
+        if path.exists():
+            try:
+                with h5py.File(path, "r", locking=False) as f:
+                    if f["mcmc"].attrs["iteration"] >= kill_after:
+                        break
+            except (OSError, KeyError):
+                pass
+    proc.send_signal(signal.SIGKILL)
+    proc.wait()
+
+
+def test_resume_after_sigkill_gives_the_same_chain(tmp_path):
+    steps = 1500
+    whole = tmp_path / "whole.h5"
+    run_script(tmp_path, whole, tmp_path / "whole.npy", steps)
+    part = tmp_path / "part.h5"
+    run_script(tmp_path, part, tmp_path / "part.npy", steps, kill_after=300)
+    with h5py.File(part, "r") as f:
+        done = int(f["mcmc"].attrs["iteration"])
+    assert 0 < done < steps
+    run_script(tmp_path, part, tmp_path / "part.npy", steps)  # resumes
+    assert np.array_equal(np.load(tmp_path / "whole.npy"), np.load(tmp_path / "part.npy"))
+
+
+def test_resume_after_keyboard_interrupt(tmp_path, monkeypatch):
+    import rvkep.sampling as sampling
+
+    data = one_planet()
+    fit = planet_model(data)
+    opts = dict(seed=9, max_steps=600, check_every=100, tau_factor=1e9, progress=False)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        whole = run_sampler(
+            fit.model, fit.theta, SamplerOptions(**opts, checkpoint=tmp_path / "a.h5")
+        )
+
+        calls = {"n": 0}
+        real = sampling.LogPosterior
+
+        class Interrupting(real):
+            def __call__(self, theta):
+                calls["n"] += 1
+                if calls["n"] == 500:  # in the middle of a chunk
+                    raise KeyboardInterrupt
+                return super().__call__(theta)
+
+        monkeypatch.setattr(sampling, "LogPosterior", Interrupting)
+        with pytest.raises(KeyboardInterrupt):
+            run_sampler(fit.model, fit.theta, SamplerOptions(**opts, checkpoint=tmp_path / "b.h5"))
+        monkeypatch.setattr(sampling, "LogPosterior", real)
+        with h5py.File(tmp_path / "b.h5", "r") as f:
+            assert 0 < f["mcmc"].attrs["iteration"] < 600
+        resumed = run_sampler(
+            fit.model, fit.theta, SamplerOptions(**opts, checkpoint=tmp_path / "b.h5")
+        )
+    assert np.array_equal(whole.chain, resumed.chain)
+
+
+def test_converges_and_recovers_a_planet():
+    data = one_planet()
+    fit = planet_model(data)
+    res = run_sampler(fit.model, fit.theta, SamplerOptions(seed=3, progress=False))
+    assert res.converged and res.steps > 50 * np.max(res.tau)
+    post = PosteriorSamples.from_chain(fit.model, res.flat, res.flat_log_prob)
+    s = post.summary()
+    for name, truth in (("b.period", 9.4), ("b.K", 12.0), ("b.ecc", 0.2)):
+        med, lo, hi = s[name]["median"], s[name]["minus"], s[name]["plus"]
+        assert med - 3 * lo < truth < med + 3 * hi
+    d = res.diagnostics()
+    assert 0.1 < d["acceptance_mean"] < 0.7 and d["effective_samples"] > 1000
+
+
+def test_unconverged_run_warns_and_flags():
+    data = one_planet()
+    fit = planet_model(data)
+    with pytest.warns(UnconvergedWarning, match="did NOT converge"):
+        res = run_sampler(
+            fit.model, fit.theta, SamplerOptions(seed=3, max_steps=200, progress=False)
+        )
+    assert not res.converged and res.diagnostics()["converged"] is False
+
+
+def test_posterior_exports(tmp_path):
+    data = one_planet()
+    fit = planet_model(data)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        res = run_sampler(
+            fit.model, fit.theta, SamplerOptions(seed=3, max_steps=400, progress=False)
+        )
+    post = PosteriorSamples.from_chain(fit.model, res.flat, res.flat_log_prob)
+    csv = post.to_csv(tmp_path / "s.csv")
+    header = csv.read_text().splitlines()[0].split(",")
+    assert {"b.period", "b.tc", "b.tp", "offset.a", "jitter.a", "log_posterior"} <= set(header)
+    back = PosteriorSamples.read_npz(post.to_npz(tmp_path / "s.npz"))
+    assert np.array_equal(back["b.K"], post["b.K"])
+    assert len(post.thin(4)) == math.ceil(len(post) / 4)
+    assert not list(tmp_path.glob(".*tmp*"))
+
+
+@pytest.mark.slow
+def test_calibration_across_synthetic_datasets():
+    # In the spirit of simulation-based calibration (Talts et al. 2018, Validating
+    # Bayesian inference algorithms with simulation-based calibration): 20 invented
+    # single-planet datasets drawn from the prior (seed 100); the truth must fall in
+    # the central 68% interval at a rate between 0.5 and 0.85.
+    rng = np.random.default_rng(100)
+    inside = total = 0
+    for _ in range(20):
+        P = float(np.exp(rng.uniform(np.log(6.0), np.log(25.0))))
+        tc = float(rng.uniform(-2.5, 2.5))
+        K = float(rng.uniform(4.0, 15.0))
+        e = float(rng.uniform(0.0, 0.5))
+        w = float(rng.uniform(0, 2 * np.pi))
+        jit = float(rng.uniform(0.0, 3.0))
+        t = np.sort(rng.uniform(-100, 100, 40))
+        err = np.full(40, 2.0)
+        from rvkep.orbit import tc_to_tp
+
+        v = radial_velocity(t, P, tc_to_tp(tc, P, e, w), e, w, K) + rng.normal(
+            0, np.hypot(err, jit)
+        )
+        data = RVData(t, v, err, np.full(40, "a"), epoch=0.0)
+        comp = Companion(
+            "b", LogUniform(6.0, 25.0), Uniform(-2.5, 2.5), Uniform(4.0, 15.0), Uniform(0.0, 0.5)
+        )
+        comp.start = {"period": P, "tc": tc, "K": K, "ecc": max(e, 0.01), "omega": w}
+        model = SystemModel(data, [comp], [Instrument("a", Uniform(0.0, 3.0), max(jit, 0.1))])
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UnconvergedWarning)
+            # started at the truth (allowed: a converged chain forgets its start)
+            res = run_sampler(
+                model,
+                model.start_theta(),
+                SamplerOptions(seed=int(rng.integers(1e6)), progress=False, max_steps=8000),
+            )
+        post = PosteriorSamples.from_chain(model, res.flat)
+        for name, truth in (("b.period", P), ("b.K", K), ("b.ecc", e), ("jitter.a", jit)):
+            lo, hi = np.percentile(post[name], [15.87, 84.13])
+            inside += lo <= truth <= hi
+            total += 1
+    rate = inside / total
+    assert 0.5 <= rate <= 0.85, rate
