@@ -9,6 +9,7 @@ subcommands so that ``rvkep --help`` starts fast.
 from __future__ import annotations
 
 import argparse
+import json
 import sys
 from collections.abc import Sequence
 
@@ -146,8 +147,171 @@ def _add_periodogram(sub) -> None:
     p.set_defaults(run=_run_periodogram)
 
 
+def _analyze_options(args: argparse.Namespace, out: str):
+    from rvkep.pipeline import AnalyzeOptions
+
+    return AnalyzeOptions(
+        star_mass=args.star_mass,
+        star_mass_err=args.star_mass_err,
+        kms=getattr(args, "kms", False),
+        planets=args.planets,
+        max_planets=args.max_planets,
+        model_file=getattr(args, "model", None),
+        out=out,
+        seed=args.seed,
+        quiet=args.quiet,
+        quick=args.quick,
+        min_period=args.min_period,
+        max_period=args.max_period,
+        fap=args.fap,
+        trend=args.trend,
+        fig_format=args.format,
+        max_steps=args.max_steps,
+    )
+
+
+def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
+    p.add_argument(
+        "--star-mass",
+        type=float,
+        default=None,
+        metavar="M",
+        help="stellar mass in solar masses (default: the model file, else 1)",
+    )
+    p.add_argument(
+        "--star-mass-err",
+        type=float,
+        default=0.0,
+        metavar="S",
+        help="its 1-sigma error, carried into every derived quantity",
+    )
+    group = p.add_mutually_exclusive_group()
+    group.add_argument(
+        "--planets", type=int, default=None, metavar="N", help="fit exactly N companions"
+    )
+    group.add_argument(
+        "--max-planets",
+        type=int,
+        default=4,
+        metavar="N",
+        help="look for at most N companions (default 4)",
+    )
+    p.add_argument(
+        "--out", default=default_out, metavar="DIR", help=f"output folder (default {default_out})"
+    )
+    p.add_argument("--seed", type=int, default=0, help="random seed (results reproduce)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar or messages")
+    p.add_argument(
+        "--quick",
+        action="store_true",
+        help="short chains for a preview or tests (flagged in every output)",
+    )
+    p.add_argument("--min-period", type=float, default=None, metavar="DAYS")
+    p.add_argument("--max-period", type=float, default=None, metavar="DAYS")
+    p.add_argument("--fap", type=float, default=1e-3, help="false-alarm threshold (0.001)")
+    p.add_argument(
+        "--trend",
+        type=int,
+        default=0,
+        choices=(0, 1, 2),
+        help="polynomial trend degree (default 0; a model file can set it)",
+    )
+    p.add_argument("--format", default="png", choices=("png", "pdf"), help="figure format")
+    p.add_argument("--max-steps", type=int, default=None, help="cap on sampler steps")
+
+
+def _run_analyze(args: argparse.Namespace) -> int:
+    from rvkep.pipeline import analyze
+
+    analyze(args.files, _analyze_options(args, args.out))
+    return 0
+
+
+def _add_analyze(sub) -> None:
+    p = sub.add_parser(
+        "analyze",
+        help="the whole job: search, fit, sample, derive masses; tables and figures",
+        description="Read and validate the data, search for signals, decide the number of "
+        "companions, fit, sample the posterior to convergence, derive minimum masses and "
+        "orbit sizes, and write results.json, summary.md, LaTeX/CSV tables, samples and "
+        "figures.",
+    )
+    p.add_argument("files", nargs="*", metavar="FILE", help="RV tables (or give them in --model)")
+    p.add_argument("--kms", action="store_true", help="velocities and errors are in km/s")
+    p.add_argument("--model", default=None, metavar="MODEL.toml", help="a model file")
+    _add_analysis_args(p, "rvkep_output")
+    p.set_defaults(run=_run_analyze)
+
+
+def _run_demo(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from rvkep.errors import DataError
+    from rvkep.pipeline import analyze
+
+    folder = Path(__file__).resolve().parent.parent / "demo_data"
+    if not (folder / "truth.json").exists():
+        raise DataError(
+            f"{folder}: demo data not found; install rvkep from its source "
+            "folder (pip install -e .)"
+        )
+    files = [str(folder / "kestrel.txt"), str(folder / "osprey.csv")]
+    if args.star_mass is None:
+        truth = json.loads((folder / "truth.json").read_text())
+        args.star_mass = truth["star"]["mass_msun"]
+        args.star_mass_err = truth["star"]["mass_err_msun"]
+    if not args.quiet:
+        print(
+            "demo: the invented star Veyla, seen by two invented spectrographs "
+            "(kestrel, osprey); truth in demo_data/truth.json"
+        )
+    analyze(files, _analyze_options(args, args.out))
+    if not args.quiet:
+        print(f"open {args.out}/summary.md and the figures there")
+    return 0
+
+
+def _add_demo(sub) -> None:
+    p = sub.add_parser(
+        "demo",
+        help="run analyze on the bundled demo star",
+        description="Run the whole job on the bundled invented demo star.",
+    )
+    _add_analysis_args(p, "rvkep-demo")
+    p.set_defaults(run=_run_demo, kms=False)
+
+
+def _run_sample(args: argparse.Namespace) -> int:
+    args.planets, args.max_planets = None, 4
+    args.min_period = args.max_period = None
+    args.fap, args.trend, args.quick = 1e-3, 0, False
+    args.star_mass, args.star_mass_err = None, 0.0
+    from rvkep.pipeline import analyze
+
+    analyze(args.files, _analyze_options(args, args.out))
+    return 0
+
+
+def _add_sample(sub) -> None:
+    p = sub.add_parser(
+        "sample",
+        help="sample the posterior of a hand-written model file",
+        description="Best fit and posterior sampling of the companions a model file "
+        "describes (no search decides their number); same outputs as analyze.",
+    )
+    p.add_argument("model", metavar="MODEL.toml")
+    p.add_argument("files", nargs="*", metavar="DATA", help="RV tables (default: the model's)")
+    p.add_argument("--kms", action="store_true", help="velocities and errors are in km/s")
+    p.add_argument("--out", required=True, metavar="DIR")
+    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--max-steps", type=int, default=None)
+    p.add_argument("--quiet", action="store_true")
+    p.add_argument("--format", default="png", choices=("png", "pdf"))
+    p.set_defaults(run=_run_sample)
+
+
 # each entry adds one subcommand: add(subparsers) -> None, setting defaults(run=...)
-_SUBCOMMANDS: list = [_add_check, _add_periodogram]
+_SUBCOMMANDS: list = [_add_check, _add_periodogram, _add_analyze, _add_demo, _add_sample]
 
 
 def main(argv: Sequence[str] | None = None) -> int:

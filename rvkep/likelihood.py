@@ -63,18 +63,23 @@ class WhiteNoise:
 
 
 def keplerian_velocity(
-    model: SystemModel, phys: dict, rows: np.ndarray | None = None
+    model: SystemModel, phys: dict, rows: np.ndarray | None = None, t: np.ndarray | None = None
 ) -> np.ndarray:
-    """Sum of the companions' Keplerian curves at the data times, (n_rows, n_points)."""
+    """Sum of the companions' Keplerian curves, (n_rows, n_times).
+
+    At the data times by default, or at ``t`` (minus the reference epoch, like
+    ``model.t``).
+    """
     if rows is None:
         rows = np.arange(next(iter(phys.values())).shape[0]) if phys else np.arange(1)
-    out = np.zeros((rows.size, model.t.size))
+    t = model.t if t is None else np.asarray(t, float)
+    out = np.zeros((rows.size, t.size))
     for c in model.companions:
         L = c.label
         P = phys[f"{L}.period"][rows]
         w = phys[f"{L}.omega"][rows]
         out += rv_rows(
-            model.t,
+            t,
             phys[f"{L}.tp"][rows],
             2.0 * np.pi / P,
             phys[f"{L}.ecc"][rows],

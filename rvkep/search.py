@@ -21,7 +21,6 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from rvkep.data import RVData
-from rvkep.likelihood import keplerian_velocity
 from rvkep.model import SystemModel
 from rvkep.optimize import FitResult, fit, fit_companions
 from rvkep.periodogram import (
@@ -191,12 +190,3 @@ def search(
         cand.period = current.params[f"{new}.period"]
         cand.K = current.params[f"{new}.K"]
     return SearchResult(candidates, periodograms, window, freq, activity, fits, fap_threshold)
-
-
-def model_curve(fit_result: FitResult, t: np.ndarray) -> np.ndarray:
-    """Keplerian sum of a fit at times ``t`` (data time system), offsets excluded."""
-    model = fit_result.model
-    phys = model.to_physical(fit_result.theta[None, :])
-    shifted = model.with_companions(model.companions)
-    shifted.t = np.asarray(t, float) - model.data.epoch
-    return keplerian_velocity(shifted, phys)[0]

@@ -1,0 +1,311 @@
+"""The whole job on one star: read, search, choose the number of companions, fit,
+sample, derive, write tables and figures.
+
+How many companions: the iterative search proposes signals while the highest residual
+peak has a Baluev false-alarm probability below the threshold (0.1% by default); a
+proposed companion is kept only if adding it also lowers the BIC of the joint best fit
+by more than 10 ("very strong" evidence on the scale of Kass & Raftery 1995). The BIC
+of every candidate number, including one more than chosen, is reported. A model file
+with companions, or ``planets=N``, fixes the number instead.
+
+References
+----------
+.. [1] Kass, R. E. & Raftery, A. E. (1995), JASA 90, 773.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import time
+import warnings
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from rvkep.data import RVData, UnitWarning, load_rv
+from rvkep.errors import OptionError, RvkepError
+from rvkep.physics import StarProperties
+
+__all__ = ["AnalyzeOptions", "analyze", "BIC_THRESHOLD", "write_figures", "choose_companions"]
+
+BIC_THRESHOLD = 10.0
+
+
+@dataclass
+class AnalyzeOptions:
+    """Options of :func:`analyze` (the command line's options, one for one)."""
+
+    star_mass: float | None = None
+    star_mass_err: float = 0.0
+    kms: bool = False
+    planets: int | None = None
+    max_planets: int = 4
+    model_file: str | Path | None = None
+    out: str | Path = "rvkep_output"
+    seed: int = 0
+    quiet: bool = False
+    quick: bool = False
+    min_period: float | None = None
+    max_period: float | None = None
+    fap: float = 1e-3
+    trend: int = 0
+    fig_format: str = "png"
+    max_steps: int | None = None
+    figures: bool = True
+
+
+def _say(opts: AnalyzeOptions, text: str) -> None:
+    if not opts.quiet:
+        print(text, flush=True)
+
+
+def _fingerprint(data: RVData, names: list[str], opts: AnalyzeOptions, walkers: int) -> str:
+    h = hashlib.sha256()
+    for arr in (data.time, data.rv, data.err):
+        h.update(np.ascontiguousarray(arr).tobytes())
+    h.update("|".join(list(data.instrument) + names).encode())
+    h.update(f"{opts.seed}|{opts.quick}|{opts.max_steps}|{walkers}".encode())
+    return h.hexdigest()
+
+
+def choose_companions(search_result, data, base, period_range, max_planets: int):
+    """Fits with 0 .. N+1 companions and the chosen N (FAP and BIC, see module text).
+
+    Returns (fits, n_chosen, comparison rows).
+    """
+    from rvkep.optimize import fit_companions
+
+    fits = list(search_result.fits)
+    n_fap = len(search_result.significant)
+    # one more than the search accepted, from the best remaining peaks, for the table
+    if n_fap < max_planets:
+        peaks = [p for p, _ in search_result.periodograms[n_fap].peaks(3)]
+        try:
+            extra = fit_companions(
+                data, [peaks], base=base, period_range=period_range, previous=fits[n_fap]
+            )
+            fits = fits[: n_fap + 1] + [extra]
+        except (RvkepError, ValueError, np.linalg.LinAlgError):
+            fits = fits[: n_fap + 1]
+    n = n_fap
+    while n > 0 and fits[n].bic > fits[n - 1].bic - BIC_THRESHOLD:
+        n -= 1
+    rows = []
+    best_bic = min(f.bic for f in fits)
+    for k, f in enumerate(fits):
+        rows.append(
+            {
+                "n_companions": k,
+                "log_likelihood": f.log_likelihood,
+                "bic": f.bic,
+                "delta_bic": f.bic - best_bic,
+                "aic": f.aic,
+                "periods_d": [f.params[f"{c.label}.period"] for c in f.model.companions],
+                "fap_of_last": (
+                    search_result.candidates[k - 1].fap
+                    if 0 < k <= len(search_result.candidates)
+                    else None
+                ),
+                "chosen": k == n,
+            }
+        )
+    return fits, n, rows
+
+
+def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
+    """Run the whole job; returns :class:`rvkep.results.Results` (also written to
+    ``opts.out``). Raises RvkepError subclasses for bad input before writing anything."""
+    from rvkep.model import SystemModel
+    from rvkep.modelfile import read_model_file
+    from rvkep.optimize import fit_companions
+    from rvkep.posterior import PosteriorSamples
+    from rvkep.results import Results
+    from rvkep.sampling import SamplerOptions, UnconvergedWarning, run_sampler
+    from rvkep.search import search
+
+    opts = opts or AnalyzeOptions()
+    t_start = time.perf_counter()
+    if opts.planets is not None and opts.planets < 0:
+        raise OptionError("--planets must be 0 or more")
+    if opts.max_planets < 0:
+        raise OptionError("--max-planets must be 0 or more")
+    if opts.fig_format not in ("png", "pdf"):
+        raise OptionError(f"figure format must be png or pdf, got {opts.fig_format!r}")
+    spec = read_model_file(opts.model_file) if opts.model_file else None
+    files = list(files or (spec.files if spec else []))
+    if not files:
+        raise OptionError("no data files given (on the command line or in the model file)")
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", UnitWarning)
+        data = load_rv(files, kms=opts.kms or (spec.kms if spec else False))
+    for w in caught:
+        if issubclass(w.category, UnitWarning):
+            _say(opts, f"warning: {w.message}")
+    star = spec.star if spec and spec.star else None
+    if opts.star_mass is not None:
+        if not opts.star_mass > 0 or opts.star_mass_err < 0:
+            raise OptionError("--star-mass must be positive and --star-mass-err not negative")
+        star = StarProperties(opts.star_mass, opts.star_mass_err,
+                              star.radius if star else None, star.radius_err if star else 0.0,
+                              star.teff if star else None, star.teff_err if star else 0.0)  # fmt: skip
+    out = Path(opts.out)
+    _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
+               f"{', '.join(data.instruments)}")  # fmt: skip
+    base = spec.base_model(data) if spec else SystemModel(data, [], trend=opts.trend)
+    search_result = None
+    comparison: list[dict] = []
+    try:
+        search_result = search(
+            data, opts.min_period, opts.max_period, opts.fap,
+            max_signals=opts.planets if opts.planets is not None else opts.max_planets,
+            trend=base.trend, base=base,
+        )  # fmt: skip
+    except ValueError as exc:
+        raise OptionError(str(exc)) from None
+    period_range = (1.0 / search_result.frequency[-1], 1.0 / search_result.frequency[0])
+    if spec and spec.companions:
+        fit = fit_companions(data, [[c.start["period"]] for c in spec.companions], base=base,
+                             specs=spec.companions, period_range=period_range)  # fmt: skip
+        _say(opts, f"model file: {len(spec.companions)} companion(s)")
+    elif opts.planets is not None:
+        fits = list(search_result.fits)
+        from rvkep.periodogram import periodogram
+        from rvkep.search import residual_velocities
+
+        while len(fits) <= opts.planets:  # the search stopped early: add the best peaks
+            resid, dy = residual_velocities(fits[-1])
+            pg = periodogram(data.time, resid, dy, data.instrument, search_result.frequency)
+            fits.append(fit_companions(data, [[p for p, _ in pg.peaks(3)]], base=base,
+                                       period_range=period_range, previous=fits[-1]))  # fmt: skip
+        fit = fits[opts.planets]
+        comparison = [{"n_companions": k, "log_likelihood": f.log_likelihood, "bic": f.bic,
+                       "delta_bic": f.bic - min(g.bic for g in fits), "aic": f.aic,
+                       "periods_d": [f.params[f"{c.label}.period"] for c in f.model.companions],
+                       "fap_of_last": None, "chosen": k == opts.planets}
+                      for k, f in enumerate(fits)]  # fmt: skip
+        _say(opts, f"{opts.planets} companion(s) fitted as asked (--planets)")
+    else:
+        fits, n, comparison = choose_companions(
+            search_result, data, base, period_range, opts.max_planets
+        )
+        fit = fits[n]
+        _say(opts, f"search: {len(search_result.significant)} significant signal(s); "
+                   f"{n} companion(s) kept after the BIC comparison")  # fmt: skip
+    # sampling, resumable through a checkpoint in the output folder
+    walkers = max(32, 4 * fit.model.ndim)
+    walkers += walkers % 2
+    max_steps = opts.max_steps or (3000 if opts.quick else 40000)
+    out.mkdir(parents=True, exist_ok=True)
+    chain_path = out / "chain.h5"
+    stamp_path = out / "chain.json"
+    stamp = _fingerprint(data, fit.model.names, opts, walkers)
+    if chain_path.exists():
+        old = json.loads(stamp_path.read_text()) if stamp_path.exists() else {}
+        if old.get("fingerprint") != stamp:
+            chain_path.unlink()
+    from rvkep.outputs import write_text
+
+    write_text(stamp_path, json.dumps({"fingerprint": stamp}) + "\n")
+    if fit.model.ndim == 0:
+        raise RvkepError("nothing to sample: every parameter is fixed")
+    _say(opts, f"sampling {fit.model.ndim} parameters with {walkers} walkers"
+               + (" (QUICK MODE: short chains, preview only)" if opts.quick else ""))  # fmt: skip
+    sopts = SamplerOptions(walkers=walkers, max_steps=max_steps, seed=opts.seed,
+                           progress=None if not opts.quiet else False, checkpoint=chain_path,
+                           check_every=250 if opts.quick else 500)  # fmt: skip
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", UnconvergedWarning)
+        sampling = run_sampler(fit.model, fit.theta, sopts)
+    for w in caught:
+        if issubclass(w.category, UnconvergedWarning):
+            _say(opts, f"WARNING: {w.message}")
+    posterior = PosteriorSamples.from_chain(
+        fit.model, sampling.flat, sampling.flat_log_prob, rng=opts.seed
+    )
+    results = Results.build(
+        data, fit, sampling, posterior, star, rng=opts.seed + 1, search=search_result,
+        comparison=comparison, quick=opts.quick, seed=opts.seed,
+    )  # fmt: skip
+    if opts.quick:
+        results.notes.append("quick mode: short chains for a preview, not for publication")
+    paths = results.write(out)
+    if opts.figures:
+        write_figures(results, out, opts.fig_format)
+    elapsed = time.perf_counter() - t_start
+    _say(opts, str(results))
+    _say(opts, f"done in {elapsed:.1f} s; results in {out}/ ({paths['json'].name}, "
+               f"{paths['summary'].name}, {paths['latex'].name}, figures)")  # fmt: skip
+    return results
+
+
+def _trend_curve(params: dict, t: np.ndarray, epoch: float) -> np.ndarray:
+    x = (np.asarray(t, float) - epoch) / 365.25
+    return params.get("trend.slope", 0.0) * x + params.get("trend.curvature", 0.0) * x * x
+
+
+def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
+    """The time series, phase curves, periodograms and corner plots of a result."""
+    from rvkep.likelihood import keplerian_velocity
+    from rvkep.outputs import save_figure
+    from rvkep.plots import plot_corner, plot_periodograms, plot_phase, plot_timeseries
+
+    out = Path(out)
+    data = results.data
+    fit = results.fit
+    model = fit.model
+    p = fit.params
+    epoch = data.epoch
+    written = []
+    offsets = {i.name: p[f"offset.{i.name}"] for i in model.instruments}
+    off = np.array([offsets[n] for n in data.instrument]) + _trend_curve(p, data.time, epoch)
+    span = data.time[-1] - data.time[0]
+    ct = np.linspace(data.time[0] - 0.03 * span, data.time[-1] + 0.03 * span, 3000)
+    best_phys = model.to_physical(fit.theta[None, :])
+    curve = keplerian_velocity(model, best_phys, t=ct - epoch)[0]
+    theta = getattr(results.posterior, "theta", None)
+    band = None
+    if theta is not None and model.companions:
+        rng = np.random.default_rng(0)
+        idx = rng.choice(len(theta), size=min(300, len(theta)), replace=False)
+        phys = model.to_physical(theta[idx])
+        curves = keplerian_velocity(model, phys, t=ct - epoch)
+        band = np.percentile(curves, [15.87, 84.13], axis=0)
+    shown = RVData(data.time, data.rv - off + np.array([offsets[n] for n in data.instrument]),
+                   data.err, data.instrument, epoch=epoch)  # fmt: skip
+    fig = plot_timeseries(shown, ct, curve, band, fit.residuals, offsets)
+    written.append(save_figure(fig, out / f"timeseries.{fmt}"))
+    kep_all = keplerian_velocity(model, best_phys)[0]
+    for c in model.companions:
+        L = c.label
+        single = model.with_companions([c])
+        own = keplerian_velocity(single, {k: v for k, v in best_phys.items()})[0]
+        velocity = data.rv - off - (kep_all - own)
+        P, tc = p[f"{L}.period"], p[f"{L}.tc"]
+        phase = np.mod((data.time - tc) / P, 1.0)
+        grid = np.linspace(0, 1, 400)
+        curve_p = keplerian_velocity(single, best_phys, t=tc - epoch + grid * P)[0]
+        band_p = None
+        if theta is not None:
+            sub = {k: v for k, v in model.to_physical(theta[idx]).items()}
+            # each sample's own phase grid, anchored at its own tc
+            tcs = sub[f"{L}.tc"]
+            curves = np.array([
+                keplerian_velocity(single, {k: v[j : j + 1] for k, v in sub.items()},
+                                   t=tcs[j] + grid * sub[f"{L}.period"][j])[0]
+                for j in range(len(tcs))
+            ])  # fmt: skip
+            band_p = np.percentile(curves, [15.87, 84.13], axis=0)
+        fig = plot_phase(data, phase, velocity, grid, curve_p, f"companion {L}", P, band_p)
+        written.append(save_figure(fig, out / f"phase_{L}.{fmt}"))
+        post = results.posterior
+        names = [f"{L}.period", f"{L}.K", f"{L}.ecc", f"{L}.omega_deg", f"{L}.msini_mjup"]
+        names = [n for n in names if n in post]
+        labels = ["P [d]", "K [m/s]", "e", "omega [deg]", "m sin i [M_Jup]"][: len(names)]
+        fig = plot_corner(post.columns, names, labels)
+        fig.suptitle(f"companion {L}", fontsize=11)
+        written.append(save_figure(fig, out / f"corner_{L}.{fmt}"))
+    if results.search is not None:
+        written.append(save_figure(plot_periodograms(results.search), out / f"periodogram.{fmt}"))
+    return written

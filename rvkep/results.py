@@ -1,0 +1,457 @@
+"""The results of an analysis: posterior summaries, derived physics, tables, JSON.
+
+:class:`Results` gathers the search, the best fit, the sampler diagnostics and the
+posterior samples (which it keeps, so predictions can be drawn later), adds the derived
+quantities per sample (minimum mass, semi-major axis, periastron and apastron, with
+the stellar mass drawn per sample), and writes:
+
+* ``results.json``: every estimate as ``{"median", "minus", "plus"}`` from the 16th,
+  50th and 84th percentiles (``minus``/``plus`` positive);
+* ``summary.md``: a readable Markdown report;
+* ``parameters.tex``: a LaTeX table (two significant digits on the uncertainty, the
+  value rounded to match, asymmetric errors as superscript/subscript);
+* ``parameters.csv``: one row per parameter (median, minus, plus, unit);
+* ``samples.csv`` and ``samples.npz``: the posterior samples.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from rvkep import __version__
+from rvkep.physics import StarProperties, derive_companion, draw_positive
+from rvkep.posterior import PosteriorSamples, circular_percentiles, percentiles
+
+__all__ = ["Results", "format_uncertain", "latex_value"]
+
+_PLANET_COLUMNS = [
+    # (results.json key, posterior column, unit, LaTeX symbol)
+    ("period_d", "period", "d", r"$P$"),
+    ("K_mps", "K", "m s$^{-1}$", r"$K$"),
+    ("ecc", "ecc", "", r"$e$"),
+    ("omega_deg", "omega_deg", "deg", r"$\omega_\star$"),
+    ("tp_bjd", "tp", "d", r"$t_\mathrm{p}$"),
+    ("tc_bjd", "tc", "d", r"$t_\mathrm{c}$"),
+    ("msini_mjup", "msini_mjup", "M$_\\mathrm{J}$", r"$m \sin i$"),
+    ("msini_mearth", "msini_mearth", "M$_\\oplus$", r"$m \sin i$"),
+    ("a_au", "a_au", "au", r"$a$"),
+    ("periastron_au", "periastron_au", "au", r"$r_\mathrm{peri}$"),
+    ("apastron_au", "apastron_au", "au", r"$r_\mathrm{apo}$"),
+    ("mass_function_msun", "mass_function_msun", "M$_\\odot$", r"$f(m)$"),
+    ("transit_probability", "transit_probability", "", r"$p_\mathrm{tr}$"),
+    ("teq_k", "teq_k", "K", r"$T_\mathrm{eq}$"),
+    ("insolation_earth", "insolation_earth", "S$_\\oplus$", r"$S$"),
+]
+
+
+def _sig_round(x: float, sig: int = 2) -> int:
+    """Decimal place (as for round()) that keeps ``sig`` significant digits of x."""
+    if not np.isfinite(x) or x == 0:
+        return 2
+    return sig - 1 - int(math.floor(math.log10(abs(x))))
+
+
+def format_uncertain(value: float, minus: float, plus: float) -> tuple[str, str, str]:
+    """Value and errors rounded by the usual convention: two significant digits on the
+    smaller uncertainty, the value and the other error to the same decimal place
+    (common practice, no source)."""
+    err = min(e for e in (minus, plus) if e > 0) if (minus > 0 or plus > 0) else 0.0
+    places = _sig_round(err) if err > 0 else _sig_round(value, 6)
+
+    def fmt(x):
+        if places > 0:
+            return f"{x:.{places}f}"
+        return f"{round(x, places):.0f}"
+
+    return fmt(value), fmt(minus), fmt(plus)
+
+
+def latex_value(value: float, minus: float, plus: float) -> str:
+    """``$v^{+p}_{-m}$`` or ``$v \\pm e$`` when both round to the same."""
+    v, m, p = format_uncertain(value, minus, plus)
+    if m == p:
+        return rf"${v} \pm {m}$"
+    return rf"${v}^{{+{p}}}_{{-{m}}}$"
+
+
+@dataclass
+class Results:
+    """Everything an analysis produced (see the module text)."""
+
+    data: object
+    posterior: PosteriorSamples
+    fit: object
+    sampling: object | None = None
+    search: object | None = None
+    star: StarProperties | None = None
+    star_assumed: bool = False
+    comparison: list[dict] = field(default_factory=list)
+    quick: bool = False
+    seed: int | None = None
+    notes: list[str] = field(default_factory=list)
+
+    # -- building -------------------------------------------------------------
+
+    @classmethod
+    def build(cls, data, fit, sampling, posterior, star=None, rng=0, **kwargs) -> Results:
+        """Add derived columns (one stellar-mass draw per sample, shared by all
+        companions) and return the results."""
+        rng = np.random.default_rng(rng)
+        assumed = star is None
+        star = star or StarProperties(1.0, 0.0)
+        n = len(posterior)
+        star_mass = draw_positive(star.mass, star.mass_err, n, rng)
+        for c in fit.model.companions:
+            L = c.label
+            derived = derive_companion(
+                posterior[f"{L}.period"], posterior[f"{L}.K"], posterior[f"{L}.ecc"],
+                np.radians(posterior[f"{L}.omega_deg"]), star, rng=rng, star_mass=star_mass,
+            )  # fmt: skip
+            for key, values in derived.items():
+                if key != "star_mass_msun":
+                    posterior.add(f"{L}.{key}", values)
+        if fit.model.companions:
+            posterior.add("star.mass_msun", star_mass)
+        out = cls(data, posterior, fit, sampling, star=star, star_assumed=assumed, **kwargs)
+        if assumed:
+            out.notes.append("star mass not given: 1 M_sun assumed for masses and orbit sizes")
+        return out
+
+    @property
+    def labels(self) -> list[str]:
+        return [c.label for c in self.fit.model.companions]
+
+    # -- summaries ------------------------------------------------------------
+
+    def estimate(self, column: str) -> dict[str, float]:
+        if column.endswith("omega_deg"):
+            return circular_percentiles(self.posterior[column])
+        return percentiles(self.posterior[column])
+
+    def to_dict(self) -> dict:
+        """The content of results.json."""
+        planets = []
+        for L in self.labels:
+            entry = {"label": L}
+            for key, col, _, _ in _PLANET_COLUMNS:
+                if f"{L}.{col}" in self.posterior:
+                    entry[key] = self.estimate(f"{L}.{col}")
+            planets.append(entry)
+        instruments = []
+        model = self.fit.model
+        for k, inst in enumerate(model.instruments):
+            m = model.inst_index == k
+            instruments.append(
+                {
+                    "name": inst.name,
+                    "n_points": int(m.sum()),
+                    "offset_mps": self.estimate(f"offset.{inst.name}"),
+                    "jitter_mps": self.estimate(f"jitter.{inst.name}"),
+                    "rms_residual_mps": self.fit.rms[inst.name],
+                    "median_error_mps": float(np.median(self.data.err[m])),
+                }
+            )
+        trend = {"degree": model.trend}
+        if model.trend >= 1:
+            trend["slope_mps_per_yr"] = self.estimate("trend.slope")
+        else:
+            trend["slope_mps_per_yr"] = {"median": 0.0, "minus": 0.0, "plus": 0.0}
+            trend["note"] = "no trend fitted (degree 0)"
+        if model.trend >= 2:
+            trend["curvature_mps_per_yr2"] = self.estimate("trend.curvature")
+        search = []
+        if self.search is not None:
+            for c in self.search.candidates:
+                search.append(
+                    {
+                        "period_d": float(c.period),
+                        "power": float(c.power),
+                        "fap": float(c.fap),
+                        "significant": bool(c.significant),
+                        "K_mps": None if c.K is None else float(c.K),
+                        "aliases_flagged": [a.kind for a in c.aliases if a.flagged],
+                        "alias_periods_d": {a.kind: float(a.period) for a in c.aliases},
+                        "activity": list(c.activity),
+                    }
+                )
+        sampler = self.sampling.diagnostics() if self.sampling is not None else {}
+        sampler = {
+            "walkers": sampler.get("walkers", 0),
+            "steps": sampler.get("steps", 0),
+            "autocorr_steps": sampler.get("autocorr_steps", 0.0),
+            "converged": sampler.get("converged", False),
+            **{
+                k: v
+                for k, v in sampler.items()
+                if k not in ("walkers", "steps", "autocorr_steps", "converged")
+            },
+            "quick_mode": self.quick,
+        }
+        star = self.star
+        return {
+            "rvkep_version": __version__,
+            "n_planets": len(self.labels),
+            "planets": planets,
+            "instruments": instruments,
+            "trend": trend,
+            "search": search,
+            "sampler": sampler,
+            "star": {
+                "mass_msun": star.mass,
+                "mass_err_msun": star.mass_err,
+                "radius_rsun": star.radius,
+                "teff_k": star.teff,
+                "assumed": self.star_assumed,
+            },
+            "best_fit": {
+                "log_likelihood": self.fit.log_likelihood,
+                "chi2": self.fit.chi2,
+                "bic": self.fit.bic,
+                "aic": self.fit.aic,
+                "n_points": self.fit.n_points,
+                "n_free_parameters": self.fit.n_free,
+                "parameters": self.fit.params,
+            },
+            "model_comparison": self.comparison,
+            "priors": [{"parameter": p, "prior": d} for p, d in model.describe_priors()],
+            "reference_epoch": self.data.epoch,
+            "seed": self.seed,
+            "notes": list(self.notes),
+        }
+
+    def parameter_rows(self) -> list[tuple[str, str, dict[str, float], str]]:
+        """(group, name, estimate, unit) for the tables."""
+        rows = []
+        for L in self.labels:
+            for _, col, unit, sym in _PLANET_COLUMNS:
+                if f"{L}.{col}" in self.posterior:
+                    rows.append((L, sym, self.estimate(f"{L}.{col}"), unit))
+        for inst in self.fit.model.instruments:
+            rows.append(
+                (
+                    inst.name,
+                    r"$\gamma$ (offset)",
+                    self.estimate(f"offset.{inst.name}"),
+                    "m s$^{-1}$",
+                )
+            )
+            rows.append(
+                (
+                    inst.name,
+                    r"$\sigma_\mathrm{jit}$",
+                    self.estimate(f"jitter.{inst.name}"),
+                    "m s$^{-1}$",
+                )
+            )
+        if self.fit.model.trend >= 1:
+            rows.append(
+                ("trend", r"$\dot\gamma$", self.estimate("trend.slope"), "m s$^{-1}$ yr$^{-1}$")
+            )
+        if self.fit.model.trend >= 2:
+            rows.append(
+                (
+                    "trend",
+                    r"$\ddot\gamma$",
+                    self.estimate("trend.curvature"),
+                    "m s$^{-1}$ yr$^{-2}$",
+                )
+            )
+        return rows
+
+    def latex_table(self) -> str:
+        lines = [
+            r"\begin{table}",
+            r"\centering",
+            r"\caption{Orbital and derived parameters (posterior median and 68\% interval).}",
+            r"\begin{tabular}{llll}",
+            r"\hline",
+            r"Object & Parameter & Value & Unit \\",
+            r"\hline",
+        ]
+        for group, sym, est, unit in self.parameter_rows():
+            lines.append(
+                f"{group} & {sym} & {latex_value(est['median'], est['minus'], est['plus'])} & {unit} \\\\"
+            )
+        lines += [r"\hline", r"\end{tabular}", r"\end{table}"]
+        return "\n".join(lines) + "\n"
+
+    def csv_table(self) -> str:
+        out = ["object,parameter,median,minus,plus,unit"]
+        for L in self.labels:
+            for key, col, unit, _ in _PLANET_COLUMNS:
+                if f"{L}.{col}" in self.posterior:
+                    e = self.estimate(f"{L}.{col}")
+                    out.append(
+                        f"{L},{key},{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},{_plain(unit)}"
+                    )
+        for inst in self.fit.model.instruments:
+            for key, col in (("offset_mps", "offset"), ("jitter_mps", "jitter")):
+                e = self.estimate(f"{col}.{inst.name}")
+                out.append(
+                    f"{inst.name},{key},{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},m/s"
+                )
+        if self.fit.model.trend >= 1:
+            e = self.estimate("trend.slope")
+            out.append(
+                f"trend,slope_mps_per_yr,{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},m/s/yr"
+            )
+        return "\n".join(out) + "\n"
+
+    def markdown(self) -> str:
+        d = self.to_dict()
+        s = d["sampler"]
+        lines = [f"# rvkep results: {d['n_planets']} companion(s)", ""]
+        if self.quick:
+            lines += ["**Quick mode: short chains for a preview; not for publication.**", ""]
+        if not s["converged"]:
+            lines += [
+                "**WARNING: the chain did not converge; the numbers below are preliminary.**",
+                "",
+            ]
+        for note in self.notes:
+            lines.append(f"*Note: {note}.*")
+        if self.notes:
+            lines.append("")
+        star = d["star"]
+        lines.append(f"Star mass {star['mass_msun']:g} +- {star['mass_err_msun']:g} M_sun"
+                     + (" (assumed)" if star["assumed"] else "") + f"; {len(self.data)} velocities"
+                     f" from {len(d['instruments'])} instrument(s); reference epoch {self.data.epoch:.1f}.")  # fmt: skip
+        lines.append("")
+        if d["planets"]:
+            lines += ["## Companions", "",
+                      "| | P [d] | K [m/s] | e | omega [deg] | tc | m sin i [M_Jup] | m sin i [M_Earth] | a [au] |",
+                      "|---|---|---|---|---|---|---|---|---|"]  # fmt: skip
+            for p in d["planets"]:
+                cells = [_md(p[k]) for k in ("period_d", "K_mps", "ecc", "omega_deg", "tc_bjd",
+                                               "msini_mjup", "msini_mearth", "a_au")]  # fmt: skip
+                lines.append(f"| {p['label']} | " + " | ".join(cells) + " |")
+            lines.append("")
+        else:
+            lines += ["No significant companion.", ""]
+        lines += [
+            "## Instruments",
+            "",
+            "| instrument | points | offset [m/s] | jitter [m/s] | rms of residuals [m/s] |",
+            "|---|---|---|---|---|",
+        ]
+        for i in d["instruments"]:
+            lines.append(
+                f"| {i['name']} | {i['n_points']} | {_md(i['offset_mps'])} | {_md(i['jitter_mps'])} | {i['rms_residual_mps']:.2f} |"
+            )
+        lines.append("")
+        if d["trend"]["degree"]:
+            lines += [f"Trend: {_md(d['trend']['slope_mps_per_yr'])} m/s/yr", ""]
+        if d["search"]:
+            lines += [
+                "## Signal search",
+                "",
+                "| # | period [d] | power | FAP | significant | aliases flagged | activity |",
+                "|---|---|---|---|---|---|---|",
+            ]
+            for k, c in enumerate(d["search"], 1):
+                lines.append(
+                    f"| {k} | {c['period_d']:.5g} | {c['power']:.3f} | {c['fap']:.2e} | {'yes' if c['significant'] else 'no'} | {', '.join(c['aliases_flagged']) or '-'} | {', '.join(c['activity']) or '-'} |"
+                )
+            lines.append("")
+        if d["model_comparison"]:
+            lines += [
+                "## Number of companions",
+                "",
+                "| companions | ln L | BIC | delta BIC | chosen |",
+                "|---|---|---|---|---|",
+            ]
+            for row in d["model_comparison"]:
+                lines.append(
+                    f"| {row['n_companions']} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
+                )
+            lines.append("")
+        lines += [
+            "## Sampler", "",
+            f"{s['walkers']} walkers, {s['steps']} steps, autocorrelation time {s['autocorr_steps']:.1f} steps, "
+            f"converged: {'yes' if s['converged'] else 'NO'}"
+            + (f", acceptance {s['acceptance_mean']:.2f}, {s['effective_samples']:.0f} effective samples, {s['seconds']:.1f} s" if "acceptance_mean" in s else ""),
+            "",
+            "## Priors", "", "| parameter | prior |", "|---|---|",
+        ]  # fmt: skip
+        lines += [f"| {p['parameter']} | {p['prior']} |" for p in d["priors"]]
+        return "\n".join(lines) + "\n"
+
+    def _repr_markdown_(self) -> str:
+        return self.markdown()
+
+    def __str__(self) -> str:
+        d = self.to_dict()
+        lines = [
+            f"{d['n_planets']} companion(s)"
+            + ("  [QUICK MODE: preview only]" if self.quick else "")
+        ]
+        for p in d["planets"]:
+            lines.append(
+                f"  {p['label']}: P = {_txt(p['period_d'])} d, K = {_txt(p['K_mps'])} m/s, "
+                f"e = {_txt(p['ecc'])}, m sin i = {_txt(p['msini_mjup'])} M_Jup "
+                f"({_txt(p['msini_mearth'])} M_Earth), a = {_txt(p['a_au'])} au"
+            )
+        for i in d["instruments"]:
+            lines.append(
+                f"  {i['name']}: offset = {_txt(i['offset_mps'])} m/s, jitter = {_txt(i['jitter_mps'])} m/s"
+            )
+        if not d["sampler"]["converged"]:
+            lines.append("  WARNING: the chain did not converge; results are preliminary")
+        return "\n".join(lines)
+
+    __repr__ = __str__
+
+    # -- writing --------------------------------------------------------------
+
+    def write(self, out: str | Path) -> dict[str, Path]:
+        """Write results.json, summary.md, parameters.tex/.csv and the samples."""
+        from rvkep.outputs import write_text
+
+        out = Path(out)
+        out.mkdir(parents=True, exist_ok=True)
+        paths = {
+            "summary": write_text(out / "summary.md", self.markdown()),
+            "latex": write_text(out / "parameters.tex", self.latex_table()),
+            "csv": write_text(out / "parameters.csv", self.csv_table()),
+            "samples_csv": self.posterior.to_csv(out / "samples.csv"),
+            "samples_npz": self.posterior.to_npz(out / "samples.npz"),
+        }
+        # results.json last: its presence marks a complete result folder
+        paths["json"] = write_text(
+            out / "results.json", json.dumps(_clean(self.to_dict()), indent=2) + "\n"
+        )
+        return paths
+
+
+def _plain(unit: str) -> str:
+    return (unit.replace("$", "").replace("^{-1}", "^-1").replace("\\mathrm{J}", "Jup")
+            .replace("_\\oplus", "_Earth").replace("_\\odot", "_Sun").replace(" s^-1", "/s")
+            .replace("m s^-1", "m/s"))  # fmt: skip
+
+
+def _md(e: dict) -> str:
+    v, m, p = format_uncertain(e["median"], e["minus"], e["plus"])
+    return f"{v} +- {m}" if m == p else f"{v} +{p} -{m}"
+
+
+_txt = _md
+
+
+def _clean(x):
+    """JSON-safe copy: numpy scalars to floats, NaN/inf to None."""
+    if isinstance(x, dict):
+        return {str(k): _clean(v) for k, v in x.items()}
+    if isinstance(x, (list, tuple)):
+        return [_clean(v) for v in x]
+    if isinstance(x, (np.floating, float)):
+        return float(x) if np.isfinite(x) else None
+    if isinstance(x, np.integer):
+        return int(x)
+    if isinstance(x, np.bool_):
+        return bool(x)
+    return x
