@@ -147,9 +147,10 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     if opts.star_mass is not None:
         if not opts.star_mass > 0 or opts.star_mass_err < 0:
             raise OptionError("--star-mass must be positive and --star-mass-err not negative")
-        star = StarProperties(opts.star_mass, opts.star_mass_err,
-                              star.radius if star else None, star.radius_err if star else 0.0,
-                              star.teff if star else None, star.teff_err if star else 0.0)  # fmt: skip
+        from dataclasses import replace
+
+        given = {"mass": opts.star_mass, "mass_err": opts.star_mass_err}
+        star = replace(star, **given) if star else StarProperties(**given)
     out = Path(opts.out)
     _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                f"{', '.join(data.instruments)}")  # fmt: skip

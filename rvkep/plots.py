@@ -194,9 +194,15 @@ def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None,
     """Corner plot (corner) of the named posterior columns."""
     import corner
 
+    from rvkep.formatting import text_value
+
     x = np.column_stack([np.asarray(samples[n]) for n in names])
-    return corner.corner(
+    fig = corner.corner(
         x, labels=labels, truths=truths, fig=fig, quantiles=[0.16, 0.5, 0.84],
-        show_titles=True, title_fmt=".3g", title_kwargs={"fontsize": 8},
         label_kwargs={"fontsize": 9}, color=INSTRUMENT_COLOURS[0],
     )  # fmt: skip
+    axes = np.array(fig.axes).reshape(len(names), len(names))
+    for i, label in enumerate(labels):  # titles rounded to the uncertainty
+        lo, med, hi = np.percentile(x[:, i], [15.87, 50.0, 84.13])
+        axes[i, i].set_title(f"{label} = {text_value(med, med - lo, hi - med)}", fontsize=8)
+    return fig

@@ -17,13 +17,13 @@ the stellar mass drawn per sample), and writes:
 from __future__ import annotations
 
 import json
-import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 
 from rvkep import __version__
+from rvkep.formatting import format_uncertain, latex_value, text_value
 from rvkep.physics import StarProperties, derive_companion, draw_positive
 from rvkep.posterior import PosteriorSamples, circular_percentiles, percentiles
 
@@ -47,36 +47,6 @@ _PLANET_COLUMNS = [
     ("teq_k", "teq_k", "K", r"$T_\mathrm{eq}$"),
     ("insolation_earth", "insolation_earth", "S$_\\oplus$", r"$S$"),
 ]
-
-
-def _sig_round(x: float, sig: int = 2) -> int:
-    """Decimal place (as for round()) that keeps ``sig`` significant digits of x."""
-    if not np.isfinite(x) or x == 0:
-        return 2
-    return sig - 1 - int(math.floor(math.log10(abs(x))))
-
-
-def format_uncertain(value: float, minus: float, plus: float) -> tuple[str, str, str]:
-    """Value and errors rounded by the usual convention: two significant digits on the
-    smaller uncertainty, the value and the other error to the same decimal place
-    (common practice, no source)."""
-    err = min(e for e in (minus, plus) if e > 0) if (minus > 0 or plus > 0) else 0.0
-    places = _sig_round(err) if err > 0 else _sig_round(value, 6)
-
-    def fmt(x):
-        if places > 0:
-            return f"{x:.{places}f}"
-        return f"{round(x, places):.0f}"
-
-    return fmt(value), fmt(minus), fmt(plus)
-
-
-def latex_value(value: float, minus: float, plus: float) -> str:
-    """``$v^{+p}_{-m}$`` or ``$v \\pm e$`` when both round to the same."""
-    v, m, p = format_uncertain(value, minus, plus)
-    if m == p:
-        return rf"${v} \pm {m}$"
-    return rf"${v}^{{+{p}}}_{{-{m}}}$"
 
 
 @dataclass
@@ -435,8 +405,7 @@ def _plain(unit: str) -> str:
 
 
 def _md(e: dict) -> str:
-    v, m, p = format_uncertain(e["median"], e["minus"], e["plus"])
-    return f"{v} +- {m}" if m == p else f"{v} +{p} -{m}"
+    return text_value(e["median"], e["minus"], e["plus"])
 
 
 _txt = _md
