@@ -310,8 +310,55 @@ def _add_sample(sub) -> None:
     p.set_defaults(run=_run_sample)
 
 
+def _run_batch(args: argparse.Namespace) -> int:
+    from rvkep.batch import run_batch
+
+    if args.workers is not None and args.workers < 1:
+        from rvkep.errors import OptionError
+
+        raise OptionError("--workers must be at least 1")
+    infos = run_batch(args.targets, args.out, workers=args.workers, scheduler=args.scheduler,
+                      seed=args.seed, quiet=args.quiet, quick=args.quick)  # fmt: skip
+    failed = [n for n, i in infos.items() if i["status"] == "failed"]
+    if not args.quiet:
+        done = sum(i["status"] in ("done", "skipped") for i in infos.values())
+        print(f"{done} of {len(infos)} target(s) complete, {len(failed)} failed; "
+              f"summary: {args.out}/summary.csv")  # fmt: skip
+    return 0
+
+
+def _add_batch(sub) -> None:
+    p = sub.add_parser(
+        "batch",
+        help="run the whole job over a target list (local processes or a Dask cluster)",
+        description="Run analyze for every target of a CSV list (columns name, data, "
+        "star_mass, star_mass_err; optional max_planets, planets, model, kms, trend) into "
+        "DIR/<name>/, skipping complete targets, and write DIR/summary.csv.",
+    )
+    p.add_argument("targets", metavar="TARGETS.csv")
+    p.add_argument("--out", required=True, metavar="DIR")
+    p.add_argument(
+        "--workers",
+        type=int,
+        default=None,
+        help="local worker processes (default: the number of cores)",
+    )
+    p.add_argument(
+        "--scheduler",
+        default=None,
+        metavar="ADDRESS",
+        help="run on an existing Dask cluster, e.g. tcp://10.0.0.5:8786",
+    )
+    p.add_argument("--seed", type=int, default=0)
+    p.add_argument("--quiet", action="store_true")
+    p.add_argument("--quick", action="store_true", help="short chains (previews, tests)")
+    p.set_defaults(run=_run_batch)
+
+
 # each entry adds one subcommand: add(subparsers) -> None, setting defaults(run=...)
-_SUBCOMMANDS: list = [_add_check, _add_periodogram, _add_analyze, _add_demo, _add_sample]
+_SUBCOMMANDS: list = [
+    _add_check, _add_periodogram, _add_analyze, _add_demo, _add_sample, _add_batch,
+]  # fmt: skip
 
 
 def main(argv: Sequence[str] | None = None) -> int:

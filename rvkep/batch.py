@@ -1,0 +1,367 @@
+"""The whole job over a target list, on local processes or a Dask cluster, resumable.
+
+The target list is a CSV file with the columns
+
+* ``name``: the target's name (its output folder ``DIR/<name>/``);
+* ``data``: a path or glob pattern, relative to the list's folder (several separated
+  by ``;``);
+* ``star_mass``, ``star_mass_err``: solar masses;
+* optional: ``max_planets``, ``planets``, ``model`` (a model file), ``kms`` (true/false),
+  ``trend`` (0, 1, 2).
+
+Each target runs :func:`rvkep.pipeline.analyze` into its own folder with its own log
+file (``log.txt``); a failure (bad file, failed fit) is recorded as one line in
+``error.txt`` and in the summary, and does not stop the others. A target is complete
+when ``done.json`` exists: it is written, atomically, after every other output, so a
+run killed at any moment never leaves a folder that looks complete but is not; a
+rerun skips complete targets, clears temporary files of interrupted ones and resumes
+their sampler checkpoints, then rebuilds ``DIR/summary.csv``: one ``target`` row per
+target (status, number of companions, seconds, error) and one ``companion`` row per
+companion (period, K, e, m sin i with their errors).
+
+Execution goes through any object with ``submit(fn, *args)`` returning futures: a
+:class:`concurrent.futures.ProcessPoolExecutor` by default, or a
+``dask.distributed.Client`` connected to an existing scheduler (``--scheduler
+tcp://HOST:PORT``; ``pip install "rvkep[cluster]"``).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import csv
+import glob
+import hashlib
+import json
+import os
+import sys
+import time
+from dataclasses import dataclass
+from pathlib import Path
+
+from rvkep.errors import DataError, OptionError, RvkepError
+from rvkep.outputs import clean_temporaries, write_text
+
+__all__ = ["Target", "read_targets", "run_target", "run_batch", "write_summary", "SUMMARY_FIELDS"]
+
+_REQUIRED = ("name", "data", "star_mass", "star_mass_err")
+_OPTIONAL = ("max_planets", "planets", "model", "kms", "trend")
+SUMMARY_FIELDS = [
+    "row", "name", "status", "n_planets", "seconds", "error", "label",
+    "period_d", "period_minus", "period_plus", "K_mps", "K_minus", "K_plus",
+    "ecc", "ecc_minus", "ecc_plus", "msini_mjup", "msini_minus", "msini_plus",
+]  # fmt: skip
+
+
+@dataclass(frozen=True)
+class Target:
+    """One line of the target list, paths resolved."""
+
+    name: str
+    files: tuple[str, ...]
+    star_mass: float
+    star_mass_err: float
+    max_planets: int = 4
+    planets: int | None = None
+    model: str | None = None
+    kms: bool = False
+    trend: int = 0
+    line: int = 0
+
+
+def _bool(value: str, where: str) -> bool:
+    v = value.strip().lower()
+    if v in ("", "0", "false", "no", "n"):
+        return False
+    if v in ("1", "true", "yes", "y"):
+        return True
+    raise DataError(f"{where}: expected true or false, got {value!r}")
+
+
+def read_targets(path: str | Path) -> list[Target]:
+    """Read and check a target list; errors name the file, line and problem.
+
+    Data patterns that match no file are not an error here: that target fails alone.
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise DataError(f"{path}: no such file") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise DataError(f"{path}: cannot read ({exc})") from None
+    rows = list(
+        csv.reader(
+            line for line in text.splitlines() if line.strip() and not line.lstrip().startswith("#")
+        )
+    )
+    if not rows:
+        raise DataError(f"{path}: empty target list")
+    header = [h.strip().lower() for h in rows[0]]
+    missing = [c for c in _REQUIRED if c not in header]
+    if missing:
+        raise DataError(f"{path}, line 1: missing column(s) {', '.join(missing)}")
+    unknown = [c for c in header if c not in _REQUIRED + _OPTIONAL]
+    if unknown:
+        raise DataError(f"{path}, line 1: unknown column(s) {', '.join(unknown)}")
+    base = path.parent
+    targets, names = [], set()
+    # line numbers: count only the non-blank, non-comment lines' positions
+    line_numbers = [
+        i + 1
+        for i, line in enumerate(text.splitlines())
+        if line.strip() and not line.lstrip().startswith("#")
+    ]
+    for row, line in zip(rows[1:], line_numbers[1:], strict=False):
+        where = f"{path}, line {line}"
+        if len(row) != len(header):
+            raise DataError(f"{where}: {len(row)} cells where the header has {len(header)}")
+        rec = {h: c.strip() for h, c in zip(header, row, strict=True)}
+        name = rec["name"]
+        if not name or "/" in name or name.startswith("."):
+            raise DataError(f"{where}: bad target name {name!r}")
+        if name in names:
+            raise DataError(f"{where}: target {name!r} listed twice")
+        names.add(name)
+        try:
+            mass, err = float(rec["star_mass"]), float(rec["star_mass_err"] or 0.0)
+        except ValueError:
+            raise DataError(f"{where}: star_mass and star_mass_err must be numbers") from None
+        if not mass > 0 or err < 0:
+            raise DataError(f"{where}: star_mass must be positive and star_mass_err not negative")
+        files: list[str] = []
+        for pattern in rec["data"].split(";"):
+            pattern = pattern.strip()
+            if pattern:
+                full = str(base / pattern)
+                matches = sorted(glob.glob(full))
+                files.extend(matches or [full])
+        kw = {}
+        for key in ("max_planets", "planets", "trend"):
+            if rec.get(key):
+                try:
+                    kw[key] = int(rec[key])
+                except ValueError:
+                    raise DataError(f"{where}: {key} must be a whole number") from None
+        if rec.get("model"):
+            kw["model"] = str(base / rec["model"])
+        if "kms" in rec:
+            kw["kms"] = _bool(rec["kms"], where)
+        targets.append(Target(name, tuple(files), mass, err, line=line, **kw))
+    if not targets:
+        raise DataError(f"{path}: no targets")
+    return targets
+
+
+def _target_seed(seed: int, name: str) -> int:
+    return (seed + int(hashlib.sha256(name.encode()).hexdigest()[:8], 16)) % (2**31)
+
+
+def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> dict:
+    """Run one target into ``out/<name>/``; never raises for the target's own faults.
+
+    Returns {"name", "status" ("done", "failed", "skipped"), "seconds", "error"}.
+    """
+    for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+        os.environ.setdefault(var, "1")
+    folder = Path(out) / target.name
+    done = folder / "done.json"
+    if done.exists():
+        info = json.loads(done.read_text())
+        return {**info, "status": "skipped"}
+    folder.mkdir(parents=True, exist_ok=True)
+    clean_temporaries(folder)
+    with contextlib.suppress(FileNotFoundError):
+        (folder / "error.txt").unlink()
+    t0 = time.perf_counter()
+    status, error = "done", ""
+    with (
+        open(folder / "log.txt", "a") as log,
+        contextlib.redirect_stdout(log),
+        contextlib.redirect_stderr(log),
+    ):
+        stamp = time.strftime("%Y-%m-%d %H:%M:%S")
+        print(f"--- {stamp} target {target.name}: {', '.join(target.files)}")
+        try:
+            import matplotlib
+
+            matplotlib.use("Agg")
+            from rvkep.pipeline import AnalyzeOptions, analyze
+
+            opts = AnalyzeOptions(
+                star_mass=target.star_mass, star_mass_err=target.star_mass_err, kms=target.kms,
+                planets=target.planets, max_planets=target.max_planets, model_file=target.model,
+                out=str(folder), seed=_target_seed(seed, target.name), quiet=False, quick=quick,
+                trend=target.trend,
+            )  # fmt: skip
+            analyze(list(target.files), opts)
+        except RvkepError as exc:
+            status, error = "failed", str(exc)
+        except Exception as exc:  # a failed fit must not stop the batch
+            status, error = "failed", f"{type(exc).__name__}: {exc}"
+            import traceback
+
+            traceback.print_exc()
+        print(f"--- status {status}" + (f": {error}" if error else ""))
+    seconds = time.perf_counter() - t0
+    info = {"name": target.name, "status": status, "seconds": seconds, "error": error}
+    if status == "done":
+        write_text(done, json.dumps(info) + "\n")  # last: marks the folder complete
+    else:
+        write_text(folder / "error.txt", error.replace("\n", " ") + "\n")
+    return info
+
+
+def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> list[dict]:
+    rows = []
+    for t in targets:
+        info = infos.get(t.name, {})
+        folder = out / t.name
+        status = info.get("status", "missing")
+        if status == "skipped":
+            status = "done"
+        res = {}
+        if status == "done" and (folder / "results.json").exists():
+            res = json.loads((folder / "results.json").read_text())
+        rows.append(
+            {
+                "row": "target",
+                "name": t.name,
+                "status": status,
+                "n_planets": res.get("n_planets", ""),
+                "seconds": f"{info.get('seconds', 0):.1f}",
+                "error": info.get("error", ""),
+            }
+        )
+        for p in res.get("planets", []):
+            row = {"row": "companion", "name": t.name, "status": status, "label": p["label"]}
+            for key, col in (
+                ("period_d", "period"),
+                ("K_mps", "K"),
+                ("ecc", "ecc"),
+                ("msini_mjup", "msini"),
+            ):
+                e = p[key]
+                row[key] = f"{e['median']:.8g}"
+                row[f"{col}_minus"] = f"{e['minus']:.4g}"
+                row[f"{col}_plus"] = f"{e['plus']:.4g}"
+            rows.append(row)
+    return rows
+
+
+def write_summary(targets: list[Target], out: str | Path, infos: dict[str, dict]) -> Path:
+    """Write DIR/summary.csv (atomically) from every target's outputs."""
+    import io
+
+    out = Path(out)
+    buf = io.StringIO()
+    w = csv.DictWriter(buf, fieldnames=SUMMARY_FIELDS, extrasaction="ignore")
+    w.writeheader()
+    for row in _summary_rows(targets, out, infos):
+        w.writerow(row)
+    return write_text(out / "summary.csv", buf.getvalue())
+
+
+def _local_pool(workers: int):
+    import multiprocessing as mp
+    from concurrent.futures import ProcessPoolExecutor
+
+    return ProcessPoolExecutor(max_workers=workers, mp_context=mp.get_context("spawn"))
+
+
+def _dask_client(address: str):
+    try:
+        from distributed import Client
+    except ImportError:
+        raise OptionError(
+            '--scheduler needs dask.distributed: pip install "rvkep[cluster]"'
+        ) from None
+    try:
+        return Client(address, timeout="10s")
+    except (OSError, TimeoutError) as exc:
+        raise OptionError(f"cannot reach the Dask scheduler at {address}: {exc}") from None
+
+
+def run_batch(
+    targets_file: str | Path,
+    out: str | Path,
+    workers: int | None = None,
+    scheduler: str | None = None,
+    seed: int = 0,
+    quiet: bool = False,
+    quick: bool = False,
+    executor=None,
+) -> dict[str, dict]:
+    """Run every target (see the module text); returns {name: info} and writes the
+    summary. ``executor`` may be any object with ``submit`` (e.g. a Dask Client)."""
+    targets = read_targets(targets_file)
+    out = Path(out)
+    out.mkdir(parents=True, exist_ok=True)
+    clean_temporaries(out)
+    own = None
+    if executor is None:
+        if scheduler:
+            executor = own = _dask_client(scheduler)
+        else:
+            executor = own = _local_pool(workers or os.cpu_count() or 1)
+    infos: dict[str, dict] = {}
+    pending = []
+    for t in targets:
+        if (out / t.name / "done.json").exists():
+            infos[t.name] = {
+                **json.loads((out / t.name / "done.json").read_text()),
+                "status": "skipped",
+            }
+        else:
+            pending.append(t)
+    bar = None
+    if not quiet and sys.stderr.isatty():
+        from tqdm.auto import tqdm
+
+        bar = tqdm(
+            total=len(targets), initial=len(targets) - len(pending), desc="targets", unit="star"
+        )
+    try:
+        futures = {executor.submit(run_target, t, str(out), seed, quick): t for t in pending}
+        for fut in _as_completed(executor, futures):
+            t = futures[fut]
+            try:
+                info = fut.result()
+            except Exception as exc:  # the worker itself died
+                info = {
+                    "name": t.name,
+                    "status": "failed",
+                    "seconds": 0.0,
+                    "error": f"worker failed: {exc}",
+                }
+            infos[t.name] = info
+            if bar is not None:
+                bar.update(1)
+                bar.set_postfix(last=f"{t.name}: {info['status']}")
+            elif not quiet:
+                msg = f"{t.name}: {info['status']} ({info['seconds']:.1f} s)"
+                print(msg + (f" - {info['error']}" if info["error"] else ""), flush=True)
+    finally:
+        if bar is not None:
+            bar.close()
+        if own is not None:
+            # a Dask Client is closed, never shut down: that would stop the user's cluster
+            if _is_dask(own):
+                own.close()
+            else:
+                own.shutdown()
+    write_summary(targets, out, infos)
+    return infos
+
+
+def _is_dask(executor) -> bool:
+    return type(executor).__module__.split(".")[0] == "distributed"
+
+
+def _as_completed(executor, futures):
+    if _is_dask(executor):
+        from distributed import as_completed
+
+        return as_completed(list(futures))
+    from concurrent.futures import as_completed
+
+    return as_completed(futures)

@@ -1,0 +1,128 @@
+"""Batch runs over target lists: local processes, a kill and a rerun, a Dask cluster."""
+
+import csv
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from rvkep.batch import read_targets, run_batch
+from rvkep.cli import main
+from rvkep.errors import DataError
+from rvkep.orbit import radial_velocity
+
+
+def make_targets(folder: Path, n: int, n_points: int = 25) -> Path:
+    """Invented sparse stars (seeds 0..n-1): one companion each, plus one bad file."""
+    folder.mkdir(parents=True, exist_ok=True)
+    rows = ["name,data,star_mass,star_mass_err,max_planets"]
+    for k in range(n):
+        rng = np.random.default_rng(k)
+        t = 2459000 + np.sort(rng.choice(np.arange(400), n_points, replace=False)) * 0.99727
+        P = float(np.exp(rng.uniform(np.log(3), np.log(60))))
+        v = radial_velocity(t, P, 2459000.0 + rng.uniform(0, P), 0.2, 1.0, rng.uniform(20, 40))
+        v += rng.normal(0, 3, n_points)
+        rows_txt = "\n".join(f"{a:.6f} {b:.3f} 3.0" for a, b in zip(t, v, strict=True))
+        (folder / f"star{k}.txt").write_text(rows_txt + "\n")
+        rows.append(f"star{k},star{k}.txt,1.0,0.05,1")
+    (folder / "broken.txt").write_text("2459000 1 1\n2459001 oops 1\n")
+    rows.append("broken,broken.txt,1.0,0.05,1")
+    path = folder / "targets.csv"
+    path.write_text("\n".join(rows) + "\n")
+    return path
+
+
+def read_summary(out: Path):
+    with open(out / "summary.csv") as fh:
+        return list(csv.DictReader(fh))
+
+
+def check_complete(out: Path, n: int):
+    rows = read_summary(out)
+    targets = {r["name"]: r for r in rows if r["row"] == "target"}
+    assert {f"star{k}" for k in range(n)} | {"broken"} == set(targets)
+    assert all(targets[f"star{k}"]["status"] == "done" for k in range(n))
+    assert targets["broken"]["status"] == "failed"
+    assert "broken.txt, line 2" in targets["broken"]["error"]
+    companions = [r for r in rows if r["row"] == "companion"]
+    assert len(companions) >= n - 1 and all(float(r["period_d"]) > 0 for r in companions)
+    for k in range(n):
+        assert (out / f"star{k}" / "done.json").exists() and (out / f"star{k}" / "log.txt").exists()
+    assert not list(out.rglob(".*.tmp-*"))
+
+
+def test_target_list_errors(tmp_path):
+    p = tmp_path / "t.csv"
+    p.write_text("name,data,star_mass\nx,a.txt,1\n")
+    with pytest.raises(DataError, match="missing column"):
+        read_targets(p)
+    p.write_text("name,data,star_mass,star_mass_err\nx,a.txt,heavy,0.1\n")
+    with pytest.raises(DataError, match="line 2: star_mass"):
+        read_targets(p)
+    p.write_text("name,data,star_mass,star_mass_err\nx,a.txt,1,0.1\nx,b.txt,1,0.1\n")
+    with pytest.raises(DataError, match="line 3: target 'x' listed twice"):
+        read_targets(p)
+
+
+def test_local_batch_and_skip_on_rerun(tmp_path, capsys):
+    targets = make_targets(tmp_path / "in", 3)
+    out = tmp_path / "out"
+    assert main(["batch", str(targets), "--out", str(out), "--workers", "2", "--quick"]) == 0
+    check_complete(out, 3)
+    first = (out / "star0" / "results.json").stat().st_mtime_ns
+    infos = run_batch(targets, out, workers=2, quick=True, quiet=True)
+    assert infos["star0"]["status"] == "skipped"
+    assert (out / "star0" / "results.json").stat().st_mtime_ns == first
+    check_complete(out, 3)
+
+
+def test_rerun_after_sigkill(tmp_path):
+    targets = make_targets(tmp_path / "in", 4)
+    out = tmp_path / "out"
+    cmd = [sys.executable, "-m", "rvkep", "batch", str(targets), "--out", str(out),
+           "--workers", "2", "--quick", "--quiet"]  # fmt: skip
+    proc = subprocess.Popen(cmd, start_new_session=True)
+    deadline = time.time() + 120
+    while time.time() < deadline and not list(out.glob("star*/done.json")):
+        time.sleep(0.2)
+    os.killpg(proc.pid, signal.SIGKILL)  # the batch and its workers, mid-run
+    proc.wait()
+    done_before = {p.parent.name for p in out.glob("star*/done.json")}
+    assert len(done_before) < 4
+    for folder in out.glob("star*"):  # a complete-looking folder is complete
+        if (folder / "done.json").exists():
+            assert (folder / "results.json").exists() and (folder / "timeseries.png").exists()
+    assert subprocess.run(cmd, timeout=300).returncode == 0
+    check_complete(out, 4)
+
+
+def test_dask_local_cluster(tmp_path):
+    distributed = pytest.importorskip("distributed")
+    targets = make_targets(tmp_path / "in", 2)
+    out = tmp_path / "out"
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+        dashboard_address="127.0.0.1:0", local_directory=str(tmp_path / "dask"),
+    ) as cluster:  # fmt: skip
+        address = cluster.scheduler_address
+        code = main(["batch", str(targets), "--out", str(out), "--scheduler", address,
+                     "--quick", "--quiet"])  # fmt: skip
+    assert code == 0
+    check_complete(out, 2)
+    res = json.loads((out / "star0" / "results.json").read_text())
+    assert res["n_planets"] == 1
+
+
+def test_unreachable_scheduler(tmp_path, capsys):
+    targets = make_targets(tmp_path / "in", 1)
+    code = main(
+        ["batch", str(targets), "--out", str(tmp_path / "o"), "--scheduler", "tcp://127.0.0.1:9"]
+    )
+    assert code == 2
+    assert "Dask scheduler" in capsys.readouterr().err
