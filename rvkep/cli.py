@@ -114,6 +114,14 @@ def _add_periodogram(sub) -> None:
         "spectral window and alias flags.",
     )
     _add_data_args(p)
+    _add_search_args(p)
+    p.add_argument("--max-signals", type=int, default=5, help="most signals to look for")
+    p.add_argument("--out", default=".", metavar="DIR", help="folder for the figure")
+    p.set_defaults(run=_run_periodogram)
+
+
+def _add_search_args(p: argparse.ArgumentParser) -> None:
+    """Options shared by the commands that search: period range, FAP, trend, format."""
     p.add_argument(
         "--min-period",
         type=float,
@@ -134,17 +142,14 @@ def _add_periodogram(sub) -> None:
         default=1e-3,
         help="false-alarm probability below which a peak counts (default 0.001)",
     )
-    p.add_argument("--max-signals", type=int, default=5, help="most signals to look for")
     p.add_argument(
         "--trend",
         type=int,
         default=0,
         choices=(0, 1, 2),
-        help="polynomial trend degree fitted along (default 0)",
+        help="polynomial trend degree fitted along (default 0; a model file can set it)",
     )
-    p.add_argument("--out", default=".", metavar="DIR", help="folder for the figure")
     p.add_argument("--format", default="png", choices=("png", "pdf"), help="figure format")
-    p.set_defaults(run=_run_periodogram)
 
 
 def _analyze_options(args: argparse.Namespace, out: str):
@@ -206,17 +211,7 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
         action="store_true",
         help="short chains for a preview or tests (flagged in every output)",
     )
-    p.add_argument("--min-period", type=float, default=None, metavar="DAYS")
-    p.add_argument("--max-period", type=float, default=None, metavar="DAYS")
-    p.add_argument("--fap", type=float, default=1e-3, help="false-alarm threshold (0.001)")
-    p.add_argument(
-        "--trend",
-        type=int,
-        default=0,
-        choices=(0, 1, 2),
-        help="polynomial trend degree (default 0; a model file can set it)",
-    )
-    p.add_argument("--format", default="png", choices=("png", "pdf"), help="figure format")
+    _add_search_args(p)
     p.add_argument("--max-steps", type=int, default=None, help="cap on sampler steps")
 
 

@@ -157,31 +157,28 @@ class LogPosterior:
         theta = np.atleast_2d(np.asarray(theta, dtype=float))
         model = self.model
         with np.errstate(all="ignore"):
-            phys = model.to_physical(theta)
-            lp = model.log_prior(theta, phys)
-        out = np.full(theta.shape[0], -np.inf)
-        rows = np.flatnonzero(np.isfinite(lp))
-        if rows.size == 0:
-            return out
-        labels = [c.label for c in model.companions]
-
-        def stack(field):
-            if not labels:
-                return np.zeros((rows.size, 0))
-            return np.stack([phys[f"{L}.{field}"][rows] for L in labels], axis=1)
-
-        omega = stack("omega")
-        jit = np.stack([phys[f"jitter.{i.name}"][rows] for i in model.instruments], axis=1)
+            arr = model.orbit_arrays(theta)
+            lp = model.log_prior(theta, arr)
+        ok = lp > -np.inf
+        if ok.all():
+            rows = slice(None)
+        else:
+            rows = np.flatnonzero(ok)
+            if rows.size == 0:
+                return lp
+        w = arr["omega"][rows]
         parts = _fused_loglike(
-            model.t, model.y, model.err2, model.inst_index, len(model.instruments), model.design,
-            stack("tp"), 2.0 * np.pi / stack("period"), stack("ecc"),
-            np.cos(omega), np.sin(omega), stack("K"), jit,
+            model.t, model.y, model.err2, model.inst_index, len(model.instruments),
+            model.design, arr["tp"][rows], 2.0 * np.pi / arr["period"][rows],
+            arr["ecc"][rows], np.cos(w), np.sin(w), arr["K"][rows], arr["jitter"][rows],
         )  # fmt: skip
         logL = parts[:, 0] + self._const
         if self.linear == "marginalize":
             logL = logL + parts[:, 1]
         value = logL + (lp[rows] if self.include_prior else 0.0)
-        out[rows] = np.where(np.isfinite(value), value, -np.inf)
+        value[~np.isfinite(value)] = -np.inf
+        out = np.full(theta.shape[0], -np.inf)
+        out[rows] = value
         return out
 
     def evaluate(self, theta: np.ndarray):
@@ -190,8 +187,9 @@ class LogPosterior:
         theta = np.atleast_2d(np.asarray(theta, dtype=float))
         model = self.model
         with np.errstate(all="ignore"):
-            phys = model.to_physical(theta)
-            lp = model.log_prior(theta, phys)
+            arr = model.orbit_arrays(theta)
+            lp = model.log_prior(theta, arr)
+            phys = model.as_dict(arr)
         out = np.full(theta.shape[0], -np.inf)
         rows = np.flatnonzero(np.isfinite(lp))
         details = {"rows": rows, "phys": phys}

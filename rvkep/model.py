@@ -168,6 +168,41 @@ class SystemModel:
         self.names = names
         self._slots = slots
         self._index = {(kind, i, f): j for j, (kind, i, f) in enumerate(slots)}
+        # gather tables for orbit_arrays: fill values of fixed fields, and for each
+        # field the theta columns and the companion columns they go to
+        nc = len(self.companions)
+        fill = {f: np.full(nc, np.nan) for f in ("ln_period", "tc", "h", "k", "K")}
+        for ci, c in enumerate(self.companions):
+            if c.period.is_fixed:
+                fill["ln_period"][ci] = math.log(c.period.value)
+            if c.tc.is_fixed:
+                fill["tc"][ci] = c.tc.value - self.data.epoch
+            fill["h"][ci] = fill["k"][ci] = 0.0
+            if c.K.is_fixed:
+                fill["K"][ci] = c.K.value
+        self._fill = fill
+        self._gather = {
+            f: (
+                np.array(
+                    [j for j, (kind, _, g) in enumerate(slots) if kind == "companion" and g == f],
+                    dtype=np.intp,
+                ),
+                np.array(
+                    [i for kind, i, g in slots if kind == "companion" and g == f], dtype=np.intp
+                ),
+            )
+            for f in fill
+        }
+        self._circular = np.array([c.circular for c in self.companions], dtype=bool)
+        self._jit_fill = np.array(
+            [i.jitter.value if i.jitter.is_fixed else np.nan for i in self.instruments]
+        )
+        self._jit_gather = (
+            np.array(
+                [j for j, (kind, _, _) in enumerate(slots) if kind == "instrument"], dtype=np.intp
+            ),
+            np.array([i for kind, i, _ in slots if kind == "instrument"], dtype=np.intp),
+        )
 
     @property
     def ndim(self) -> int:
@@ -188,11 +223,31 @@ class SystemModel:
 
     # -- coordinates <-> physical ---------------------------------------------
 
-    def _column(self, theta, kind, i, f, fixed_value):
-        j = self._index.get((kind, i, f))
-        if j is None:
-            return np.full(theta.shape[0], fixed_value, dtype=float)
-        return theta[:, j]
+    def _matrix(self, theta, field):
+        cols, comps = self._gather[field]
+        out = np.empty((theta.shape[0], len(self.companions)))
+        out[:] = self._fill[field]
+        out[:, comps] = theta[:, cols]
+        return out
+
+    def orbit_arrays(self, theta: np.ndarray) -> dict[str, np.ndarray]:
+        """Physical parameters as matrices: ``period``, ``tc``, ``tp`` (minus the
+        epoch), ``ecc``, ``omega``, ``K`` of shape (n_sets, n_companions) and ``jitter``
+        of shape (n_sets, n_instruments), in the order of the model's lists."""
+        theta = np.atleast_2d(np.asarray(theta, float))
+        h = self._matrix(theta, "h")
+        k = self._matrix(theta, "k")
+        e = h * h + k * k
+        omega = np.mod(np.arctan2(k, h), 2 * np.pi)
+        omega[:, self._circular] = 0.5 * np.pi
+        P = np.exp(self._matrix(theta, "ln_period"))
+        tc = self._matrix(theta, "tc")
+        tp = tc - P * _conjunction_mean_anomaly(np.minimum(e, _E_CAP), omega) / (2 * np.pi)
+        jit = np.empty((theta.shape[0], len(self.instruments)))
+        jit[:] = self._jit_fill
+        jit[:, self._jit_gather[1]] = theta[:, self._jit_gather[0]]
+        return {"period": P, "tc": tc, "tp": tp, "ecc": e, "omega": omega,
+                "K": self._matrix(theta, "K"), "jitter": jit}  # fmt: skip
 
     def to_physical(self, theta: np.ndarray) -> dict[str, np.ndarray]:
         """Physical parameters of each row of ``theta`` (shape (n_sets, ndim)).
@@ -201,35 +256,16 @@ class SystemModel:
         ``.omega`` (radians, [0, 2 pi)), ``.K``, and ``jitter.<instrument>``. Rows with
         e >= 1 give e >= 1 here; :meth:`log_prior` marks them invalid.
         """
-        theta = np.atleast_2d(np.asarray(theta, float))
+        return self.as_dict(self.orbit_arrays(theta))
+
+    def as_dict(self, arr: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
+        """The matrices of :meth:`orbit_arrays` as named columns (see to_physical)."""
         out: dict[str, np.ndarray] = {}
         for ci, c in enumerate(self.companions):
-            fixedP = c.period.value if c.period.is_fixed else np.nan
-            fixed_tc = c.tc.value - self.data.epoch if c.tc.is_fixed else np.nan
-            j = self._index.get(("companion", ci, "ln_period"))
-            P = np.exp(theta[:, j]) if j is not None else np.full(theta.shape[0], fixedP)
-            tc = self._column(theta, "companion", ci, "tc", fixed_tc)
-            h = self._column(theta, "companion", ci, "h", 0.0)
-            k = self._column(theta, "companion", ci, "k", 0.0)
-            K = self._column(theta, "companion", ci, "K", c.K.value if c.K.is_fixed else np.nan)
-            e = h * h + k * k
-            omega = (
-                np.mod(np.arctan2(k, h), 2 * np.pi)
-                if not c.circular
-                else np.full_like(e, 0.5 * np.pi)
-            )
-            L = c.label
-            out[f"{L}.period"] = P
-            out[f"{L}.tc"] = tc
-            out[f"{L}.ecc"] = e
-            out[f"{L}.omega"] = omega
-            out[f"{L}.K"] = K
-            out[f"{L}.tp"] = tc - P * _conjunction_mean_anomaly(np.minimum(e, _E_CAP), omega) / (
-                2 * np.pi
-            )
+            for f in ("period", "tc", "ecc", "omega", "K", "tp"):
+                out[f"{c.label}.{f}"] = arr[f][:, ci]
         for ii, inst in enumerate(self.instruments):
-            fixed = inst.jitter.value if inst.jitter.is_fixed else np.nan
-            out[f"jitter.{inst.name}"] = self._column(theta, "instrument", ii, "jitter", fixed)
+            out[f"jitter.{inst.name}"] = arr["jitter"][:, ii]
         return out
 
     def from_physical(self, values: dict[str, float | np.ndarray]) -> np.ndarray:
@@ -280,33 +316,35 @@ class SystemModel:
 
     # -- priors ---------------------------------------------------------------
 
-    def log_prior(self, theta: np.ndarray, phys: dict | None = None) -> np.ndarray:
+    def log_prior(self, theta: np.ndarray, arrays: dict | None = None) -> np.ndarray:
         """Log prior density in the sampled coordinates, (n_sets,); -inf when invalid.
 
         Includes the Jacobian of ln P; the sqrt(e) coordinates have a constant
-        Jacobian (dropped).
+        Jacobian (dropped). ``arrays`` (from :meth:`orbit_arrays`) saves recomputing.
         """
-        theta = np.atleast_2d(np.asarray(theta, float))
-        phys = self.to_physical(theta) if phys is None else phys
-        lp = np.zeros(theta.shape[0])
+        arr = self.orbit_arrays(theta) if arrays is None else arrays
+        n = arr["jitter"].shape[0]
+        lp = np.zeros(n)
         epoch = self.data.epoch
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-            for c in self.companions:
-                L = c.label
-                P, e, K = phys[f"{L}.period"], phys[f"{L}.ecc"], phys[f"{L}.K"]
+            for ci, c in enumerate(self.companions):
+                P = arr["period"][:, ci]
                 if not c.period.is_fixed:
                     lp += c.period.logpdf(P) + np.log(P)
                 if not c.tc.is_fixed:
-                    lp += c.tc.logpdf(phys[f"{L}.tc"] + epoch)
+                    lp += c.tc.logpdf(arr["tc"][:, ci] + epoch)
                 if not c.circular:
+                    e = arr["ecc"][:, ci]
                     lp += np.where(e < 1.0, c.ecc.logpdf(e), -np.inf)
                 if not c.K.is_fixed:
+                    K = arr["K"][:, ci]
                     lp += np.where(K >= 0, c.K.logpdf(K), -np.inf)
-            for inst in self.instruments:
+            for ii, inst in enumerate(self.instruments):
                 if not inst.jitter.is_fixed:
-                    s = phys[f"jitter.{inst.name}"]
+                    s = arr["jitter"][:, ii]
                     lp += np.where(s >= 0, inst.jitter.logpdf(s), -np.inf)
-        return np.where(np.isfinite(lp), lp, -np.inf)
+        lp[~np.isfinite(lp)] = -np.inf
+        return lp
 
     # -- building -------------------------------------------------------------
 
