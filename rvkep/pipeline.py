@@ -197,7 +197,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     # sampling, resumable through a checkpoint in the output folder
     walkers = max(32, 4 * fit.model.ndim)
     walkers += walkers % 2
-    max_steps = opts.max_steps or (3000 if opts.quick else 40000)
+    max_steps = opts.max_steps or (1500 if opts.quick else 40000)
     out.mkdir(parents=True, exist_ok=True)
     chain_path = out / "chain.h5"
     stamp_path = out / "chain.json"

@@ -251,4 +251,5 @@ def test_calibration_across_synthetic_datasets():
             inside += lo <= truth <= hi
             total += 1
     rate = inside / total
+    print(f"68% interval coverage over {total} (dataset, parameter) pairs: {rate:.3f}")
     assert 0.5 <= rate <= 0.85, rate
