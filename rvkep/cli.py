@@ -204,7 +204,12 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
     p.add_argument(
         "--out", default=default_out, metavar="DIR", help=f"output folder (default {default_out})"
     )
-    p.add_argument("--seed", type=int, default=0, help="random seed (results reproduce)")
+    p.add_argument(
+        "--seed",
+        type=int,
+        default=None,
+        help="random seed (default 0, or the model file's); results reproduce",
+    )
     p.add_argument("--quiet", action="store_true", help="no progress bar or messages")
     p.add_argument(
         "--quick",
@@ -298,8 +303,8 @@ def _add_sample(sub) -> None:
     p.add_argument("files", nargs="*", metavar="DATA", help="RV tables (default: the model's)")
     p.add_argument("--kms", action="store_true", help="velocities and errors are in km/s")
     p.add_argument("--out", required=True, metavar="DIR")
-    p.add_argument("--seed", type=int, default=0)
-    p.add_argument("--max-steps", type=int, default=None)
+    p.add_argument("--seed", type=int, default=None, help="default: the model file's, else 0")
+    p.add_argument("--max-steps", type=int, default=None, help="default: the model file's")
     p.add_argument("--quiet", action="store_true")
     p.add_argument("--format", default="png", choices=("png", "pdf"))
     p.set_defaults(run=_run_sample)

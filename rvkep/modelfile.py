@@ -75,7 +75,7 @@ _DATA = {"files", "kms"}
 _TREND = {"degree"}
 _INSTRUMENT = {"jitter"}
 _COMPANION = {"period", "tc", "K", "ecc", "omega_deg", "circular"}
-_SAMPLING = {"walkers", "max_steps", "seed", "min_steps", "thin"}
+_SAMPLING = {"walkers", "max_steps", "seed"}
 
 
 @dataclass
@@ -287,7 +287,7 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
     _check_keys(sampling, _SAMPLING, _where(path, "sampling"))
     for key, value in sampling.items():
         v = _number(value, _where(path, "sampling", key), positive=key != "seed")
-        if key in ("walkers", "max_steps", "seed", "min_steps", "thin"):
+        if key in ("walkers", "max_steps", "seed"):
             if v != int(v):
                 raise ModelFileError(f"{_where(path, 'sampling', key)}: must be a whole number")
             v = int(v)

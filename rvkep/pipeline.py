@@ -44,7 +44,7 @@ class AnalyzeOptions:
     max_planets: int = 4
     model_file: str | Path | None = None
     out: str | Path = "rvkep_output"
-    seed: int = 0
+    seed: int | None = None  # None: the model file's [sampling] seed, else 0
     quiet: bool = False
     quick: bool = False
     min_period: float | None = None
@@ -61,12 +61,13 @@ def _say(opts: AnalyzeOptions, text: str) -> None:
         print(text, flush=True)
 
 
-def _fingerprint(data: RVData, names: list[str], opts: AnalyzeOptions, walkers: int) -> str:
+def _fingerprint(data: RVData, names: list[str], opts: AnalyzeOptions, walkers: int,
+                 seed: int, max_steps: int) -> str:  # fmt: skip
     h = hashlib.sha256()
     for arr in (data.time, data.rv, data.err):
         h.update(np.ascontiguousarray(arr).tobytes())
     h.update("|".join(list(data.instrument) + names).encode())
-    h.update(f"{opts.seed}|{opts.quick}|{opts.max_steps}|{walkers}".encode())
+    h.update(f"{seed}|{opts.quick}|{max_steps}|{walkers}".encode())
     return h.hexdigest()
 
 
@@ -195,13 +196,15 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
         _say(opts, f"search: {len(search_result.significant)} significant signal(s); "
                    f"{n} companion(s) kept after the BIC comparison")  # fmt: skip
     # sampling, resumable through a checkpoint in the output folder
-    walkers = max(32, 4 * fit.model.ndim)
+    sampling_spec = spec.sampling if spec else {}
+    seed = opts.seed if opts.seed is not None else sampling_spec.get("seed", 0)
+    walkers = sampling_spec.get("walkers") or max(32, 4 * fit.model.ndim)
     walkers += walkers % 2
-    max_steps = opts.max_steps or (1500 if opts.quick else 40000)
+    max_steps = opts.max_steps or sampling_spec.get("max_steps") or (1500 if opts.quick else 40000)
     out.mkdir(parents=True, exist_ok=True)
     chain_path = out / "chain.h5"
     stamp_path = out / "chain.json"
-    stamp = _fingerprint(data, fit.model.names, opts, walkers)
+    stamp = _fingerprint(data, fit.model.names, opts, walkers, seed, max_steps)
     if chain_path.exists():
         old = json.loads(stamp_path.read_text()) if stamp_path.exists() else {}
         if old.get("fingerprint") != stamp:
@@ -213,7 +216,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
         raise RvkepError("nothing to sample: every parameter is fixed")
     _say(opts, f"sampling {fit.model.ndim} parameters with {walkers} walkers"
                + (" (QUICK MODE: short chains, preview only)" if opts.quick else ""))  # fmt: skip
-    sopts = SamplerOptions(walkers=walkers, max_steps=max_steps, seed=opts.seed,
+    sopts = SamplerOptions(walkers=walkers, max_steps=max_steps, seed=seed,
                            progress=None if not opts.quiet else False, checkpoint=chain_path,
                            check_every=250 if opts.quick else 500)  # fmt: skip
     with warnings.catch_warnings(record=True) as caught:
@@ -223,11 +226,11 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
         if issubclass(w.category, UnconvergedWarning):
             _say(opts, f"WARNING: {w.message}")
     posterior = PosteriorSamples.from_chain(
-        fit.model, sampling.flat, sampling.flat_log_prob, rng=opts.seed
+        fit.model, sampling.flat, sampling.flat_log_prob, rng=seed
     )
     results = Results.build(
-        data, fit, sampling, posterior, star, rng=opts.seed + 1, search=search_result,
-        comparison=comparison, quick=opts.quick, seed=opts.seed,
+        data, fit, sampling, posterior, star, rng=seed + 1, search=search_result,
+        comparison=comparison, quick=opts.quick, seed=seed,
     )  # fmt: skip
     if opts.quick:
         results.notes.append("quick mode: short chains for a preview, not for publication")

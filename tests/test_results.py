@@ -56,6 +56,10 @@ ecc = {{ start = 0.1, prior = "beta", a = 0.867, b = 3.03 }}
 
 [companions.c]
 period = 143.0
+
+[sampling]
+walkers = 40
+seed = 7
 """
     )
     out = tmp_path / "out"
@@ -68,6 +72,7 @@ period = 143.0
     assert res["trend"]["degree"] == 1 and "slope_mps_per_yr" in res["trend"]
     assert any(p["prior"] == "beta(0.867, 3.03)" for p in res["priors"])
     assert res["star"]["mass_msun"] == 0.92 and res["star"]["assumed"] is False
+    assert res["sampler"]["walkers"] == 40 and res["seed"] == 7  # from [sampling]
     tex = (out / "parameters.tex").read_text()
     assert r"$m \sin i$" in tex and r"\dot\gamma" in tex
     csv = (out / "parameters.csv").read_text().splitlines()
