@@ -197,6 +197,7 @@ class SystemModel:
         self._jit_fill = np.array(
             [i.jitter.value if i.jitter.is_fixed else np.nan for i in self.instruments]
         )
+        self._plan = None  # the prior plan, built on first use by log_prior
         self._jit_gather = (
             np.array(
                 [j for j, (kind, _, _) in enumerate(slots) if kind == "instrument"], dtype=np.intp
@@ -316,34 +317,101 @@ class SystemModel:
 
     # -- priors ---------------------------------------------------------------
 
+    def _prior_plan(self):
+        """Group the priors by kind so each kind is evaluated in one numpy pass.
+
+        Values are the columns of V = [period | tc (data time) | ecc | K | jitter]
+        (companions, then instruments); returns (kinds, jacobian columns) where kinds
+        maps a kind to its column indices and parameters.
+        """
+        nc = len(self.companions)
+        entries = []  # (column in V, prior)
+        for ci, c in enumerate(self.companions):
+            if not c.period.is_fixed:
+                entries.append((ci, c.period))
+            if not c.tc.is_fixed:
+                entries.append((nc + ci, c.tc))
+            if not c.circular:
+                entries.append((2 * nc + ci, c.ecc))
+            if not c.K.is_fixed:
+                entries.append((3 * nc + ci, c.K))
+        for ii, inst in enumerate(self.instruments):
+            if not inst.jitter.is_fixed:
+                entries.append((4 * nc + ii, inst.jitter))
+        groups: dict[str, list] = {"uniform": [], "loguniform": [], "normal": [], "other": []}
+        for col, prior in entries:
+            kind = prior.kind if prior.kind in groups else "other"
+            groups[kind].append((col, prior))
+        plan = {}
+        if groups["uniform"]:
+            cols, pr = zip(*groups["uniform"], strict=True)
+            lo = np.array([p.low for p in pr])
+            hi = np.array([p.high for p in pr])
+            plan["uniform"] = (np.array(cols), lo, hi, float(-np.sum(np.log(hi - lo))))
+        if groups["loguniform"]:
+            cols, pr = zip(*groups["loguniform"], strict=True)
+            lo = np.array([p.low for p in pr])
+            hi = np.array([p.high for p in pr])
+            plan["loguniform"] = (np.array(cols), lo, hi, float(-np.sum(np.log(np.log(hi / lo)))))
+        if groups["normal"]:
+            cols, pr = zip(*groups["normal"], strict=True)
+            mu = np.array([p.mean for p in pr])
+            sd = np.array([p.sd for p in pr])
+            plan["normal"] = (
+                np.array(cols),
+                mu,
+                sd,
+                float(-np.sum(np.log(sd)) - len(pr) * 0.5 * math.log(2 * math.pi)),
+            )
+        plan["other"] = groups["other"]
+        jac = np.array(
+            [ci for ci, c in enumerate(self.companions) if not c.period.is_fixed], dtype=np.intp
+        )
+        return plan, jac
+
     def log_prior(self, theta: np.ndarray, arrays: dict | None = None) -> np.ndarray:
         """Log prior density in the sampled coordinates, (n_sets,); -inf when invalid.
 
         Includes the Jacobian of ln P; the sqrt(e) coordinates have a constant
-        Jacobian (dropped). ``arrays`` (from :meth:`orbit_arrays`) saves recomputing.
+        Jacobian (dropped). Rows with e >= 1, K < 0 or a negative jitter are invalid
+        whatever the priors say. ``arrays`` (from :meth:`orbit_arrays`) saves
+        recomputing them.
         """
         arr = self.orbit_arrays(theta) if arrays is None else arrays
-        n = arr["jitter"].shape[0]
+        if self._plan is None:
+            self._plan = self._prior_plan()
+        plan, jac = self._plan
+        V = np.concatenate(
+            [arr["period"], arr["tc"] + self.data.epoch, arr["ecc"], arr["K"], arr["jitter"]],
+            axis=1,
+        )
+        n = V.shape[0]
+        ok = (
+            (arr["ecc"] < 1.0).all(axis=1)
+            & (arr["K"] >= 0).all(axis=1)
+            & (arr["jitter"] >= 0).all(axis=1)
+        )
         lp = np.zeros(n)
-        epoch = self.data.epoch
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-            for ci, c in enumerate(self.companions):
-                P = arr["period"][:, ci]
-                if not c.period.is_fixed:
-                    lp += c.period.logpdf(P) + np.log(P)
-                if not c.tc.is_fixed:
-                    lp += c.tc.logpdf(arr["tc"][:, ci] + epoch)
-                if not c.circular:
-                    e = arr["ecc"][:, ci]
-                    lp += np.where(e < 1.0, c.ecc.logpdf(e), -np.inf)
-                if not c.K.is_fixed:
-                    K = arr["K"][:, ci]
-                    lp += np.where(K >= 0, c.K.logpdf(K), -np.inf)
-            for ii, inst in enumerate(self.instruments):
-                if not inst.jitter.is_fixed:
-                    s = arr["jitter"][:, ii]
-                    lp += np.where(s >= 0, inst.jitter.logpdf(s), -np.inf)
-        lp[~np.isfinite(lp)] = -np.inf
+            if "uniform" in plan:
+                cols, lo, hi, const = plan["uniform"]
+                x = V[:, cols]
+                ok &= ((x >= lo) & (x <= hi)).all(axis=1)
+                lp += const
+            if "loguniform" in plan:
+                cols, lo, hi, const = plan["loguniform"]
+                x = V[:, cols]
+                ok &= ((x >= lo) & (x <= hi)).all(axis=1)
+                lp += const - np.log(np.where(x > 0, x, 1.0)).sum(axis=1)
+            if "normal" in plan:
+                cols, mu, sd, const = plan["normal"]
+                z = (V[:, cols] - mu) / sd
+                lp += const - 0.5 * (z * z).sum(axis=1)
+            for col, prior in plan["other"]:
+                lp += prior.logpdf(V[:, col])
+            if jac.size:
+                lp += np.log(np.where(ok[:, None], arr["period"][:, jac], 1.0)).sum(axis=1)
+        lp[~ok | ~np.isfinite(lp)] = -np.inf
         return lp
 
     # -- building -------------------------------------------------------------

@@ -24,14 +24,18 @@ from rvkep.model import SystemModel, default_companion  # noqa: E402
 DEMO = Path(__file__).resolve().parents[1] / "demo_data"
 
 
-def best_time(fn, repeat=2000):
-    fn()
-    best = np.inf
-    for _ in range(5):
-        t0 = time.perf_counter()
-        for _ in range(repeat):
-            fn()
-        best = min(best, (time.perf_counter() - t0) / repeat)
+def interleaved(fns, repeat=300, rounds=15):
+    """Best time per call of each function, timed in alternating blocks so that a
+    change of machine speed affects all of them alike."""
+    for fn in fns:
+        fn()
+    best = [np.inf] * len(fns)
+    for _ in range(rounds):
+        for k, fn in enumerate(fns):
+            t0 = time.perf_counter()
+            for _ in range(repeat):
+                fn()
+            best[k] = min(best[k], (time.perf_counter() - t0) / repeat)
     return best
 
 
@@ -48,8 +52,9 @@ def main():
         theta = model.start_theta() + 1e-4 * rng.standard_normal((64, model.ndim))
         assert np.all(np.isfinite(post(theta)))
         x = rng.uniform(-np.pi, np.pi, (64, len(data)))
-        t_floor = best_time(lambda x=x: (np.sin(x), np.cos(x)))
-        t_post = best_time(lambda theta=theta, post=post: post(theta))
+        t_floor, t_post = interleaved(
+            [lambda x=x: (np.sin(x), np.cos(x)), lambda theta=theta, post=post: post(theta)]
+        )
         print(
             f"trend degree {trend}: {len(data)} points, {model.ndim} sampled parameters, "
             f"64 sets per call"
