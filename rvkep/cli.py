@@ -158,6 +158,10 @@ def _analyze_options(args: argparse.Namespace, out: str):
     return AnalyzeOptions(
         star_mass=args.star_mass,
         star_mass_err=args.star_mass_err,
+        star_radius=getattr(args, "star_radius", None),
+        star_radius_err=getattr(args, "star_radius_err", 0.0),
+        star_teff=getattr(args, "star_teff", None),
+        star_teff_err=getattr(args, "star_teff_err", 0.0),
         kms=getattr(args, "kms", False),
         planets=args.planets,
         max_planets=args.max_planets,
@@ -190,6 +194,22 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
         metavar="S",
         help="its 1-sigma error, carried into every derived quantity",
     )
+    p.add_argument(
+        "--star-radius",
+        type=float,
+        default=None,
+        metavar="R",
+        help="stellar radius in solar radii (adds the transit probability)",
+    )
+    p.add_argument("--star-radius-err", type=float, default=0.0, metavar="S")
+    p.add_argument(
+        "--star-teff",
+        type=float,
+        default=None,
+        metavar="T",
+        help="effective temperature in K (adds T_eq and insolation; needs R)",
+    )
+    p.add_argument("--star-teff-err", type=float, default=0.0, metavar="S")
     group = p.add_mutually_exclusive_group()
     group.add_argument(
         "--planets", type=int, default=None, metavar="N", help="fit exactly N companions"

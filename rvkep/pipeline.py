@@ -39,6 +39,10 @@ class AnalyzeOptions:
 
     star_mass: float | None = None
     star_mass_err: float = 0.0
+    star_radius: float | None = None  # solar radii: transit probability
+    star_radius_err: float = 0.0
+    star_teff: float | None = None  # K: equilibrium temperature, insolation
+    star_teff_err: float = 0.0
     kms: bool = False
     planets: int | None = None
     max_planets: int = 4
@@ -152,6 +156,21 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
 
         given = {"mass": opts.star_mass, "mass_err": opts.star_mass_err}
         star = replace(star, **given) if star else StarProperties(**given)
+    for name, value, err in (
+        ("radius", opts.star_radius, opts.star_radius_err),
+        ("teff", opts.star_teff, opts.star_teff_err),
+    ):
+        if value is None:
+            continue
+        if star is None:
+            raise OptionError(f"--star-{name} needs --star-mass (or a model file's [star])")
+        if not value > 0 or err < 0:
+            raise OptionError(f"--star-{name} must be positive and its error not negative")
+        from dataclasses import replace
+
+        star = replace(star, **{name: value, f"{name}_err": err})
+    if star is not None and star.teff is not None and star.radius is None:
+        raise OptionError("--star-teff needs --star-radius as well")
     out = Path(opts.out)
     _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                f"{', '.join(data.instruments)}")  # fmt: skip

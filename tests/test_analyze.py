@@ -99,6 +99,18 @@ def test_forced_number_of_planets(tmp_path):
     out = tmp_path / "one"
     files = [str(DEMO / "kestrel.txt"), str(DEMO / "osprey.csv")]
     assert main(["analyze", *files, "--planets", "1", "--quick", "--quiet", "--out", str(out),
-                 "--max-steps", "500", "--star-mass", "0.92"]) == 0  # fmt: skip
+                 "--max-steps", "500", "--star-mass", "0.92", "--star-radius", "0.9",
+                 "--star-teff", "5500"]) == 0  # fmt: skip
     res = json.loads((out / "results.json").read_text())
     assert res["n_planets"] == 1 and res["sampler"]["converged"] is False
+    planet = res["planets"][0]
+    assert {"transit_probability", "teq_k", "insolation_earth"} <= set(planet)
+    assert res["star"]["radius_rsun"] == 0.9 and res["star"]["teff_k"] == 5500
+
+
+def test_star_options_checked(tmp_path, capsys):
+    args = ["analyze", str(DEMO / "kestrel.txt"), "--out", str(tmp_path / "o"), "--quick"]
+    assert main([*args, "--star-radius", "0.9"]) == 2
+    assert "--star-radius needs --star-mass" in capsys.readouterr().err
+    assert main([*args, "--star-mass", "1", "--star-teff", "5000"]) == 2
+    assert "--star-teff needs --star-radius" in capsys.readouterr().err
