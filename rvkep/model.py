@@ -45,6 +45,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from rvkep.data import RVData
+from rvkep.orbit import conjunction_mean_anomaly
 from rvkep.physics import StarProperties
 from rvkep.priors import Fixed, LogUniform, Prior, Uniform
 
@@ -243,7 +244,7 @@ class SystemModel:
         omega[:, self._circular] = 0.5 * np.pi
         P = np.exp(self._matrix(theta, "ln_period"))
         tc = self._matrix(theta, "tc")
-        tp = tc - P * _conjunction_mean_anomaly(np.minimum(e, _E_CAP), omega) / (2 * np.pi)
+        tp = tc - P * conjunction_mean_anomaly(np.minimum(e, _E_CAP), omega) / (2 * np.pi)
         jit = np.empty((theta.shape[0], len(self.instruments)))
         jit[:] = self._jit_fill
         jit[:, self._jit_gather[1]] = theta[:, self._jit_gather[0]]
@@ -437,14 +438,6 @@ class SystemModel:
 
 
 _E_CAP = 1.0 - 1e-12  # e >= 1 rows are refused by the prior; keep their tp finite
-
-
-def _conjunction_mean_anomaly(e: np.ndarray, omega: np.ndarray) -> np.ndarray:
-    """Mean anomaly at conjunction (nu = pi/2 - omega), in (-pi, pi]; no validation
-    (the hot-path twin of :func:`rvkep.orbit.tc_to_tp`, tested against it)."""
-    half_nu = 0.5 * (np.mod(1.5 * np.pi - omega, 2 * np.pi) - np.pi)
-    E = 2.0 * np.arctan2(np.sqrt(1.0 - e) * np.sin(half_nu), np.sqrt(1.0 + e) * np.cos(half_nu))
-    return E - e * np.sin(E)
 
 
 def default_instrument(data: RVData, name: str) -> Instrument:

@@ -30,6 +30,7 @@ __all__ = [
     "mean_anomaly",
     "tp_to_tc",
     "tc_to_tp",
+    "conjunction_mean_anomaly",
     "to_sqrt_e",
     "from_sqrt_e",
     "orbital_radius",
@@ -94,13 +95,19 @@ def mean_anomaly(t: ArrayLike, period: ArrayLike, tp: ArrayLike) -> np.ndarray:
     return TWO_PI * (np.asarray(t, float) - np.asarray(tp, float)) / np.asarray(period, float)
 
 
-def _conjunction_mean_anomaly(ecc, omega):
-    ecc = check_eccentricity(ecc)
-    nu = np.mod(1.5 * np.pi - np.asarray(omega, dtype=float), TWO_PI) - np.pi  # (-pi, pi]
-    E = 2.0 * np.arctan2(
-        np.sqrt(1.0 - ecc) * np.sin(0.5 * nu), np.sqrt(1.0 + ecc) * np.cos(0.5 * nu)
-    )
+def conjunction_mean_anomaly(ecc: np.ndarray, omega: np.ndarray) -> np.ndarray:
+    """Mean anomaly at conjunction (nu = pi/2 - omega), in (-pi, pi].
+
+    No validation: the hot path (the model's coordinate transform) calls it directly;
+    :func:`tp_to_tc` and :func:`tc_to_tp` check the eccentricity first.
+    """
+    half_nu = 0.5 * (np.mod(1.5 * np.pi - omega, TWO_PI) - np.pi)
+    E = 2.0 * np.arctan2(np.sqrt(1.0 - ecc) * np.sin(half_nu), np.sqrt(1.0 + ecc) * np.cos(half_nu))
     return E - ecc * np.sin(E)
+
+
+def _conjunction_mean_anomaly(ecc, omega):
+    return conjunction_mean_anomaly(check_eccentricity(ecc), np.asarray(omega, dtype=float))
 
 
 def tp_to_tc(tp: ArrayLike, period: ArrayLike, ecc: ArrayLike, omega: ArrayLike) -> np.ndarray:

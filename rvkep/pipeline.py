@@ -303,7 +303,7 @@ def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
     for c in model.companions:
         L = c.label
         single = model.with_companions([c])
-        own = keplerian_velocity(single, {k: v for k, v in best_phys.items()})[0]
+        own = keplerian_velocity(single, best_phys)[0]
         velocity = data.rv - off - (kep_all - own)
         P, tc = p[f"{L}.period"], p[f"{L}.tc"]
         phase = np.mod((data.time - tc) / P, 1.0)
@@ -311,12 +311,12 @@ def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
         curve_p = keplerian_velocity(single, best_phys, t=tc - epoch + grid * P)[0]
         band_p = None
         if theta is not None:
-            sub = {k: v for k, v in model.to_physical(theta[idx]).items()}
-            # each sample's own phase grid, anchored at its own tc
-            tcs = sub[f"{L}.tc"]
+            # each sample's own phase grid, anchored at its own tc (phys: the
+            # samples of the time-series band above)
+            tcs = phys[f"{L}.tc"]
             curves = np.array([
-                keplerian_velocity(single, {k: v[j : j + 1] for k, v in sub.items()},
-                                   t=tcs[j] + grid * sub[f"{L}.period"][j])[0]
+                keplerian_velocity(single, {k: v[j : j + 1] for k, v in phys.items()},
+                                   t=tcs[j] + grid * phys[f"{L}.period"][j])[0]
                 for j in range(len(tcs))
             ])  # fmt: skip
             band_p = np.percentile(curves, [15.87, 84.13], axis=0)

@@ -136,13 +136,6 @@ class PosteriorSamples:
         with np.load(path) as f:
             return cls({k: f[k] for k in f.files})
 
-    def quantile_band(self, fn, q=(15.865525393145708, 84.13447460685429), n: int = 300, rng=0):
-        """Percentile band of ``fn(sample_index) -> array`` over up to n random samples."""
-        rng = np.random.default_rng(rng)
-        idx = rng.choice(len(self), size=min(n, len(self)), replace=False)
-        curves = np.array([fn(i) for i in idx])
-        return np.percentile(curves, q, axis=0)
-
 
 def circular_percentiles(deg: np.ndarray) -> dict[str, float]:
     """Percentiles of an angle (degrees) about its circular mean, so a posterior that

@@ -362,13 +362,13 @@ class Results:
         ]
         for p in d["planets"]:
             lines.append(
-                f"  {p['label']}: P = {_txt(p['period_d'])} d, K = {_txt(p['K_mps'])} m/s, "
-                f"e = {_txt(p['ecc'])}, m sin i = {_txt(p['msini_mjup'])} M_Jup "
-                f"({_txt(p['msini_mearth'])} M_Earth), a = {_txt(p['a_au'])} au"
+                f"  {p['label']}: P = {_md(p['period_d'])} d, K = {_md(p['K_mps'])} m/s, "
+                f"e = {_md(p['ecc'])}, m sin i = {_md(p['msini_mjup'])} M_Jup "
+                f"({_md(p['msini_mearth'])} M_Earth), a = {_md(p['a_au'])} au"
             )
         for i in d["instruments"]:
             lines.append(
-                f"  {i['name']}: offset = {_txt(i['offset_mps'])} m/s, jitter = {_txt(i['jitter_mps'])} m/s"
+                f"  {i['name']}: offset = {_md(i['offset_mps'])} m/s, jitter = {_md(i['jitter_mps'])} m/s"
             )
         if not d["sampler"]["converged"]:
             lines.append("  WARNING: the chain did not converge; results are preliminary")
@@ -406,9 +406,6 @@ def _plain(unit: str) -> str:
 
 def _md(e: dict) -> str:
     return text_value(e["median"], e["minus"], e["plus"])
-
-
-_txt = _md
 
 
 def _clean(x):
