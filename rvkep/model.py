@@ -27,10 +27,14 @@ likelihood marginalizes (or, for best fits, solves for) them analytically, so th
 not in the sampled vector. Their posterior is drawn afterwards from the conditional
 Gaussian of each sample.
 
-Default priors (used when the model is built from a search rather than a model file):
-period log-uniform over the search range; tc uniform over one period around the start;
-e uniform on [0, 0.99]; K uniform on [0, 2 x peak-to-peak of the velocities]; jitter
-uniform on [0, max(10, 3 x RMS)] m/s per instrument.
+Default priors come from :mod:`rvkep.defaults` (one place for the search, the best
+fit and model files): period log-uniform over the search range; tc uniform over one
+period around the start; e uniform on [0, 0.99]; K uniform on [0, 2 x peak-to-peak of
+the velocities with each instrument's zero point removed]; jitter uniform on
+[0, max(10, 3 x RMS)] m/s per instrument.
+
+Companions and instruments are frozen descriptions: fitting never changes them; new
+values come back in new objects (:func:`dataclasses.replace`).
 
 References
 ----------
@@ -44,19 +48,28 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from rvkep import defaults
 from rvkep.data import RVData
+from rvkep.defaults import DEFAULT_MAX_ECC
 from rvkep.orbit import conjunction_mean_anomaly
 from rvkep.physics import StarProperties
-from rvkep.priors import Fixed, LogUniform, Prior, Uniform
+from rvkep.priors import Fixed, Prior, Uniform
 
-__all__ = ["Companion", "Instrument", "SystemModel", "LABELS", "DEFAULT_MAX_ECC"]
+__all__ = [
+    "Companion",
+    "Instrument",
+    "SystemModel",
+    "LABELS",
+    "DEFAULT_MAX_ECC",
+    "default_companion",
+    "default_instrument",
+]
 
 LABELS = "bcdefghijklmnopqrstuvwxyz"
-DEFAULT_MAX_ECC = 0.99
 YEAR = 365.25
 
 
-@dataclass
+@dataclass(frozen=True)
 class Companion:
     """One Keplerian companion: priors on P, tc, e, K and start values.
 
@@ -80,15 +93,26 @@ class Companion:
             raise ValueError(
                 f"companion {self.label}: eccentricity can only be fixed at 0 (circular)"
             )
+        object.__setattr__(self, "start", dict(self.start))  # our own copy
+
+    def canonical(self) -> dict:
+        """Everything that shapes the posterior, as plain JSON-able values."""
+        return {
+            "label": self.label,
+            **{k: getattr(self, k).to_dict() for k in ("period", "tc", "K", "ecc")},
+        }
 
 
-@dataclass
+@dataclass(frozen=True)
 class Instrument:
     """One instrument: its name and the prior on its jitter (m/s)."""
 
     name: str
     jitter: Prior
     start_jitter: float = 1.0
+
+    def canonical(self) -> dict:
+        return {"name": self.name, "jitter": self.jitter.to_dict()}
 
 
 @dataclass
@@ -222,6 +246,28 @@ class SystemModel:
 
     def labels(self) -> list[str]:
         return [c.label for c in self.companions]
+
+    def canonical(self) -> dict:
+        """A canonical description of everything that shapes the posterior: every
+        companion's priors (fixed values included), every instrument's jitter prior,
+        the trend degree, the noise model and a digest of the data. Equal dumps mean
+        the same posterior; checkpoints are keyed on it."""
+        import hashlib
+
+        h = hashlib.sha256()
+        d = self.data
+        for arr in (d.time, d.rv, d.err):
+            h.update(np.ascontiguousarray(arr, dtype=float).tobytes())
+        h.update("\x1f".join(map(str, d.instrument)).encode())
+        h.update(repr(float(d.epoch)).encode())
+        return {
+            "companions": [c.canonical() for c in self.companions],
+            "instruments": [i.canonical() for i in self.instruments],
+            "trend": self.trend,
+            "noise": "white",
+            "linear": "marginalized, flat",
+            "data_sha256": h.hexdigest(),
+        }
 
     # -- coordinates <-> physical ---------------------------------------------
 
@@ -440,14 +486,11 @@ class SystemModel:
 _E_CAP = 1.0 - 1e-12  # e >= 1 rows are refused by the prior; keep their tp finite
 
 
-def default_instrument(data: RVData, name: str) -> Instrument:
-    """An instrument with the default jitter prior, uniform on [0, max(10, 3 RMS)] m/s."""
-    m = data.instrument == name
-    rms = float(np.std(data.rv[m])) if m.sum() > 1 else 10.0
-    med_err = float(np.median(data.err[m]))
-    return Instrument(
-        name, Uniform(0.0, max(10.0, 3.0 * rms)), start_jitter=max(0.5 * med_err, 0.1)
-    )
+def default_instrument(data: RVData, name: str, jitter: Prior | None = None) -> Instrument:
+    """An instrument with ``jitter`` as its prior (default: :func:`defaults.jitter_prior`)
+    and a start jitter inside it."""
+    prior = jitter if jitter is not None else defaults.jitter_prior(data, name)
+    return Instrument(name, prior, start_jitter=defaults.start_jitter(data, name, prior))
 
 
 def default_companion(
@@ -461,19 +504,13 @@ def default_companion(
     period_range: tuple[float, float] | None = None,
     circular: bool = False,
 ) -> Companion:
-    """A companion with the default priors around start values (tc in data time)."""
-    lo, hi = period_range if period_range is not None else (0.5, 10.0 * _baseline(data))
-    lo, hi = min(lo, 0.8 * period), max(hi, 1.25 * period)
-    K_max = max(2.0 * float(np.ptp(data.rv)), 2.0 * K, 1.0)
+    """A companion with the default priors (:mod:`rvkep.defaults`) around start values
+    (tc in data time)."""
     return Companion(
         label=label,
-        period=LogUniform(lo, hi),
-        tc=Uniform(tc - 0.5 * period, tc + 0.5 * period),
-        K=Uniform(0.0, K_max),
-        ecc=Fixed(0.0) if circular else Uniform(0.0, DEFAULT_MAX_ECC),
+        period=defaults.period_prior(data, period, period_range),
+        tc=defaults.tc_prior(tc, period),
+        K=defaults.K_prior(data, K),
+        ecc=defaults.ecc_prior(circular),
         start={"period": period, "tc": tc, "K": K, "ecc": ecc, "omega": omega},
     )
-
-
-def _baseline(data: RVData) -> float:
-    return float(data.time[-1] - data.time[0])

@@ -47,20 +47,12 @@ import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
-import numpy as np
-
+from rvkep import defaults
 from rvkep.data import RVData
 from rvkep.errors import ModelFileError
-from rvkep.model import (
-    DEFAULT_MAX_ECC,
-    Companion,
-    Instrument,
-    SystemModel,
-    _baseline,
-    default_instrument,
-)
+from rvkep.model import Companion, Instrument, SystemModel, default_instrument
 from rvkep.physics import StarProperties
-from rvkep.priors import Fixed, LogUniform, Prior, Uniform, prior_from_dict
+from rvkep.priors import Fixed, Prior, prior_from_dict
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -89,19 +81,17 @@ class CompanionSpec:
     ecc: Prior | None = None
     start: dict = field(default_factory=dict)
 
-    def build(self, data: RVData) -> Companion:
-        """The :class:`Companion`, default priors filled in; tc's default needs a
-        start tc, so call after the start search when tc has no start."""
+    def build(
+        self, data: RVData, period_range: tuple[float, float] | None = None
+    ) -> Companion:
+        """The :class:`Companion`, default priors (:mod:`rvkep.defaults`, the same the
+        search uses) filled in; tc's default needs a start tc, so call after the start
+        search when tc has no start."""
         P = self.start["period"]
-        period = self.period or LogUniform(min(0.5, 0.8 * P), max(10.0 * _baseline(data), 1.25 * P))
-        tc = self.tc
-        if tc is None:
-            tc0 = self.start["tc"]
-            tc = Uniform(tc0 - 0.5 * P, tc0 + 0.5 * P)
-        K = self.K or Uniform(
-            0.0, max(2.0 * float(np.ptp(data.rv)), 2.0 * self.start.get("K", 1.0), 1.0)
-        )
-        ecc = self.ecc or Uniform(0.0, DEFAULT_MAX_ECC)
+        period = self.period or defaults.period_prior(data, P, period_range)
+        tc = self.tc or defaults.tc_prior(self.start["tc"], P)
+        K = self.K or defaults.K_prior(data, self.start.get("K", 1.0))
+        ecc = self.ecc or defaults.ecc_prior()
         return Companion(self.label, period, tc, K, ecc, dict(self.start))
 
 
@@ -126,20 +116,7 @@ class ModelSpec:
                 f"{self.path}: instruments.{unknown[0]}: no such instrument in the data "
                 f"(the data have {', '.join(data.instruments)})"
             )
-        out = []
-        for name in data.instruments:
-            inst = default_instrument(data, name)
-            if name in self.jitter:
-                inst.jitter = self.jitter[name]
-                lo, hi = inst.jitter.bounds
-                if not lo <= inst.start_jitter <= hi:
-                    inst.start_jitter = (
-                        inst.jitter.value
-                        if inst.jitter.is_fixed
-                        else 0.5 * (lo + min(hi, lo + 20.0))
-                    )
-            out.append(inst)
-        return out
+        return [default_instrument(data, name, self.jitter.get(name)) for name in data.instruments]
 
     def base_model(self, data: RVData) -> SystemModel:
         """The model without companions (instruments, trend, star)."""

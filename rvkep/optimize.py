@@ -19,7 +19,7 @@ on the residuals of the previous best fit, then all are refined together.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -390,8 +390,6 @@ def _new_companion(data, label, P, start, period_range, spec):
             data, label, P, start["tc"], max(start["K"], 0.1), start["ecc"], start["omega"],
             period_range,
         )  # fmt: skip
-    from dataclasses import replace
-
     ecc = 0.0 if spec.ecc is not None and spec.ecc.is_fixed else start["ecc"]
     full = {
         "period": P,
@@ -400,7 +398,7 @@ def _new_companion(data, label, P, start, period_range, spec):
         "ecc": ecc,
         "omega": start["omega"],
     }
-    return replace(spec, label=label, start=full).build(data)
+    return replace(spec, label=label, start=full).build(data, period_range)
 
 
 def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitResult:
@@ -485,10 +483,11 @@ def _recentre(result: FitResult, label: str | None) -> FitResult:
             "ecc": p[f"{L}.ecc"],
             "omega": p[f"{L}.omega"],
         }
-        comps.append(type(c)(c.label, c.period, tc_prior, c.K, c.ecc, start))
-    new_model = model.with_companions(comps)
-    for inst in new_model.instruments:
-        inst.start_jitter = max(p[f"jitter.{inst.name}"], 1e-3)
+        comps.append(replace(c, tc=tc_prior, start=start))
+    instruments = [
+        replace(i, start_jitter=max(p[f"jitter.{i.name}"], 1e-3)) for i in model.instruments
+    ]
+    new_model = replace(model.with_companions(comps), instruments=instruments)
     theta = new_model.from_physical(
         {
             **{k: v for k, v in p.items()},

@@ -12,16 +12,36 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["atomic_write", "write_text", "save_figure", "clean_temporaries"]
+__all__ = ["atomic_write", "write_text", "save_figure", "clean_temporaries", "current_umask"]
+
+
+def current_umask() -> int:
+    """The process's file-creation mask (read without changing it where possible)."""
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except OSError:
+        pass
+    mask = os.umask(0o022)  # no /proc: the classic read-by-setting, restored at once
+    os.umask(mask)
+    return mask
 
 
 @contextlib.contextmanager
 def atomic_write(path: str | Path, mode: str = "w"):
-    """Open a temporary file beside ``path``; rename it onto ``path`` on success."""
+    """Open a temporary file beside ``path``; rename it onto ``path`` on success.
+
+    The file gets the permissions the umask gives any new file (not mkstemp's 0600).
+    """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.tmp-", dir=path.parent)
     try:
+        # mkstemp creates the file with mode 0600; the final file follows the umask like
+        # any file a program creates (0644 under the usual 022, group-readable under 002)
+        os.fchmod(fd, 0o666 & ~current_umask())
         with os.fdopen(fd, mode) as fh:
             yield fh
             fh.flush()

@@ -32,6 +32,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from rvkep.defaults import DEFAULT_MIN_PERIOD  # shortest period searched by default
+
 __all__ = [
     "Periodogram",
     "AliasCandidate",
@@ -51,8 +53,6 @@ FAP_LEVELS = (0.1, 0.01, 0.001)
 #: One cycle per sidereal day (1.0027379 c/d) and per year (common practice, no source).
 SIDEREAL_DAY_FREQ = 1.0027379
 YEAR_FREQ = 1.0 / 365.25
-#: Shortest period searched by default (days); pass min_period for shorter ones.
-DEFAULT_MIN_PERIOD = 1.2
 
 
 def frequency_grid(

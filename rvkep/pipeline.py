@@ -15,8 +15,6 @@ References
 
 from __future__ import annotations
 
-import hashlib
-import json
 import time
 import warnings
 from dataclasses import dataclass
@@ -63,16 +61,6 @@ class AnalyzeOptions:
 def _say(opts: AnalyzeOptions, text: str) -> None:
     if not opts.quiet:
         print(text, flush=True)
-
-
-def _fingerprint(data: RVData, names: list[str], opts: AnalyzeOptions, walkers: int,
-                 seed: int, max_steps: int) -> str:  # fmt: skip
-    h = hashlib.sha256()
-    for arr in (data.time, data.rv, data.err):
-        h.update(np.ascontiguousarray(arr).tobytes())
-    h.update("|".join(list(data.instrument) + names).encode())
-    h.update(f"{seed}|{opts.quick}|{max_steps}|{walkers}".encode())
-    return h.hexdigest()
 
 
 def choose_companions(search_result, data, base, period_range, max_planets: int):
@@ -127,7 +115,12 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     from rvkep.optimize import fit_companions
     from rvkep.posterior import PosteriorSamples
     from rvkep.results import Results
-    from rvkep.sampling import SamplerOptions, UnconvergedWarning, run_sampler
+    from rvkep.sampling import (
+        CheckpointNotice,
+        SamplerOptions,
+        UnconvergedWarning,
+        run_sampler,
+    )
     from rvkep.search import search
 
     opts = opts or AnalyzeOptions()
@@ -221,16 +214,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     walkers += walkers % 2
     max_steps = opts.max_steps or sampling_spec.get("max_steps") or (1500 if opts.quick else 40000)
     out.mkdir(parents=True, exist_ok=True)
-    chain_path = out / "chain.h5"
-    stamp_path = out / "chain.json"
-    stamp = _fingerprint(data, fit.model.names, opts, walkers, seed, max_steps)
-    if chain_path.exists():
-        old = json.loads(stamp_path.read_text()) if stamp_path.exists() else {}
-        if old.get("fingerprint") != stamp:
-            chain_path.unlink()
-    from rvkep.outputs import write_text
-
-    write_text(stamp_path, json.dumps({"fingerprint": stamp}) + "\n")
+    chain_path = out / "chain.h5"  # keyed on the whole model and settings (sampling.py)
     if fit.model.ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")
     _say(opts, f"sampling {fit.model.ndim} parameters with {walkers} walkers"
@@ -240,10 +224,13 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
                            check_every=250 if opts.quick else 500)  # fmt: skip
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UnconvergedWarning)
+        warnings.simplefilter("always", CheckpointNotice)
         sampling = run_sampler(fit.model, fit.theta, sopts)
     for w in caught:
         if issubclass(w.category, UnconvergedWarning):
             _say(opts, f"WARNING: {w.message}")
+        elif issubclass(w.category, CheckpointNotice):
+            _say(opts, f"note: {w.message}")
     posterior = PosteriorSamples.from_chain(
         fit.model, sampling.flat, sampling.flat_log_prob, rng=seed
     )

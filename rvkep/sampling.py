@@ -47,6 +47,8 @@ __all__ = [
     "SamplingResult",
     "UnconvergedWarning",
     "BufferedHDFBackend",
+    "CheckpointNotice",
+    "checkpoint_key",
     "run_sampler",
     "initial_ball",
     "MOVES",
@@ -55,6 +57,10 @@ __all__ = [
 
 class UnconvergedWarning(UserWarning):
     """The chain stopped at the step cap before meeting the convergence criterion."""
+
+
+class CheckpointNotice(UserWarning):
+    """A checkpoint could not be resumed (another model or settings); started afresh."""
 
 
 def _moves(kind: str):
@@ -233,6 +239,38 @@ class SamplingResult:
         }
 
 
+#: SamplerOptions fields that change the chain (max_steps does not: a longer cap
+#: continues the same chain exactly)
+_KEYED_OPTIONS = ("walkers", "seed", "moves", "check_every", "tau_factor", "tau_rtol")
+
+
+def checkpoint_key(model: SystemModel, options: SamplerOptions, walkers: int) -> tuple[str, str]:
+    """(digest, canonical JSON) of everything that shapes a chain: the model's
+    canonical dump (priors with their parameters, fixed values, trend, noise model,
+    instruments, data digest) and the sampler settings that change the steps."""
+    import hashlib
+    import json
+
+    doc = {
+        "model": model.canonical(),
+        "parameters": list(model.names),
+        "sampler": {k: getattr(options, k) for k in _KEYED_OPTIONS} | {"walkers": walkers},
+    }
+    text = json.dumps(doc, sort_keys=True, default=repr)
+    return hashlib.sha256(text.encode()).hexdigest(), text
+
+
+def _stored_key(backend) -> str | None:
+    with backend.open() as f:
+        return f[backend.name].attrs.get("rvkep_key")
+
+
+def _store_key(backend, key: str, text: str) -> None:
+    with backend.open("a") as f:
+        f[backend.name].attrs["rvkep_key"] = key
+        f[backend.name].attrs["rvkep_model"] = text
+
+
 def initial_ball(
     post: LogPosterior, center: np.ndarray, n: int, rng: np.random.Generator, scale=None
 ) -> np.ndarray:
@@ -282,7 +320,10 @@ def run_sampler(
     """Sample the posterior of ``model`` from a best-fit vector ``start``.
 
     With ``options.checkpoint`` set, steps go to that HDF5 file; if the file holds a
-    compatible chain and ``options.resume`` is true, the run continues from it.
+    chain of the same model and settings (:func:`checkpoint_key`: priors, fixed values,
+    trend, noise model, instruments, data, walkers, seed, moves, stopping rule) and
+    ``options.resume`` is true, the run continues from it; any other chain there is
+    replaced by a new one (a :class:`CheckpointNotice` says so).
     KeyboardInterrupt flushes the completed steps to the file and is re-raised.
     """
     import time
@@ -304,16 +345,23 @@ def run_sampler(
         path.parent.mkdir(parents=True, exist_ok=True)
         if path.exists() and not opts.resume:
             path.unlink()
+        key, key_text = checkpoint_key(model, opts, nwalkers)
         backend = BufferedHDFBackend(path)
+        if backend.initialized and _stored_key(backend) != key:
+            # another model, other priors, data or settings: never resume that chain
+            warnings.warn(
+                f"{path}: the checkpoint belongs to another model, data set or sampler "
+                "settings; starting a new chain",
+                CheckpointNotice,
+                stacklevel=2,
+            )
+            path.unlink()
+            backend = BufferedHDFBackend(path)
         if backend.initialized:
-            if backend.shape != (nwalkers, ndim):
-                raise RvkepError(
-                    f"{path}: holds a chain of shape {backend.shape} (walkers, parameters); "
-                    f"this model needs {(nwalkers, ndim)}. Remove the file to start over."
-                )
             resumed_steps = backend.iteration
         else:
             backend.reset(nwalkers, ndim)
+            _store_key(backend, key, key_text)
     sampler = emcee.EnsembleSampler(
         nwalkers, ndim, post, vectorize=True, moves=_moves(opts.moves), backend=backend
     )

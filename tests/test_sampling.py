@@ -38,11 +38,11 @@ def test_linear_model_matches_analytic_posterior():
     # (common practice, no source; Bayesian linear regression)
     data = linear_star()
     comps = [
-        Companion("b", Fixed(7.0), Fixed(53.0), Uniform(-50, 50), Fixed(0.0)),
-        Companion("c", Fixed(17.0), Fixed(51.0), Uniform(-50, 50), Fixed(0.0)),
-    ]
-    comps[0].start = {"period": 7.0, "tc": 53.0, "K": 4.0}
-    comps[1].start = {"period": 17.0, "tc": 51.0, "K": 2.5}
+        Companion("b", Fixed(7.0), Fixed(53.0), Uniform(-50, 50), Fixed(0.0),
+                  start={"period": 7.0, "tc": 53.0, "K": 4.0}),
+        Companion("c", Fixed(17.0), Fixed(51.0), Uniform(-50, 50), Fixed(0.0),
+                  start={"period": 17.0, "tc": 51.0, "K": 2.5}),
+    ]  # fmt: skip
     model = SystemModel(data, comps, [Instrument("a", Fixed(0.0))])
     # the design: each companion's curve at unit K
     X = np.column_stack([

@@ -1,0 +1,193 @@
+"""No silent wrong answers: checkpoints keyed on the whole model, default priors from
+one place, inputs never changed, outputs readable and marked with the kind of run."""
+
+import copy
+import os
+import pickle
+import stat
+import warnings
+from dataclasses import FrozenInstanceError, replace
+
+import numpy as np
+import pytest
+
+from rvkep import defaults
+from rvkep.data import RVData
+from rvkep.model import SystemModel
+from rvkep.orbit import radial_velocity
+from rvkep.priors import Uniform
+from rvkep.sampling import CheckpointNotice, SamplerOptions, UnconvergedWarning, run_sampler
+
+
+def one_planet(seed=4, n=40):
+    """Invented star (seed 4): P = 9.4 d, K = 12 m/s, e = 0.2, one instrument."""
+    rng = np.random.default_rng(seed)
+    t = np.sort(rng.uniform(2459000, 2459150, n))
+    v = radial_velocity(t, 9.4, 2459001.0, 0.2, 1.0, 12.0)
+    return RVData(t, v + rng.normal(0, 2.0, n), np.full(n, 2.0), np.full(n, "a"))
+
+
+@pytest.fixture(scope="module")
+def planet_fit():
+    from rvkep.optimize import fit_companions
+
+    return fit_companions(one_planet(), [[9.4]])
+
+
+def _sample(model, theta, path, steps=200):
+    opts = SamplerOptions(seed=3, max_steps=steps, check_every=100, tau_factor=1e9,
+                          progress=False, checkpoint=path)  # fmt: skip
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        res = run_sampler(model, theta, opts)
+    notices = [w for w in caught if issubclass(w.category, CheckpointNotice)]
+    return res, notices
+
+
+# -- 1. a changed model never resumes an old chain ----------------------------------
+
+
+def test_changed_prior_starts_a_new_chain(tmp_path, planet_fit):
+    model, theta = planet_fit.model, planet_fit.theta
+    path = tmp_path / "chain.h5"
+    first, notices = _sample(model, theta, path)
+    assert not notices
+    # same command again: resumes exactly (nothing new to do at the same cap)
+    again, notices = _sample(model, theta, path)
+    assert not notices and np.array_equal(again.chain, first.chain)
+    # a tighter K prior (still holding the best fit) must not reuse the chain
+    K_best = planet_fit.params["b.K"]
+    tight = replace(model.companions[0], K=Uniform(0.0, K_best + 0.5))
+    changed = model.with_companions([tight])
+    second, notices = _sample(changed, theta, path)
+    assert len(notices) == 1
+    assert second.steps == 200
+    assert np.all(second.chain[..., model.names.index("b.K")] <= K_best + 0.5)
+
+
+def test_changed_trend_starts_a_new_chain(tmp_path, planet_fit):
+    model, theta = planet_fit.model, planet_fit.theta
+    path = tmp_path / "chain.h5"
+    _sample(model, theta, path)
+    with_trend = replace(model, trend=1)
+    assert with_trend.names == model.names  # the trend is linear: same sampled names
+    res, notices = _sample(with_trend, theta, path)
+    assert len(notices) == 1 and res.steps == 200
+
+
+def test_canonical_dump_sees_every_prior_parameter(planet_fit):
+    model = planet_fit.model
+    c = model.companions[0]
+    base = model.canonical()
+    for changed in (
+        replace(c, K=Uniform(0.0, c.K.high * 0.5)),
+        replace(c, ecc=Uniform(0.0, 0.5)),
+        replace(c, period=Uniform(5.0, 20.0)),
+        replace(c, tc=Uniform(c.tc.low - 1.0, c.tc.high)),
+    ):
+        assert model.with_companions([changed]).canonical() != base
+    inst = replace(model.instruments[0], jitter=Uniform(0.0, 3.0))
+    assert replace(model, instruments=[inst]).canonical() != base
+    other = one_planet(seed=5)
+    assert SystemModel(other, model.companions).canonical() != base
+
+
+# -- 4. default priors from one place ------------------------------------------------
+
+
+def two_spectrographs():
+    """Invented data (seed 8): one 20 m/s planet seen by two instruments whose zero
+    points differ by 12 km/s."""
+    rng = np.random.default_rng(8)
+    t = np.sort(rng.uniform(2459000, 2459400, 60))
+    inst = np.where(np.arange(60) % 2 == 0, "red", "blue")
+    v = radial_velocity(t, 30.0, 2459003.0, 0.1, 1.0, 20.0)
+    v += np.where(inst == "red", 0.0, 12_000.0) + rng.normal(0, 2.0, 60)
+    return RVData(t, v, np.full(60, 2.0), inst)
+
+
+def test_K_prior_ignores_zero_point_differences():
+    data = two_spectrographs()
+    prior = defaults.K_prior(data, 20.0)
+    # peak-to-peak of a 20 m/s orbit plus noise is about 40-50 m/s, so the bound is
+    # about 100 m/s, not 2 x 12 km/s
+    assert prior.high < 150.0
+
+
+def test_search_and_model_file_give_one_period_prior(tmp_path):
+    from rvkep.modelfile import parse_model
+    from rvkep.optimize import fit_companions
+
+    data = two_spectrographs()
+    pr = defaults.default_period_range(data)
+    from_search = fit_companions(data, [[30.0]], period_range=pr)
+    spec = parse_model({"companions": {"b": {"period": 30.0}}})
+    from_file = fit_companions(data, [[30.0]], specs=spec.companions, period_range=pr)
+    a, b = from_search.model.companions[0], from_file.model.companions[0]
+    assert a.period == b.period and a.K == b.K and a.ecc == b.ecc
+
+
+# -- 5. nothing changes its inputs ----------------------------------------------------
+
+
+def test_descriptions_are_frozen(planet_fit):
+    c = planet_fit.model.companions[0]
+    with pytest.raises(FrozenInstanceError):
+        c.K = Uniform(0, 1)
+    with pytest.raises(FrozenInstanceError):
+        planet_fit.model.instruments[0].start_jitter = 5.0
+
+
+def _snapshot(obj):
+    return pickle.dumps(obj)
+
+
+def test_public_functions_leave_their_arguments_alone(tmp_path):
+    from rvkep.optimize import fit, fit_companions
+    from rvkep.posterior import PosteriorSamples
+    from rvkep.search import search
+
+    data = one_planet()
+    data_before = copy.deepcopy(data)
+    base = SystemModel(data, [])
+    base_before = _snapshot(base)
+    res = search(data, max_signals=1, base=base)
+    assert _snapshot(base) == base_before
+    first = fit_companions(data, [[9.4]], base=base)
+    assert _snapshot(base) == base_before
+    model_before = _snapshot(first.model)
+    theta_before = first.theta.copy()
+    fit(first.model, [first.theta])
+    fit_companions(data, [[30.0]], base=base, previous=first)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        run = run_sampler(first.model, first.theta,
+                          SamplerOptions(seed=1, max_steps=100, progress=False))  # fmt: skip
+    flat = run.flat.copy()
+    PosteriorSamples.from_chain(first.model, run.flat, run.flat_log_prob, rng=1)
+    assert np.array_equal(run.flat, flat)
+    assert _snapshot(first.model) == model_before
+    assert np.array_equal(first.theta, theta_before)
+    for name in ("time", "rv", "err", "instrument"):
+        assert np.array_equal(getattr(data, name), getattr(data_before, name))
+    assert res.fits[0].model.instruments == base.instruments
+
+
+# -- 7. files follow the umask ----------------------------------------------------------
+
+
+def test_outputs_follow_the_umask(tmp_path):
+    from rvkep.outputs import write_text
+
+    old = os.umask(0o002)
+    try:
+        p = write_text(tmp_path / "a.txt", "x")
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(p.stat().st_mode) == 0o664
+    old = os.umask(0o077)
+    try:
+        q = write_text(tmp_path / "b.txt", "x")
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(q.stat().st_mode) == 0o600
