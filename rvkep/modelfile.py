@@ -81,9 +81,7 @@ class CompanionSpec:
     ecc: Prior | None = None
     start: dict = field(default_factory=dict)
 
-    def build(
-        self, data: RVData, period_range: tuple[float, float] | None = None
-    ) -> Companion:
+    def build(self, data: RVData, period_range: tuple[float, float] | None = None) -> Companion:
         """The :class:`Companion`, default priors (:mod:`rvkep.defaults`, the same the
         search uses) filled in; tc's default needs a start tc, so call after the start
         search when tc has no start."""
