@@ -46,7 +46,8 @@ __all__ = ["Target", "read_targets", "run_target", "run_batch", "write_summary",
 _REQUIRED = ("name", "data", "star_mass", "star_mass_err")
 _OPTIONAL = ("max_planets", "planets", "model", "kms", "trend")
 SUMMARY_FIELDS = [
-    "row", "name", "status", "n_planets", "seconds", "error", "label",
+    "row", "name", "status", "n_planets", "seconds", "error", "run_kind", "converged",
+    "quick", "star_mass_assumed", "label",
     "period_d", "period_minus", "period_plus", "K_mps", "K_minus", "K_plus",
     "ecc", "ecc_minus", "ecc_plus", "msini_mjup", "msini_minus", "msini_plus",
 ]  # fmt: skip
@@ -211,6 +212,20 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
     return info
 
 
+def _run_kind_cells(res: dict) -> dict:
+    """The kind of run of one target's results (empty cells when it has none)."""
+    if not res:
+        return {}
+    kind = res.get("run_kind", {})
+    yes_no = {True: "yes", False: "no"}
+    return {
+        "run_kind": kind.get("label", ""),
+        "converged": yes_no[bool(res.get("sampler", {}).get("converged", False))],
+        "quick": yes_no[bool(res.get("sampler", {}).get("quick_mode", False))],
+        "star_mass_assumed": yes_no[bool(res.get("star", {}).get("assumed", False))],
+    }
+
+
 def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> list[dict]:
     rows = []
     for t in targets:
@@ -230,10 +245,12 @@ def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> l
                 "n_planets": res.get("n_planets", ""),
                 "seconds": f"{info.get('seconds', 0):.1f}",
                 "error": info.get("error", ""),
+                **_run_kind_cells(res),
             }
         )
         for p in res.get("planets", []):
-            row = {"row": "companion", "name": t.name, "status": status, "label": p["label"]}
+            row = {"row": "companion", "name": t.name, "status": status, "label": p["label"],
+                   **_run_kind_cells(res)}  # fmt: skip
             for key, col in (
                 ("period_d", "period"),
                 ("K_mps", "K"),

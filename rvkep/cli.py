@@ -16,7 +16,11 @@ from collections.abc import Sequence
 from rvkep import __version__
 from rvkep.errors import RvkepError
 
-__all__ = ["main", "build_parser"]
+__all__ = ["main", "build_parser", "BATCH_FAILED_EXIT"]
+
+#: Exit status of ``rvkep batch`` when one or more targets failed (the others ran and
+#: the summary was written). 2 stays "a usage or input error", 130 "interrupted".
+BATCH_FAILED_EXIT = 3
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -49,13 +53,13 @@ def _load(args: argparse.Namespace):
     """Read the data files, printing unit warnings as one line each."""
     import warnings
 
-    from rvkep.data import UnitWarning, load_rv
+    from rvkep.data import DataWarning, load_rv
 
     with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", UnitWarning)
+        warnings.simplefilter("always", DataWarning)
         data = load_rv(args.files, kms=args.kms)
     for w in caught:
-        if issubclass(w.category, UnitWarning):
+        if issubclass(w.category, DataWarning):
             print(f"rvkep {args.command}: warning: {w.message}", file=sys.stderr)
     return data
 
@@ -344,6 +348,10 @@ def _run_batch(args: argparse.Namespace) -> int:
         done = sum(i["status"] in ("done", "skipped") for i in infos.values())
         print(f"{done} of {len(infos)} target(s) complete, {len(failed)} failed; "
               f"summary: {args.out}/summary.csv")  # fmt: skip
+    if failed:
+        print(f"rvkep batch: {len(failed)} target(s) failed: {', '.join(failed[:5])}"
+              + (" ..." if len(failed) > 5 else ""), file=sys.stderr)  # fmt: skip
+        return BATCH_FAILED_EXIT
     return 0
 
 

@@ -40,6 +40,8 @@ __all__ = [
     "RVData",
     "DataSummary",
     "UnitWarning",
+    "DataWarning",
+    "LayoutWarning",
     "load_rv",
     "read_rv_file",
     "COLUMN_NAMES",
@@ -74,11 +76,53 @@ MIN_POINTS = 8
 
 _COMMENT_CHARS = ("#", "!", "%")
 _NAME_TO_ROLE = {name: role for role, names in COLUMN_NAMES.items() for name in names}
+# words of compound header names (``rv_mps``, ``velocity_error``, ``time_bjd``)
+_UNIT_WORDS = {"mps", "ms", "m_s", "kms", "km_s", "kmps", "d", "day", "days", "m", "s", "km"}
+_ERR_WORDS = {"err", "error", "errors", "sigma", "sig", "unc", "uncertainty", "e", "s", "std",
+              "dv", "erv", "svrad", "evrad", "u"}  # fmt: skip
+_RV_WORDS = {"rv", "vrad", "velocity", "vel", "v", "radvel", "vr", "radial", "mnvel"}
+_TIME_WORDS = {"time", "t", "bjd", "jd", "mjd", "hjd", "rjd", "date", "epoch", "btjd",
+               "bjdtdb", "tdb", "utc", "obs"}  # fmt: skip
+
+
+def _column_role(norm: str) -> str | None:
+    """The role a normalised header name plays: exact names first, then compound
+    names read word by word with unit words dropped (``rv_mps`` -> rv,
+    ``err_mps`` -> err, ``velocity_error`` -> err, ``time_bjd`` -> time)."""
+    role = _NAME_TO_ROLE.get(norm)
+    if role is not None:
+        return role
+    if norm.startswith(("bjd_", "jd_", "mjd_", "hjd_")):
+        return "time"
+    words = [w for w in norm.split("_") if w]
+    core = [w for w in words if w not in _UNIT_WORDS] or words
+    role = _NAME_TO_ROLE.get("_".join(core))
+    if role is not None:
+        return role
+    has_rv = any(w in _RV_WORDS for w in core)
+    has_err = any(w in _ERR_WORDS for w in core)
+    if has_err and (has_rv or len(core) == 1):
+        return "err"
+    if has_rv and not has_err:
+        return "rv"
+    if all(w in _TIME_WORDS or w.isdigit() for w in core):
+        return "time"
+    return None
+
+
 _NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eEdD][+-]?\d+)?$|^[+-]?(nan|inf)$", re.I)
 
 
-class UnitWarning(UserWarning):
+class DataWarning(UserWarning):
+    """Something about the input that the user should know (printed as one line)."""
+
+
+class UnitWarning(DataWarning):
     """Velocities were read as m/s but look like km/s (or the reverse)."""
+
+
+class LayoutWarning(DataWarning):
+    """The header named no recognisable columns; they were read by position."""
 
 
 @dataclass(frozen=True)
@@ -349,15 +393,29 @@ def _find_layout(path: Path, lines: list[str]) -> _Layout:
         roles = []
         for raw in names:
             norm = _normalise_name(raw)
-            role = _NAME_TO_ROLE.get(norm)
-            if role is None and norm.startswith(("bjd_", "jd_", "mjd_", "hjd_")):
-                role = "time"
+            role = _column_role(norm)
             if role is None or role in roles:
                 role = f"extra:{norm or 'column'}"
             if role in ("rv", "err") and "km" in raw.lower():
                 kms = True
             roles.append(role)
         missing = [r for r in ("time", "rv", "err") if r not in roles]
+        recognised = [r for r in roles if not r.startswith("extra:")]
+        if not recognised and ncol >= 3:
+            # a header naming nothing we know: read time, rv, err by position, say so
+            roles = ["time", "rv", "err"]
+            for j in range(3, ncol):
+                if j == 3 and not _looks_numeric(cells[3]):
+                    roles.append("instrument")
+                else:
+                    roles.append(f"extra:{_normalise_name(names[j]) or f'column{j + 1}'}")
+            warnings.warn(
+                f"{path}, line {idx + 1}: no column name recognised ({', '.join(names)}); "
+                "read as time, rv, err by position",
+                LayoutWarning,
+                stacklevel=4,
+            )
+            return _Layout(first_data, delimiter, ncol, roles, idx + 1, False)
         if missing:
             known = ", ".join(COLUMN_NAMES[missing[0]][:6])
             raise DataError(

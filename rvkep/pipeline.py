@@ -22,7 +22,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rvkep.data import RVData, UnitWarning, load_rv
+from rvkep.data import DataWarning, RVData, load_rv
 from rvkep.errors import OptionError, RvkepError
 from rvkep.physics import StarProperties
 
@@ -136,10 +136,10 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     if not files:
         raise OptionError("no data files given (on the command line or in the model file)")
     with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", UnitWarning)
+        warnings.simplefilter("always", DataWarning)
         data = load_rv(files, kms=opts.kms or (spec.kms if spec else False))
     for w in caught:
-        if issubclass(w.category, UnitWarning):
+        if issubclass(w.category, DataWarning):
             _say(opts, f"warning: {w.message}")
     star = spec.star if spec and spec.star else None
     if opts.star_mass is not None:
@@ -257,11 +257,21 @@ def _trend_curve(params: dict, t: np.ndarray, epoch: float) -> np.ndarray:
 
 def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
     """The time series, phase curves, periodograms and corner plots of a result."""
+    from rvkep import __version__
     from rvkep.likelihood import keplerian_velocity
-    from rvkep.outputs import save_figure
+    from rvkep.outputs import save_figure as _save
     from rvkep.plots import plot_corner, plot_periodograms, plot_phase, plot_timeseries
 
     out = Path(out)
+    footer = f"rvkep {__version__} | {results.run_label()}"
+    marked = bool(results.run_marks())
+
+    def save_figure(fig, path):  # every figure says what kind of run drew it
+        fig.text(0.995, 0.003, footer, ha="right", va="bottom", fontsize=6.5,
+                 color="#b2182b" if marked else "0.45")  # fmt: skip
+        key = "Subject" if str(path).endswith(".pdf") else "Description"
+        return _save(fig, path, metadata={key: footer})
+
     data = results.data
     fit = results.fit
     model = fit.model

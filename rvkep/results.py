@@ -98,6 +98,28 @@ class Results:
 
     # -- summaries ------------------------------------------------------------
 
+    @property
+    def converged(self) -> bool:
+        if self.sampling is None:
+            return False
+        return bool(self.sampling.diagnostics().get("converged", False))
+
+    def run_marks(self) -> list[str]:
+        """What kind of run made these results, as short marks (empty for a final,
+        converged run with a given stellar mass). Every output carries them."""
+        marks = []
+        if self.quick:
+            marks.append("QUICK MODE (short chains, preview only)")
+        if not self.converged:
+            marks.append("NOT CONVERGED (preliminary)")
+        if self.star_assumed:
+            marks.append(f"stellar mass ASSUMED ({self.star.mass:g} M_sun)")
+        return marks
+
+    def run_label(self) -> str:
+        """The marks joined into one line, or ``final`` when there are none."""
+        return "; ".join(self.run_marks()) or "final"
+
     def estimate(self, column: str) -> dict[str, float]:
         if column.endswith("omega_deg"):
             return circular_percentiles(self.posterior[column])
@@ -165,6 +187,12 @@ class Results:
         star = self.star
         return {
             "rvkep_version": __version__,
+            "run_kind": {
+                "label": self.run_label(),
+                "quick": bool(self.quick),
+                "converged": self.converged,
+                "star_mass_assumed": bool(self.star_assumed),
+            },
             "n_planets": len(self.labels),
             "planets": planets,
             "instruments": instruments,
@@ -234,10 +262,13 @@ class Results:
         return rows
 
     def latex_table(self) -> str:
-        lines = [
+        lines = [f"% rvkep {__version__}: {self.run_label()}"]
+        lines += [
             r"\begin{table}",
             r"\centering",
-            r"\caption{Orbital and derived parameters (posterior median and 68\% interval).}",
+            r"\caption{Orbital and derived parameters (posterior median and 68\% interval)"
+            + ("" if not self.run_marks() else f" [{_latex_escape(self.run_label())}]")
+            + ".}",
             r"\begin{tabular}{llll}",
             r"\hline",
             r"Object & Parameter & Value & Unit \\",
@@ -251,7 +282,10 @@ class Results:
         return "\n".join(lines) + "\n"
 
     def csv_table(self) -> str:
-        out = ["object,parameter,median,minus,plus,unit"]
+        out = [
+            f"# rvkep {__version__}: {self.run_label()}",
+            "object,parameter,median,minus,plus,unit",
+        ]
         for L in self.labels:
             for key, col, unit, _ in _PLANET_COLUMNS:
                 if f"{L}.{col}" in self.posterior:
@@ -396,6 +430,13 @@ class Results:
             out / "results.json", json.dumps(_clean(self.to_dict()), indent=2) + "\n"
         )
         return paths
+
+
+def _latex_escape(text: str) -> str:
+    for a, b in (("\\", r"\textbackslash{}"), ("%", r"\%"), ("_", r"\_"), ("&", r"\&"),
+                 ("#", r"\#"), ("$", r"\$")):  # fmt: skip
+        text = text.replace(a, b)
+    return text
 
 
 def _plain(unit: str) -> str:

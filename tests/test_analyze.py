@@ -65,8 +65,30 @@ def test_demo_files_and_figures(demo_run):
     md = (demo_run / "summary.md").read_text()
     assert "Quick mode" in md and "| b |" in md
     tex = (demo_run / "parameters.tex").read_text()
-    assert r"\begin{tabular}" in tex and "^{+" in tex or r"\pm" in tex
+    assert r"\begin{tabular}" in tex
+    assert "^{+" in tex or r"\pm" in tex  # asymmetric or symmetric errors
     assert not list(demo_run.glob(".*tmp*"))
+
+
+def test_every_output_says_it_was_a_quick_run(demo_run):
+    res = json.loads((demo_run / "results.json").read_text())
+    assert res["run_kind"]["quick"] is True and "QUICK" in res["run_kind"]["label"]
+    tex = (demo_run / "parameters.tex").read_text().splitlines()
+    assert tex[0].startswith("% rvkep") and "QUICK MODE" in tex[0]
+    assert any("caption" in line and "QUICK MODE" in line for line in tex)
+    csv = (demo_run / "parameters.csv").read_text().splitlines()
+    assert csv[0].startswith("# rvkep") and "QUICK MODE" in csv[0]
+    assert "Quick mode" in (demo_run / "summary.md").read_text()
+
+
+def test_figures_carry_the_kind_of_run(demo_run):
+    from PIL import Image
+
+    pngs = sorted(demo_run.glob("*.png"))
+    assert len(pngs) >= 6
+    for png in pngs:  # the footer drawn on the figure is also in the PNG's text chunk
+        with Image.open(png) as im:
+            assert "QUICK MODE" in im.info.get("Description", ""), png.name
 
 
 def test_pure_noise_gives_no_companion(tmp_path):

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 
 from rvkep.batch import read_targets, run_batch
-from rvkep.cli import main
+from rvkep.cli import BATCH_FAILED_EXIT, main
 from rvkep.errors import DataError
 from rvkep.orbit import radial_velocity
 
@@ -73,8 +73,14 @@ def test_target_list_errors(tmp_path):
 def test_local_batch_and_skip_on_rerun(tmp_path, capsys):
     targets = make_targets(tmp_path / "in", 3)
     out = tmp_path / "out"
-    assert main(["batch", str(targets), "--out", str(out), "--workers", "2", "--quick"]) == 0
+    # one target fails (the broken file): the others run, the summary is written and
+    # the exit status says that something failed
+    code = main(["batch", str(targets), "--out", str(out), "--workers", "2", "--quick"])
+    assert code == BATCH_FAILED_EXIT == 3
     check_complete(out, 3)
+    rows = {r["name"]: r for r in read_summary(out) if r["row"] == "target"}
+    assert rows["star0"]["quick"] == "yes" and "QUICK MODE" in rows["star0"]["run_kind"]
+    assert rows["star0"]["converged"] in ("yes", "no") and rows["broken"]["run_kind"] == ""
     first = (out / "star0" / "results.json").stat().st_mtime_ns
     infos = run_batch(targets, out, workers=2, quick=True, quiet=True)
     assert infos["star0"]["status"] == "skipped"
@@ -98,7 +104,7 @@ def test_rerun_after_sigkill(tmp_path):
     for folder in out.glob("star*"):  # a complete-looking folder is complete
         if (folder / "done.json").exists():
             assert (folder / "results.json").exists() and (folder / "timeseries.png").exists()
-    assert subprocess.run(cmd, timeout=300).returncode == 0
+    assert subprocess.run(cmd, timeout=300).returncode == BATCH_FAILED_EXIT  # "broken" fails
     check_complete(out, 4)
 
 
@@ -113,7 +119,7 @@ def test_dask_local_cluster(tmp_path):
         address = cluster.scheduler_address
         code = main(["batch", str(targets), "--out", str(out), "--scheduler", address,
                      "--quick", "--quiet"])  # fmt: skip
-    assert code == 0
+    assert code == BATCH_FAILED_EXIT  # the broken target
     check_complete(out, 2)
     res = json.loads((out / "star0" / "results.json").read_text())
     assert res["n_planets"] == 1

@@ -76,7 +76,7 @@ seed = 7
     tex = (out / "parameters.tex").read_text()
     assert r"$m \sin i$" in tex and r"\dot\gamma" in tex
     csv = (out / "parameters.csv").read_text().splitlines()
-    assert csv[0] == "object,parameter,median,minus,plus,unit"
+    assert csv[0].startswith("# rvkep ") and csv[1] == "object,parameter,median,minus,plus,unit"
     assert any(line.startswith("b,msini_mjup,") for line in csv)
 
 

@@ -4,6 +4,7 @@ one place, inputs never changed, outputs readable and marked with the kind of ru
 import copy
 import os
 import pickle
+import re
 import stat
 import warnings
 from dataclasses import FrozenInstanceError, replace
@@ -191,3 +192,60 @@ def test_outputs_follow_the_umask(tmp_path):
     finally:
         os.umask(old)
     assert stat.S_IMODE(q.stat().st_mode) == 0o600
+
+
+# -- 8. exit codes and usage lines ------------------------------------------------------
+
+
+def test_usage_lines_show_optional_positionals_as_optional():
+    import argparse
+
+    from rvkep.cli import build_parser
+
+    parser = build_parser()
+    sub = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
+    checked = 0
+    for name, p in sub.choices.items():
+        usage = p.format_usage()
+        for action in p._actions:
+            if action.option_strings:
+                continue
+            metavar = action.metavar or action.dest
+            if action.nargs in ("*", "?"):
+                assert f"[{metavar}" in usage, (name, usage)
+                checked += 1
+            elif action.nargs in (None, "+"):  # required: shown bare, not in brackets
+                assert re.search(rf"(^|\s){re.escape(metavar)}(\s|$)", usage), (name, usage)
+    assert checked >= 2  # analyze's and sample's data files
+
+
+# -- 9. column names as people write them ------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "header",
+    ["# time_bjd rv_mps err_mps", "# t v e", "# epoch velocity velocity_error",
+     "# BJD_TDB RV[m/s] sigma_mps", "# jd v_mps e_v_mps"],
+)  # fmt: skip
+def test_compound_and_short_header_names(tmp_path, header):
+    from rvkep.data import read_rv_file
+
+    rows = "\n".join(f"{2459000 + 3.1 * i:.4f} {5.0 * np.sin(i):.3f} 1.5" for i in range(12))
+    f = tmp_path / "north.txt"
+    f.write_text(header + "\n" + rows + "\n")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # recognised: no warning
+        d = read_rv_file(f)
+    assert len(d) == 12 and np.all(d.err == 1.5) and d.time[0] == 2459000.0
+
+
+def test_unrecognised_header_is_read_by_position_with_one_line(tmp_path):
+    from rvkep.data import LayoutWarning, read_rv_file
+
+    rows = "\n".join(f"{2459000 + 3.1 * i:.4f} {5.0 * np.sin(i):.3f} 1.5 {i}" for i in range(12))
+    f = tmp_path / "south.txt"
+    f.write_text("# alpha beta gamma delta\n" + rows + "\n")
+    with pytest.warns(LayoutWarning, match=r"south.txt, line 1: .*by position"):
+        d = read_rv_file(f)
+    assert np.all(d.err == 1.5) and d.rv[1] == pytest.approx(5.0 * np.sin(1), abs=1e-3)
+    assert "delta" in d.extra
