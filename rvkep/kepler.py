@@ -33,6 +33,7 @@ References
 from __future__ import annotations
 
 import os
+import warnings
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -43,6 +44,8 @@ __all__ = [
     "true_anomaly_from_eccentric",
     "check_eccentricity",
     "BACKEND",
+    "available_backends",
+    "backend_kernels",
     "rv_rows",
     "rv_kernel",
 ]
@@ -154,23 +157,61 @@ def _rv_rows_np(t, tp, n, e, cosw, sinw, K, out):
     out[:] = _rv_np(t, tp[col], n[col], e[col], cosw[col], sinw[col], K[col])
 
 
-def _load_backend():
-    numpy_path = ("numpy", _ecc_anom_flat_np, _rv_flat_np, _rv_rows_np)
-    if os.environ.get("RVKEP_PURE_NUMPY", "") not in ("", "0"):
-        return numpy_path
-    try:
-        import numba  # noqa: F401
-    except ImportError:
-        return numpy_path
+def _load_compiled():
+    """The numba kernels, or None (with one warning) when numba cannot load them."""
     try:
         from rvkep import _kepler_numba as nb
-    except Exception:  # numba present but unusable: keep the numpy path
-        return numpy_path
-    return "numba", nb.ecc_anom_flat, nb.rv_flat, nb.rv_rows
+    except ImportError:
+        warnings.warn(
+            "numba is not installed: rvkep uses its pure-numpy Kepler kernels "
+            "(same results, about 10x slower)",
+            RuntimeWarning,
+            stacklevel=3,
+        )
+        return None
+    except Exception as exc:  # numba present but unusable
+        warnings.warn(
+            f"the compiled Kepler kernels failed to load ({type(exc).__name__}: {exc}); "
+            "using the pure-numpy path (same results, about 10x slower)",
+            RuntimeWarning,
+            stacklevel=3,
+        )
+        return None
+    return nb.ecc_anom_flat, nb.rv_flat, nb.rv_rows
 
+
+def _backend_table() -> dict[str, tuple]:
+    table = {"numpy": (_ecc_anom_flat_np, _rv_flat_np, _rv_rows_np)}
+    if os.environ.get("RVKEP_PURE_NUMPY", "") in ("", "0"):
+        compiled = _load_compiled()
+        if compiled is not None:
+            table = {"numba": compiled, **table}
+    return table
+
+
+#: Kernel implementations that loaded, fastest first: name -> (eccentric anomaly,
+#: RV with broadcasting, RV rows), each writing into its last argument.
+_BACKENDS = _backend_table()
 
 #: Which implementation is in use: ``"numba"`` or ``"numpy"``.
-BACKEND, _ecc_anom_flat, _rv_flat, _rv_rows = _load_backend()
+BACKEND = next(iter(_BACKENDS))
+_ecc_anom_flat, _rv_flat, _rv_rows = _BACKENDS[BACKEND]
+
+
+def available_backends() -> list[str]:
+    """Names of the kernel implementations that loaded here, the one in use first."""
+    return list(_BACKENDS)
+
+
+def backend_kernels(name: str) -> tuple:
+    """The (eccentric anomaly, RV flat, RV rows) kernels of one backend (for tests
+    and benchmarks that compare them)."""
+    try:
+        return _BACKENDS[name]
+    except KeyError:
+        raise ValueError(
+            f"unknown or unavailable backend {name!r}; available: {', '.join(_BACKENDS)}"
+        ) from None
 
 
 def _flat(a):

@@ -161,7 +161,8 @@ class Normal(Prior):
 
     def logpdf(self, x):
         z = (np.asarray(x, float) - self.mean) / self.sd
-        return -0.5 * z * z - math.log(self.sd) - _LOG_SQRT_2PI
+        out = -0.5 * z * z - math.log(self.sd) - _LOG_SQRT_2PI
+        return np.where(np.isnan(out), -np.inf, out)  # NaN is never a valid value
 
     def ppf(self, u):
         return self.mean + self.sd * special.ndtri(np.asarray(u, float))
