@@ -16,7 +16,7 @@ from collections.abc import Sequence
 from rvkep import __version__
 from rvkep.errors import RvkepError
 
-__all__ = ["main", "build_parser", "BATCH_FAILED_EXIT"]
+__all__ = ["main", "build_parser", "BATCH_FAILED_EXIT", "demo_folder"]
 
 #: Exit status of ``rvkep batch`` when one or more targets failed (the others ran and
 #: the summary was written). 2 stays "a usage or input error", 130 "interrupted".
@@ -268,17 +268,13 @@ def _add_analyze(sub) -> None:
 
 
 def _run_demo(args: argparse.Namespace) -> int:
-    from pathlib import Path
 
     from rvkep.errors import DataError
     from rvkep.pipeline import analyze
 
-    folder = Path(__file__).resolve().parent.parent / "demo_data"
+    folder = demo_folder()
     if not (folder / "truth.json").exists():
-        raise DataError(
-            f"{folder}: demo data not found; install rvkep from its source "
-            "folder (pip install -e .)"
-        )
+        raise DataError(f"{folder}: demo data missing from this installation of rvkep")
     files = [str(folder / "kestrel.txt"), str(folder / "osprey.csv")]
     if args.star_mass is None:
         truth = json.loads((folder / "truth.json").read_text())
@@ -287,12 +283,19 @@ def _run_demo(args: argparse.Namespace) -> int:
     if not args.quiet:
         print(
             "demo: the invented star Veyla, seen by two invented spectrographs "
-            "(kestrel, osprey); truth in demo_data/truth.json"
+            f"(kestrel, osprey); truth in {folder / 'truth.json'}"
         )
     analyze(files, _analyze_options(args, args.out))
     if not args.quiet:
         print(f"open {args.out}/summary.md and the figures there")
     return 0
+
+
+def demo_folder():
+    """The bundled demo star's folder (package data, present in any install)."""
+    from pathlib import Path
+
+    return Path(__file__).resolve().parent / "demo_data"
 
 
 def _add_demo(sub) -> None:

@@ -6,7 +6,7 @@ rvkep itself plus white noise (the quoted error and a jitter term added in quadr
 with nightly sampling, seasonal gaps and weather losses. The truth is written beside
 the data in ``demo_data/truth.json``.
 
-Usage: python scripts/make_demo.py [OUTDIR]   (default: demo_data/)
+Usage: python scripts/make_demo.py [OUTDIR]   (default: rvkep/demo_data/, shipped with the package)
 """
 
 import json
@@ -55,7 +55,10 @@ def model(t):
     return v
 
 
-def main(outdir="demo_data"):
+DEFAULT_OUT = Path(__file__).resolve().parents[1] / "rvkep" / "demo_data"
+
+
+def main(outdir=DEFAULT_OUT):
     out = Path(outdir)
     out.mkdir(parents=True, exist_ok=True)
     rng = np.random.default_rng(SEED)
