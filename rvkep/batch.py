@@ -7,7 +7,7 @@ The target list is a CSV file with the columns
   by ``;``);
 * ``star_mass``, ``star_mass_err``: solar masses;
 * optional: ``max_planets``, ``planets``, ``model`` (a model file), ``kms`` (true/false),
-  ``trend`` (0, 1, 2).
+  ``trend`` (auto, 0, 1, 2; default auto).
 
 Each target runs :func:`rvkep.pipeline.analyze` into its own folder with its own log
 file (``log.txt``); a failure (bad file, failed fit) is recorded as one line in
@@ -65,7 +65,7 @@ class Target:
     planets: int | None = None
     model: str | None = None
     kms: bool = False
-    trend: int = 0
+    trend: int | str = "auto"
     line: int = 0
 
 
@@ -137,7 +137,12 @@ def read_targets(path: str | Path) -> list[Target]:
                 matches = sorted(glob.glob(full))
                 files.extend(matches or [full])
         kw = {}
-        for key in ("max_planets", "planets", "trend"):
+        if rec.get("trend"):
+            value = rec["trend"].strip()
+            if value not in ("auto", "0", "1", "2"):
+                raise DataError(f"{where}: trend must be auto, 0, 1 or 2, got {value!r}")
+            kw["trend"] = value if value == "auto" else int(value)
+        for key in ("max_planets", "planets"):
             if rec.get(key):
                 try:
                     kw[key] = int(rec[key])

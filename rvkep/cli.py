@@ -119,6 +119,7 @@ def _add_periodogram(sub) -> None:
     )
     _add_data_args(p)
     _add_search_args(p)
+    _add_trend_arg(p, auto=False)
     p.add_argument("--max-signals", type=int, default=5, help="most signals to look for")
     p.add_argument("--out", default=".", metavar="DIR", help="folder for the figure")
     p.set_defaults(run=_run_periodogram)
@@ -146,14 +147,29 @@ def _add_search_args(p: argparse.ArgumentParser) -> None:
         default=1e-3,
         help="false-alarm probability below which a peak counts (default 0.001)",
     )
-    p.add_argument(
-        "--trend",
-        type=int,
-        default=0,
-        choices=(0, 1, 2),
-        help="polynomial trend degree fitted along (default 0; a model file can set it)",
-    )
     p.add_argument("--format", default="png", choices=("png", "pdf"), help="figure format")
+
+
+def _trend_value(text: str):
+    if text == "auto":
+        return "auto"
+    if text in ("0", "1", "2"):
+        return int(text)
+    raise argparse.ArgumentTypeError(f"must be auto, 0, 1 or 2, not {text!r}")
+
+
+def _add_trend_arg(p: argparse.ArgumentParser, auto: bool) -> None:
+    if auto:
+        p.add_argument(
+            "--trend", type=_trend_value, default="auto", metavar="auto|0|1|2",
+            help="polynomial trend degree; auto (default) lets 0, 1 and 2 compete by BIC "
+            "like the companions (a model file's [trend] fixes it)",
+        )  # fmt: skip
+    else:
+        p.add_argument(
+            "--trend", type=int, default=0, choices=(0, 1, 2),
+            help="polynomial trend degree fitted along the search (default 0)",
+        )  # fmt: skip
 
 
 def _analyze_options(args: argparse.Namespace, out: str):
@@ -241,6 +257,7 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
         help="short chains for a preview or tests (flagged in every output)",
     )
     _add_search_args(p)
+    _add_trend_arg(p, auto=True)
     p.add_argument("--max-steps", type=int, default=None, help="cap on sampler steps")
 
 
@@ -311,7 +328,7 @@ def _add_demo(sub) -> None:
 def _run_sample(args: argparse.Namespace) -> int:
     args.planets, args.max_planets = None, 4
     args.min_period = args.max_period = None
-    args.fap, args.trend, args.quick = 1e-3, 0, False
+    args.fap, args.trend, args.quick = 1e-3, 0, False  # the model file says; else none
     args.star_mass, args.star_mass_err = None, 0.0
     from rvkep.pipeline import analyze
 

@@ -102,7 +102,7 @@ class ModelSpec:
     star_name: str = ""
     files: list[str] = field(default_factory=list)
     kms: bool = False
-    trend: int = 0
+    trend: int | None = None  # None: not given (analyze then chooses it)
     jitter: dict[str, Prior] = field(default_factory=dict)
     companions: list[CompanionSpec] = field(default_factory=list)
     sampling: dict = field(default_factory=dict)
@@ -118,7 +118,8 @@ class ModelSpec:
 
     def base_model(self, data: RVData) -> SystemModel:
         """The model without companions (instruments, trend, star)."""
-        return SystemModel(data, [], self.instruments_for(data), self.trend, self.star)
+        trend = self.trend if self.trend is not None else 0
+        return SystemModel(data, [], self.instruments_for(data), trend, self.star)
 
 
 def _where(path, *keys):
@@ -200,12 +201,13 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
     spec.kms = kms
     trend = doc.get("trend", {})
     _check_keys(trend, _TREND, _where(path, "trend"))
-    degree = trend.get("degree", 0)
-    if degree not in (0, 1, 2) or isinstance(degree, bool):
-        raise ModelFileError(
-            f"{_where(path, 'trend', 'degree')}: must be 0, 1 or 2, got {degree!r}"
-        )
-    spec.trend = int(degree)
+    if "degree" in trend:
+        degree = trend["degree"]
+        if degree not in (0, 1, 2) or isinstance(degree, bool):
+            raise ModelFileError(
+                f"{_where(path, 'trend', 'degree')}: must be 0, 1 or 2, got {degree!r}"
+            )
+        spec.trend = int(degree)
     instruments = doc.get("instruments", {})
     _check_keys(
         instruments,

@@ -401,6 +401,24 @@ def _new_companion(data, label, P, start, period_range, spec):
     return replace(spec, label=label, start=full).build(data, period_range)
 
 
+#: candidate periods fitted in full per new companion; the rest are ranked out by the
+#: exact linear (e, tp) grid, which costs a few milliseconds per period
+MAX_FULL_FITS = 5
+#: two periods whose best joint fits differ by less than this in ln L are ambiguous
+#: (a likelihood ratio below e^3 = 20; common practice, no source)
+AMBIGUOUS_DLNL = 3.0
+
+
+def _rank_by_grid(data, resid, weights, design, periods, keep):
+    """The ``keep`` periods whose best linear-grid chi2 is lowest (order kept)."""
+    if len(periods) <= keep:
+        return list(periods)
+    chi2 = [grid_starts(data, resid, weights, design, float(P), n_best=1)[0]["chi2"]
+            for P in periods]  # fmt: skip
+    best = sorted(np.argsort(chi2)[:keep])
+    return [periods[i] for i in best]
+
+
 def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitResult:
     model = current.model
     label = LABELS[len(model.companions)]
@@ -410,8 +428,10 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
     jit = np.array([current.params[f"jitter.{i.name}"] for i in model.instruments])
     weights = 1.0 / (model.err2 + jit[model.inst_index] ** 2)
     best = None
+    trials = []  # (fitted period, ln L) of every full fit
     if spec is not None:
         label = spec.label
+    periods = _rank_by_grid(data, resid, weights, model.design, list(periods), MAX_FULL_FITS)
     for P in periods:
         starts = []
         # conjunction nearest the epoch, or nearest the centre of a given tc prior
@@ -437,10 +457,32 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
             }
             theta0 = trial.from_physical(vals)[0]
             result = fit(trial, [theta0])
-            if best is None or result.log_posterior > best.log_posterior:
+            trials.append((result.params[f"{label}.period"], result.log_likelihood))
+            # the best joint LIKELIHOOD wins: posterior densities would favour short
+            # periods through the one-period-wide tc prior (a factor 1/P)
+            if best is None or result.log_likelihood > best.log_likelihood:
                 best = result
     # re-centre a default tc prior on the result (one phase mode around the best fit)
-    return _recentre(best, label if spec is None else None)
+    out = _recentre(best, label if spec is None else None)
+    out.extra["period_trials"] = trials
+    out.extra["ambiguous_with"] = _rivals(out.params[f"{label}.period"], out.log_likelihood,
+                                          trials)  # fmt: skip
+    return out
+
+
+def _rivals(period: float, logl: float, trials) -> list[dict]:
+    """Other periods whose best fit comes within AMBIGUOUS_DLNL of the best ln L."""
+    groups: dict[float, float] = {}
+    for P, lnl in trials:
+        if abs(P / period - 1.0) < 0.01:
+            continue
+        key = next((q for q in groups if abs(P / q - 1.0) < 0.01), P)
+        groups[key] = max(groups.get(key, -np.inf), lnl)
+    return [
+        {"period_d": float(P), "delta_ln_l": float(logl - lnl)}
+        for P, lnl in sorted(groups.items(), key=lambda kv: -kv[1])
+        if logl - lnl < AMBIGUOUS_DLNL
+    ]
 
 
 def _phys_keys(model: SystemModel) -> set[str]:

@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import time
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -52,7 +52,7 @@ class AnalyzeOptions:
     min_period: float | None = None
     max_period: float | None = None
     fap: float = 1e-3
-    trend: int = 0
+    trend: int | str = "auto"  # "auto": degrees 0, 1, 2 compete (choose_trend)
     fig_format: str = "png"
     max_steps: int | None = None
     figures: bool = True
@@ -74,7 +74,10 @@ def choose_companions(search_result, data, base, period_range, max_planets: int)
     n_fap = len(search_result.significant)
     # one more than the search accepted, from the best remaining peaks, for the table
     if n_fap < max_planets:
-        peaks = [p for p, _ in search_result.periodograms[n_fap].peaks(3)]
+        from rvkep.search import candidate_periods
+
+        pg = search_result.periodograms[n_fap]
+        peaks = candidate_periods(pg, data.time, period_range)
         try:
             extra = fit_companions(
                 data, [peaks], base=base, period_range=period_range, previous=fits[n_fap]
@@ -85,26 +88,125 @@ def choose_companions(search_result, data, base, period_range, max_planets: int)
     n = n_fap
     while n > 0 and fits[n].bic > fits[n - 1].bic - BIC_THRESHOLD:
         n -= 1
-    rows = []
-    best_bic = min(f.bic for f in fits)
-    for k, f in enumerate(fits):
-        rows.append(
-            {
-                "n_companions": k,
-                "log_likelihood": f.log_likelihood,
-                "bic": f.bic,
-                "delta_bic": f.bic - best_bic,
-                "aic": f.aic,
-                "periods_d": [f.params[f"{c.label}.period"] for c in f.model.companions],
-                "fap_of_last": (
-                    search_result.candidates[k - 1].fap
-                    if 0 < k <= len(search_result.candidates)
-                    else None
-                ),
-                "chosen": k == n,
-            }
-        )
+    rows = _comparison_rows(fits, n, search_result)
     return fits, n, rows
+
+
+def select_companions(data, base, opts: AnalyzeOptions, spec=None):
+    """Search and choose the companions for one trend degree (``base.trend``).
+
+    Returns (search result, chosen fit, companion-number comparison rows, message).
+    """
+    from rvkep.optimize import fit_companions
+    from rvkep.search import search
+
+    try:
+        search_result = search(
+            data, opts.min_period, opts.max_period, opts.fap,
+            max_signals=opts.planets if opts.planets is not None else opts.max_planets,
+            trend=base.trend, base=base,
+        )  # fmt: skip
+    except ValueError as exc:
+        raise OptionError(str(exc)) from None
+    period_range = (1.0 / search_result.frequency[-1], 1.0 / search_result.frequency[0])
+    if spec and spec.companions:
+        fit = fit_companions(data, [[c.start["period"]] for c in spec.companions], base=base,
+                             specs=spec.companions, period_range=period_range)  # fmt: skip
+        fits = [search_result.fits[0], fit]
+        comparison = _comparison_rows(fits, 1, search_result)
+        comparison[1]["n_companions"] = len(spec.companions)
+        return search_result, fit, comparison, f"model file: {len(spec.companions)} companion(s)"
+    if opts.planets is not None:
+        fits = list(search_result.fits)
+        from rvkep.periodogram import periodogram
+        from rvkep.search import candidate_periods, residual_velocities
+
+        while len(fits) <= opts.planets:  # the search stopped early: add the best peaks
+            resid, dy = residual_velocities(fits[-1])
+            pg = periodogram(data.time, resid, dy, data.instrument, search_result.frequency)
+            fits.append(fit_companions(data, [candidate_periods(pg, data.time, period_range)],
+                                       base=base, period_range=period_range,
+                                       previous=fits[-1]))  # fmt: skip
+        fits = fits[: opts.planets + 1]
+        comparison = _comparison_rows(fits, opts.planets, search_result)
+        return (search_result, fits[opts.planets], comparison,
+                f"{opts.planets} companion(s) fitted as asked (--planets)")  # fmt: skip
+    fits, n, comparison = choose_companions(
+        search_result, data, base, period_range, opts.max_planets
+    )
+    message = (f"search: {len(search_result.significant)} significant signal(s); "
+               f"{n} companion(s) kept after the BIC comparison")  # fmt: skip
+    return search_result, fits[n], comparison, message
+
+
+def choose_trend(outcomes: list) -> tuple[int, list[dict]]:
+    """The trend degree by the companions' rule: a higher degree is kept only if its
+    chosen model's BIC is lower by more than BIC_THRESHOLD. Returns (index, rows)."""
+    chosen = 0
+    for k in range(1, len(outcomes)):
+        if outcomes[k][1].bic < outcomes[chosen][1].bic - BIC_THRESHOLD:
+            chosen = k
+    rows = []
+    for k, (_, fit, _, _) in enumerate(outcomes):
+        rows.append({
+            "degree": fit.model.trend,
+            "n_companions": len(fit.model.companions),
+            "periods_d": [fit.params[f"{c.label}.period"] for c in fit.model.companions],
+            "log_likelihood": fit.log_likelihood,
+            "bic": fit.bic,
+            "delta_bic": fit.bic - min(o[1].bic for o in outcomes),
+            "chosen": k == chosen,
+        })  # fmt: skip
+    return chosen, rows
+
+
+def _selection_notes(search_result, fit, comparison) -> list[str]:
+    """Warnings about the choice that must reach every output: ambiguous periods, and
+    a better-scoring model that the rule did not choose."""
+    notes = []
+    by_label = {}
+    if search_result is not None:
+        for c, cand in zip(fit.model.companions, search_result.significant, strict=False):
+            by_label[c.label] = cand
+    for label, cand in by_label.items():
+        if cand.ambiguous_with:
+            alts = ", ".join(f"{a['period_d']:.6g} d (ln L lower by {a['delta_ln_l']:.1f})"
+                             for a in cand.ambiguous_with)  # fmt: skip
+            notes.append(f"period of {label} is AMBIGUOUS: {cand.period:.6g} d fits best, "
+                         f"but {alts} fit(s) nearly as well")  # fmt: skip
+    chosen = next((r for r in comparison if r.get("chosen")), None)
+    if chosen is not None:
+        for r in comparison:
+            more = r["n_companions"] > chosen["n_companions"]
+            if more and r["bic"] < chosen["bic"] - BIC_THRESHOLD:
+                notes.append(
+                    f"a model with {r['n_companions']} companions has a BIC lower by "
+                    f"{chosen['bic'] - r['bic']:.1f} but was not chosen (its last periodogram "
+                    "peak was not significant); inspect it before trusting the number"
+                )
+                break
+    return notes
+
+
+def _comparison_rows(fits, chosen: int, search_result) -> list[dict]:
+    """The companion-number comparison table (one row per number of companions)."""
+    best_bic = min(f.bic for f in fits)
+    rows = []
+    for k, f in enumerate(fits):
+        fap = None
+        if 0 < k <= len(search_result.candidates):
+            fap = search_result.candidates[k - 1].fap
+        rows.append({
+            "n_companions": k,
+            "log_likelihood": f.log_likelihood,
+            "bic": f.bic,
+            "delta_bic": f.bic - best_bic,
+            "aic": f.aic,
+            "periods_d": [f.params[f"{c.label}.period"] for c in f.model.companions],
+            "fap_of_last": fap,
+            "chosen": k == chosen,
+        })  # fmt: skip
+    return rows
 
 
 def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
@@ -112,7 +214,6 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     ``opts.out``). Raises RvkepError subclasses for bad input before writing anything."""
     from rvkep.model import SystemModel
     from rvkep.modelfile import read_model_file
-    from rvkep.optimize import fit_companions
     from rvkep.posterior import PosteriorSamples
     from rvkep.results import Results
     from rvkep.sampling import (
@@ -121,7 +222,6 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
         UnconvergedWarning,
         run_sampler,
     )
-    from rvkep.search import search
 
     opts = opts or AnalyzeOptions()
     t_start = time.perf_counter()
@@ -145,8 +245,6 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     if opts.star_mass is not None:
         if not opts.star_mass > 0 or opts.star_mass_err < 0:
             raise OptionError("--star-mass must be positive and --star-mass-err not negative")
-        from dataclasses import replace
-
         given = {"mass": opts.star_mass, "mass_err": opts.star_mass_err}
         star = replace(star, **given) if star else StarProperties(**given)
     for name, value, err in (
@@ -159,54 +257,30 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
             raise OptionError(f"--star-{name} needs --star-mass (or a model file's [star])")
         if not value > 0 or err < 0:
             raise OptionError(f"--star-{name} must be positive and its error not negative")
-        from dataclasses import replace
-
         star = replace(star, **{name: value, f"{name}_err": err})
     if star is not None and star.teff is not None and star.radius is None:
         raise OptionError("--star-teff needs --star-radius as well")
     out = Path(opts.out)
     _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                f"{', '.join(data.instruments)}")  # fmt: skip
-    base = spec.base_model(data) if spec else SystemModel(data, [], trend=opts.trend)
-    search_result = None
-    comparison: list[dict] = []
-    try:
-        search_result = search(
-            data, opts.min_period, opts.max_period, opts.fap,
-            max_signals=opts.planets if opts.planets is not None else opts.max_planets,
-            trend=base.trend, base=base,
-        )  # fmt: skip
-    except ValueError as exc:
-        raise OptionError(str(exc)) from None
-    period_range = (1.0 / search_result.frequency[-1], 1.0 / search_result.frequency[0])
-    if spec and spec.companions:
-        fit = fit_companions(data, [[c.start["period"]] for c in spec.companions], base=base,
-                             specs=spec.companions, period_range=period_range)  # fmt: skip
-        _say(opts, f"model file: {len(spec.companions)} companion(s)")
-    elif opts.planets is not None:
-        fits = list(search_result.fits)
-        from rvkep.periodogram import periodogram
-        from rvkep.search import residual_velocities
-
-        while len(fits) <= opts.planets:  # the search stopped early: add the best peaks
-            resid, dy = residual_velocities(fits[-1])
-            pg = periodogram(data.time, resid, dy, data.instrument, search_result.frequency)
-            fits.append(fit_companions(data, [[p for p, _ in pg.peaks(3)]], base=base,
-                                       period_range=period_range, previous=fits[-1]))  # fmt: skip
-        fit = fits[opts.planets]
-        comparison = [{"n_companions": k, "log_likelihood": f.log_likelihood, "bic": f.bic,
-                       "delta_bic": f.bic - min(g.bic for g in fits), "aic": f.aic,
-                       "periods_d": [f.params[f"{c.label}.period"] for c in f.model.companions],
-                       "fap_of_last": None, "chosen": k == opts.planets}
-                      for k, f in enumerate(fits)]  # fmt: skip
-        _say(opts, f"{opts.planets} companion(s) fitted as asked (--planets)")
+    base = spec.base_model(data) if spec else SystemModel(data, [])
+    if spec is not None and spec.trend is not None:
+        degrees = [spec.trend]  # the model file fixes it
+    elif opts.trend == "auto":
+        degrees = [0, 1, 2]
+    elif opts.trend in (0, 1, 2):
+        degrees = [int(opts.trend)]
     else:
-        fits, n, comparison = choose_companions(
-            search_result, data, base, period_range, opts.max_planets
-        )
-        fit = fits[n]
-        _say(opts, f"search: {len(search_result.significant)} significant signal(s); "
-                   f"{n} companion(s) kept after the BIC comparison")  # fmt: skip
+        raise OptionError(f"--trend must be auto, 0, 1 or 2, got {opts.trend!r}")
+    outcomes = [select_companions(data, replace(base, trend=d), opts, spec) for d in degrees]
+    chosen, trend_rows = choose_trend(outcomes)
+    search_result, fit, comparison, message = outcomes[chosen]
+    _say(opts, message)
+    if len(outcomes) > 1:
+        _say(opts, f"trend: degree {fit.model.trend} chosen of 0, 1, 2 (BIC, see trend_comparison)")
+    notes = _selection_notes(search_result, fit, comparison)
+    for note in notes:
+        _say(opts, f"note: {note}")
     # sampling, resumable through a checkpoint in the output folder
     sampling_spec = spec.sampling if spec else {}
     seed = opts.seed if opts.seed is not None else sampling_spec.get("seed", 0)
@@ -236,8 +310,9 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     )
     results = Results.build(
         data, fit, sampling, posterior, star, rng=seed + 1, search=search_result,
-        comparison=comparison, quick=opts.quick, seed=seed,
+        comparison=comparison, quick=opts.quick, seed=seed, trend_comparison=trend_rows,
     )  # fmt: skip
+    results.notes.extend(notes)
     if opts.quick:
         results.notes.append("quick mode: short chains for a preview, not for publication")
     paths = results.write(out)

@@ -61,6 +61,7 @@ class Results:
     star: StarProperties | None = None
     star_assumed: bool = False
     comparison: list[dict] = field(default_factory=list)
+    trend_comparison: list[dict] = field(default_factory=list)
     quick: bool = False
     seed: int | None = None
     notes: list[str] = field(default_factory=list)
@@ -148,7 +149,7 @@ class Results:
                     "median_error_mps": float(np.median(self.data.err[m])),
                 }
             )
-        trend = {"degree": model.trend}
+        trend = {"degree": model.trend, "compared": self.trend_comparison}
         if model.trend >= 1:
             trend["slope_mps_per_yr"] = self.estimate("trend.slope")
         else:
@@ -216,6 +217,7 @@ class Results:
                 "parameters": self.fit.params,
             },
             "model_comparison": self.comparison,
+            "trend_comparison": self.trend_comparison,
             "priors": [{"parameter": p, "prior": d} for p, d in model.describe_priors()],
             "reference_epoch": self.data.epoch,
             "seed": self.seed,
@@ -372,6 +374,21 @@ class Results:
             for row in d["model_comparison"]:
                 lines.append(
                     f"| {row['n_companions']} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
+                )
+            lines.append("")
+        if d["trend_comparison"]:
+            lines += [
+                "## Trend",
+                "",
+                "Degrees compared by the companions' rule (a higher degree must lower the BIC by more than 10):",
+                "",
+                "| degree | companions | periods [d] | ln L | BIC | delta BIC | chosen |",
+                "|---|---|---|---|---|---|---|",
+            ]
+            for row in d["trend_comparison"]:
+                periods = ", ".join(f"{p:.5g}" for p in row["periods_d"]) or "-"
+                lines.append(
+                    f"| {row['degree']} | {row['n_companions']} | {periods} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
                 )
             lines.append("")
         lines += [

@@ -3,9 +3,13 @@
 At each step the residuals of the current joint best fit (all companions found so far,
 per-instrument offsets and jitters, trend) are searched with a generalized Lomb-Scargle
 periodogram weighted by err^2 + jitter^2. If the highest peak's Baluev false-alarm
-probability is below the threshold (default 0.1%), the top few peaks are tried as the
-next companion's period in a joint Keplerian best fit (:mod:`rvkep.optimize`), which
-keeps whichever fits best; then the search goes on with the new residuals. It stops at
+probability is below the threshold (default 0.1%), the top few peaks, the highest
+peak's alias family (+- the window's daily and yearly peaks) and its harmonic family
+(2P, 3P, P/2) are tried as the next companion's period in a joint Keplerian best fit
+(:mod:`rvkep.optimize`), and the best joint likelihood wins (so an eccentric orbit
+whose sine power peaks at P/3 is fitted at P, and a daily alias loses to the true
+period); periods within a few units of ln L of the winner are reported as ambiguous.
+Then the search goes on with the new residuals. It stops at
 the first peak that is not significant, or at ``max_signals``.
 
 Each candidate carries its period, power, FAP, the fitted semi-amplitude, its alias
@@ -32,7 +36,7 @@ from rvkep.periodogram import (
     spectral_window,
 )
 
-__all__ = ["Candidate", "SearchResult", "search", "residual_velocities"]
+__all__ = ["Candidate", "SearchResult", "search", "residual_velocities", "candidate_periods"]
 
 
 @dataclass
@@ -46,6 +50,8 @@ class Candidate:
     significant: bool
     aliases: list[AliasCandidate] = field(default_factory=list)
     activity: list[str] = field(default_factory=list)  # indicators peaking here
+    tried: list[float] = field(default_factory=list)  # periods put to the joint fit
+    ambiguous_with: list[dict] = field(default_factory=list)  # {period_d, delta_ln_l}
 
     @property
     def alias_flags(self) -> str:
@@ -112,6 +118,43 @@ class SearchResult:
 
     def __str__(self) -> str:
         return self.table()
+
+
+def _snap(pg: Periodogram, f: float) -> float:
+    """The frequency of the periodogram's highest point within one peak width of f."""
+    width = 1.0 / float(pg.t.max() - pg.t.min())
+    near = np.flatnonzero(np.abs(pg.frequency - f) <= width)
+    if near.size == 0:
+        return f
+    return float(pg.frequency[near[np.argmax(pg.power[near])]])
+
+
+def candidate_periods(
+    pg: Periodogram, t: np.ndarray, period_range: tuple[float, float], n_peaks: int = 3
+) -> list[float]:
+    """Periods to put to the joint fit for the next companion.
+
+    The ``n_peaks`` highest peaks; for the highest, its alias family (its frequency
+    plus and minus the spectral window's daily and yearly peaks, each moved to the
+    periodogram's local maximum) and its harmonic family (2P, 3P and P/2: an
+    eccentric orbit puts sine power at P/2 and P/3). Members outside the search range
+    are dropped, near-duplicates (0.5%) merged. The joint fit's likelihood decides.
+    """
+    lo, hi = period_range
+    peaks = [p for p, _ in pg.peaks(n_peaks)]
+    if not peaks:
+        return []
+    top = peaks[0]
+    family = list(peaks)
+    for a in alias_candidates(pg, top, t):
+        f = _snap(pg, 1.0 / a.period)
+        family.append(1.0 / f)
+    family += [2.0 * top, 3.0 * top, 0.5 * top]
+    out: list[float] = []
+    for P in family:
+        if lo <= P <= hi and all(abs(P / q - 1.0) > 0.005 for q in out):
+            out.append(float(P))
+    return out
 
 
 def residual_velocities(fit_result: FitResult) -> tuple[np.ndarray, np.ndarray]:
@@ -181,7 +224,7 @@ def search(
         candidates.append(cand)
         if not significant:
             break
-        tries = [p for p, _ in pg.peaks(n_peaks)]
+        tries = candidate_periods(pg, data.time, period_range, n_peaks)
         current = fit_companions(
             data, [tries], base=base, period_range=period_range, previous=current
         )
@@ -189,4 +232,14 @@ def search(
         new = current.model.companions[-1].label
         cand.period = current.params[f"{new}.period"]
         cand.K = current.params[f"{new}.K"]
+        cand.tried = tries
+        cand.ambiguous_with = list(current.extra.get("ambiguous_with", []))
+    # report every accepted signal as the final joint fit has it (the periods of the
+    # companion-number comparison), not as it stood when first found
+    final = fits[-1]
+    for cand, comp in zip(
+        [c for c in candidates if c.significant], final.model.companions, strict=False
+    ):
+        cand.period = final.params[f"{comp.label}.period"]
+        cand.K = final.params[f"{comp.label}.K"]
     return SearchResult(candidates, periodograms, window, freq, activity, fits, fap_threshold)

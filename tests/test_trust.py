@@ -249,3 +249,87 @@ def test_unrecognised_header_is_read_by_position_with_one_line(tmp_path):
         d = read_rv_file(f)
     assert np.all(d.err == 1.5) and d.rv[1] == pytest.approx(5.0 * np.sin(1), abs=1e-3)
     assert "delta" in d.extra
+
+
+# -- 2. aliases and harmonics are settled by the joint fit ---------------------------------
+
+
+def seasonal_eccentric_star(seed=0, e=0.75, omega=3.5):
+    """Invented star (seed 0): one companion P = 381 d, e = 0.75, K = 60 m/s, seen 80
+    times in 150-day seasons over 5.5 years, so the sine periodogram's highest peak is
+    the harmonic near P/2."""
+    rng = np.random.default_rng(seed)
+    days = np.arange(2000)
+    days = days[(days % 365) < 150]
+    t = 2455000.0 + np.sort(rng.choice(days, 80, replace=False))
+    v = radial_velocity(t, 381.0, 2455100.0, e, omega, 60.0)
+    return RVData(t, v + rng.normal(0, 3.0, 80), np.full(80, 3.0), np.full(80, "north"))
+
+
+def test_eccentric_orbit_found_at_its_period_not_its_harmonic():
+    from rvkep.periodogram import frequency_grid, periodogram
+    from rvkep.search import search
+
+    data = seasonal_eccentric_star()
+    pg = periodogram(data.time, data.rv, data.err, data.instrument, frequency_grid(data.time))
+    top, _, fap = pg.best()
+    assert abs(top / 190.5 - 1) < 0.02 and fap < 1e-6  # the harmonic is the top peak
+    # only the top peak itself is offered: its harmonic family must bring 2P in
+    res = search(data, max_signals=2, n_peaks=1)
+    assert [round(c.period) for c in res.significant] == [381]
+    assert res.significant[0].tried[0] == pytest.approx(top)
+    assert any(abs(p / (2 * top) - 1) < 1e-9 for p in res.significant[0].tried)
+
+
+def test_daily_alias_loses_to_the_true_period_and_ambiguity_is_named():
+    from rvkep.cli import demo_folder
+    from rvkep.data import load_rv
+    from rvkep.pipeline import AnalyzeOptions, _selection_notes, select_companions
+
+    folder = demo_folder()
+    data = load_rv([folder / "kestrel.txt", folder / "osprey.csv"])
+    opts = AnalyzeOptions(min_period=0.5, quiet=True)
+    search_result, fit, comparison, _ = select_companions(data, SystemModel(data, []), opts)
+    # truth (scripts/make_demo.py, invented): 143.4 d and 11.87 d
+    periods = sorted(fit.params[f"{c.label}.period"] for c in fit.model.companions)
+    assert periods[0] == pytest.approx(11.87, rel=1e-3)
+    assert periods[1] == pytest.approx(143.4, rel=5e-3)
+    # the search and comparison tables carry the same periods
+    chosen = next(r for r in comparison if r["chosen"])
+    assert sorted(chosen["periods_d"]) == pytest.approx(periods)
+    assert sorted(c.period for c in search_result.significant) == pytest.approx(periods)
+    # the one-day alias of b nearly fits as well (within 3 in ln L): said, not hidden
+    b = search_result.significant[0]
+    assert any(abs(a["period_d"] - 1.004) < 0.01 for a in b.ambiguous_with)
+    notes = _selection_notes(search_result, fit, comparison)
+    assert any("AMBIGUOUS" in n and "1.004" in n for n in notes)
+
+
+# -- 3. the trend is chosen like the number of companions -----------------------------------
+
+
+def accelerating_star(seed=6):
+    """Invented star (seed 6): one companion P = 17.3 d, K = 9 m/s, plus a steady
+    acceleration of 25 m/s/yr over two years, two instruments."""
+    rng = np.random.default_rng(seed)
+    t = np.sort(rng.uniform(2459000, 2459000 + 730, 70))
+    inst = np.where(rng.uniform(size=70) < 0.5, "north", "south")
+    v = radial_velocity(t, 17.3, 2459004.0, 0.1, 1.0, 9.0) + 25.0 * (t - 2459365) / 365.25
+    v += np.where(inst == "north", 0.0, -40.0) + rng.normal(0, 1.5, 70)
+    return RVData(t, v, np.full(70, 1.5), inst)
+
+
+def test_acceleration_is_a_trend_not_a_second_companion():
+    from rvkep.pipeline import AnalyzeOptions, choose_trend, select_companions
+
+    data = accelerating_star()
+    opts = AnalyzeOptions(quiet=True)
+    outcomes = [select_companions(data, SystemModel(data, [], trend=d), opts) for d in (0, 1, 2)]
+    # without a trend the acceleration spoils the fit (here a spurious period wins)
+    assert outcomes[0][1].bic > outcomes[1][1].bic + 100
+    k, rows = choose_trend(outcomes)
+    fit = outcomes[k][1]
+    assert fit.model.trend == 1 and [r["chosen"] for r in rows] == [False, True, False]
+    assert [c.label for c in fit.model.companions] == ["b"]
+    assert fit.params["b.period"] == pytest.approx(17.3, rel=2e-3)
+    assert fit.params["trend.slope"] == pytest.approx(25.0, abs=1.5)
