@@ -68,6 +68,9 @@ _TREND = {"degree"}
 _INSTRUMENT = {"jitter"}
 _COMPANION = {"period", "tc", "K", "ecc", "omega_deg", "circular"}
 _SAMPLING = {"walkers", "max_steps", "seed"}
+# walkers: emcee's moves need at least a few; a cap keeps memory bounded (chain memory
+# is walkers x steps x parameters x 8 bytes)
+_SAMPLING_RANGE = {"walkers": (8, 10_000), "max_steps": (100, 10_000_000), "seed": (0, 2**32 - 1)}
 
 
 @dataclass
@@ -182,6 +185,9 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
             raise ModelFileError(f"{_where(path, 'star')}: needs 'mass' (solar masses)")
         vals = {k: _number(v, _where(path, "star", k), positive=k in ("mass", "radius", "teff"))
                 for k, v in star.items() if k != "name"}  # fmt: skip
+        for k, v in vals.items():
+            if k.endswith("_err") and v < 0:
+                raise ModelFileError(f"{_where(path, 'star', k)}: must not be negative, got {v:g}")
         spec.star = StarProperties(
             mass=vals["mass"], mass_err=vals.get("mass_err", 0.0),
             radius=vals.get("radius"), radius_err=vals.get("radius_err", 0.0),
@@ -251,6 +257,19 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
             c.start["ecc"] = 0.0
         elif isinstance(c.ecc, Fixed) and c.ecc.value != 0.0:
             raise ModelFileError(f"{where}.ecc: can only be fixed at 0 (write circular = true)")
+        if "period" in c.start and not 1e-3 <= c.start["period"] <= 1e7:
+            raise ModelFileError(
+                f"{where}.period: must lie between 0.001 and 1e7 days, got {c.start['period']:g}"
+            )
+        if c.period is not None:
+            # all but a negligible part (1e-9) of the prior must lie at positive periods
+            lo = c.period.value if c.period.is_fixed else float(c.period.ppf(1e-9))
+            if not lo > 0:
+                raise ModelFileError(
+                    f"{where}.period: the prior {c.period.describe()} allows periods <= 0"
+                )
+        if c.K is not None and c.K.is_fixed and c.K.value < 0:
+            raise ModelFileError(f"{where}.K: must not be negative, got {c.K.value:g}")
         if "period" not in c.start:
             if c.period is not None and not c.period.is_fixed:
                 lo, hi = c.period.bounds
@@ -268,6 +287,11 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
             if v != int(v):
                 raise ModelFileError(f"{_where(path, 'sampling', key)}: must be a whole number")
             v = int(v)
+        lo, hi = _SAMPLING_RANGE[key]
+        if not lo <= v <= hi:
+            raise ModelFileError(
+                f"{_where(path, 'sampling', key)}: must lie between {lo} and {hi:,}, got {v:,}"
+            )
         spec.sampling[key] = v
     return spec
 

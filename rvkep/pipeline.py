@@ -209,6 +209,62 @@ def _comparison_rows(fits, chosen: int, search_result) -> list[dict]:
     return rows
 
 
+#: bounds on the sampler's step cap: a chain shorter than two checks cannot be judged
+MIN_STEPS, MAX_STEPS = 100, 10_000_000
+
+
+def validate_options(opts: AnalyzeOptions) -> None:
+    """Check every option value before any work (raises OptionError naming it)."""
+    import math
+    import os
+
+    def finite(name, value, positive=False, nonneg=False):
+        if value is None:
+            return
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise OptionError(f"{name} must be a number, got {value!r}")
+        if not math.isfinite(value):
+            raise OptionError(f"{name} must be finite, got {value!r}")
+        if positive and not value > 0:
+            raise OptionError(f"{name} must be positive, got {value:g}")
+        if nonneg and value < 0:
+            raise OptionError(f"{name} must not be negative, got {value:g}")
+
+    if opts.planets is not None and opts.planets < 0:
+        raise OptionError("--planets must be 0 or more")
+    if opts.max_planets < 0:
+        raise OptionError("--max-planets must be 0 or more")
+    if opts.fig_format not in ("png", "pdf"):
+        raise OptionError(f"figure format must be png or pdf, got {opts.fig_format!r}")
+    for name in ("mass", "radius", "teff"):
+        finite(f"--star-{name}", getattr(opts, f"star_{name}"), positive=True)
+        err = getattr(opts, f"star_{name}_err")
+        finite(f"--star-{name}-err", err, nonneg=True)
+        if err and getattr(opts, f"star_{name}") is None:
+            raise OptionError(f"--star-{name}-err needs --star-{name}")
+    if not (isinstance(opts.fap, (int, float)) and 0 < opts.fap < 1):
+        raise OptionError(f"--fap must lie between 0 and 1, got {opts.fap!r}")
+    finite("--min-period", opts.min_period, positive=True)
+    finite("--max-period", opts.max_period, positive=True)
+    for name in ("min_period", "max_period"):
+        value = getattr(opts, name)
+        if value is not None and not 1e-3 <= value <= 1e7:
+            flag = "--" + name.replace("_", "-")
+            raise OptionError(f"{flag} must lie between 0.001 and 1e7 days, got {value:g}")
+    if opts.seed is not None and not 0 <= opts.seed < 2**32:
+        raise OptionError(f"--seed must be a whole number from 0 to 2**32 - 1, got {opts.seed}")
+    if opts.max_steps is not None and not MIN_STEPS <= opts.max_steps <= MAX_STEPS:
+        raise OptionError(
+            f"--max-steps must lie between {MIN_STEPS} and {MAX_STEPS:,}, got {opts.max_steps}"
+        )
+    out = Path(opts.out)
+    if out.exists() and not out.is_dir():
+        raise OptionError(f"--out {out}: exists and is not a folder")
+    probe = out if out.exists() else next((p for p in out.parents if p.exists()), Path("."))
+    if not os.access(probe, os.W_OK | os.X_OK):
+        raise OptionError(f"--out {out}: cannot write there ({probe} is not writable)")
+
+
 def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     """Run the whole job; returns :class:`rvkep.results.Results` (also written to
     ``opts.out``). Raises RvkepError subclasses for bad input before writing anything."""
@@ -225,12 +281,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
 
     opts = opts or AnalyzeOptions()
     t_start = time.perf_counter()
-    if opts.planets is not None and opts.planets < 0:
-        raise OptionError("--planets must be 0 or more")
-    if opts.max_planets < 0:
-        raise OptionError("--max-planets must be 0 or more")
-    if opts.fig_format not in ("png", "pdf"):
-        raise OptionError(f"figure format must be png or pdf, got {opts.fig_format!r}")
+    validate_options(opts)
     spec = read_model_file(opts.model_file) if opts.model_file else None
     files = list(files or (spec.files if spec else []))
     if not files:

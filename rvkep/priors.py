@@ -319,6 +319,12 @@ def prior_from_dict(spec: dict, where: str = "prior") -> Prior:
     if kind not in PRIOR_KINDS:
         raise ValueError(f"{where}: unknown prior {kind!r} (choose from {', '.join(PRIOR_KINDS)})")
     cls, required, mapping = PRIOR_KINDS[kind]
+    unknown = sorted(set(spec) - set(mapping) - {"prior"})
+    if unknown:
+        raise ValueError(
+            f"{where}: unknown key {unknown[0]!r} for a {kind} prior "
+            f"(allowed: {', '.join(mapping)})"
+        )
     missing = [k for k in required if k not in spec]
     if missing:
         raise ValueError(f"{where}: {kind} prior needs {', '.join(missing)}")
@@ -328,6 +334,8 @@ def prior_from_dict(spec: dict, where: str = "prior") -> Prior:
             value = spec[key]
             if isinstance(value, bool) or not isinstance(value, (int, float)):
                 raise ValueError(f"{where}: {key} must be a number, got {value!r}")
+            if not math.isfinite(value):
+                raise ValueError(f"{where}: {key} must be finite, got {value!r}")
             kwargs[attr] = float(value)
     try:
         return cls(**kwargs)

@@ -233,9 +233,13 @@ def test_calibration_across_synthetic_datasets():
         )
         data = RVData(t, v, err, np.full(40, "a"), epoch=0.0)
         comp = Companion(
-            "b", LogUniform(6.0, 25.0), Uniform(-2.5, 2.5), Uniform(4.0, 15.0), Uniform(0.0, 0.5)
+            "b",
+            LogUniform(6.0, 25.0),
+            Uniform(-2.5, 2.5),
+            Uniform(4.0, 15.0),
+            Uniform(0.0, 0.5),
+            start={"period": P, "tc": tc, "K": K, "ecc": max(e, 0.01), "omega": w},
         )
-        comp.start = {"period": P, "tc": tc, "K": K, "ecc": max(e, 0.01), "omega": w}
         model = SystemModel(data, [comp], [Instrument("a", Uniform(0.0, 3.0), max(jit, 0.1))])
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", UnconvergedWarning)

@@ -1,0 +1,91 @@
+"""Every option and model-file value is checked at the edge: one line naming the
+option or the key, exit status 2, nothing run and nothing written."""
+
+import os
+import stat
+
+import pytest
+
+from rvkep.cli import demo_folder, main
+
+DATA = [str(demo_folder() / "kestrel.txt"), str(demo_folder() / "osprey.csv")]
+
+
+@pytest.mark.parametrize(
+    "extra,message",
+    [
+        (["--seed", "-1"], "--seed must be a whole number"),
+        (["--max-steps", "1"], "--max-steps must lie between"),
+        (["--max-steps", "-5"], "--max-steps must lie between"),
+        (["--star-mass", "inf"], "--star-mass must be finite"),
+        (["--star-mass", "1", "--star-mass-err", "nan"], "--star-mass-err must be finite"),
+        (["--star-mass-err", "0.1"], "--star-mass-err needs --star-mass"),
+        (["--star-mass", "-1"], "--star-mass must be positive"),
+        (["--fap", "2"], "--fap must lie between 0 and 1"),
+        (["--fap", "-1"], "--fap must lie between 0 and 1"),
+        (["--min-period", "1e-9"], "--min-period must lie between"),
+        (["--max-period", "1e30"], "--max-period must lie between"),
+    ],
+)  # fmt: skip
+def test_bad_option_values_are_refused_before_any_work(tmp_path, capsys, extra, message):
+    out = tmp_path / "out"
+    code = main(["analyze", *DATA, "--quiet", "--quick", "--out", str(out), *extra])
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and message in err and len(err.splitlines()) == 1, err
+    assert not out.exists()
+
+
+def test_out_naming_a_file_is_refused(tmp_path, capsys):
+    target = tmp_path / "taken"
+    target.write_text("x")
+    assert main(["analyze", *DATA, "--quiet", "--out", str(target)]) == 2
+    assert "exists and is not a folder" in capsys.readouterr().err
+    assert target.read_text() == "x"
+
+
+@pytest.mark.skipif(os.geteuid() == 0, reason="root writes anywhere")
+def test_read_only_out_is_refused_first(tmp_path, capsys):
+    ro = tmp_path / "ro"
+    ro.mkdir()
+    ro.chmod(stat.S_IRUSR | stat.S_IXUSR)
+    assert main(["analyze", *DATA, "--quiet", "--out", str(ro / "x")]) == 2
+    assert "cannot write there" in capsys.readouterr().err
+
+
+def test_unwritable_out_detected_with_access_check(tmp_path, monkeypatch):
+    # root can write anywhere, so check the test through os.access itself
+    from rvkep.errors import OptionError
+    from rvkep.pipeline import AnalyzeOptions, validate_options
+
+    monkeypatch.setattr(os, "access", lambda path, mode: False)
+    with pytest.raises(OptionError, match="cannot write there"):
+        validate_options(AnalyzeOptions(out=str(tmp_path / "new")))
+
+
+@pytest.mark.parametrize(
+    "text,message",
+    [
+        ("[companions.b]\nperiod = -12.3", "companions.b.period: must lie between"),
+        ("[companions.b]\nperiod = 0", "companions.b.period: must lie between"),
+        ("[companions.b]\nperiod = {start = 3, prior = 'uniform', min = -10, max = 5}",
+         "allows periods <= 0"),
+        ("[companions.b]\nperiod = 10\nK = {prior = 'uniform', min = 0, maxx = 5}",
+         "unknown key 'maxx'"),
+        ("[companions.b]\nperiod = 10\nK = {prior = 'uniform', min = 0, max = 9, maxx = 5}",
+         "unknown key 'maxx'"),
+        ("[star]\nmass = 1.0\nmass_err = -0.1", "star.mass_err: must not be negative"),
+        ("[sampling]\nwalkers = 3", "sampling.walkers: must lie between"),
+        ("[sampling]\nwalkers = 10000000", "sampling.walkers: must lie between"),
+        ("[sampling]\nseed = -1", "sampling.seed"),
+        ("[companions.b]\nperiod = 10\nK = {prior = 'uniform', min = 0, max = inf}",
+         "must be finite"),
+    ],
+)  # fmt: skip
+def test_bad_model_file_values(tmp_path, text, message):
+    from rvkep.errors import ModelFileError
+    from rvkep.modelfile import read_model_file
+
+    f = tmp_path / "m.toml"
+    f.write_text(text + "\n")
+    with pytest.raises(ModelFileError, match=message.replace("(", r"\(")):
+        read_model_file(f)
