@@ -33,6 +33,7 @@ import glob
 import hashlib
 import json
 import os
+import re
 import sys
 import time
 from dataclasses import dataclass
@@ -290,7 +291,15 @@ def _local_pool(workers: int):
     return ProcessPoolExecutor(max_workers=workers, mp_context=mp.get_context("spawn"))
 
 
+_ADDRESS = re.compile(r"^((tcp|tls|inproc|ucx|ws|wss)://)?[\w.\-\[\]:]+:\d{1,5}$")
+
+
 def _dask_client(address: str):
+    if not _ADDRESS.match(address):
+        raise OptionError(
+            f"--scheduler {address!r}: not a scheduler address (expected tcp://HOST:PORT, "
+            "as printed by 'dask scheduler')"
+        )
     try:
         from distributed import Client
     except ImportError:

@@ -89,3 +89,12 @@ def test_bad_model_file_values(tmp_path, text, message):
     f.write_text(text + "\n")
     with pytest.raises(ModelFileError, match=message.replace("(", r"\(")):
         read_model_file(f)
+
+
+def test_scheduler_that_is_not_an_address(tmp_path, capsys):
+    targets = tmp_path / "t.csv"
+    targets.write_text(f"name,data,star_mass,star_mass_err\nveyla,{DATA[0]},0.92,0.04\n")
+    code = main(["batch", str(targets), "--out", str(tmp_path / "o"), "--scheduler",
+                 "notanaddress", "--quiet"])  # fmt: skip
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and "not a scheduler address" in err and len(err.splitlines()) == 1
