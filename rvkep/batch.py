@@ -243,6 +243,7 @@ def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> l
         res = {}
         if status == "done" and (folder / "results.json").exists():
             res = json.loads((folder / "results.json").read_text())
+        kind = _run_kind_cells(res)
         rows.append(
             {
                 "row": "target",
@@ -251,12 +252,12 @@ def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> l
                 "n_planets": res.get("n_planets", ""),
                 "seconds": f"{info.get('seconds', 0):.1f}",
                 "error": info.get("error", ""),
-                **_run_kind_cells(res),
+                **kind,
             }
         )
         for p in res.get("planets", []):
             row = {"row": "companion", "name": t.name, "status": status, "label": p["label"],
-                   **_run_kind_cells(res)}  # fmt: skip
+                   **kind}  # fmt: skip
             for key, col in (
                 ("period_d", "period"),
                 ("K_mps", "K"),

@@ -403,12 +403,7 @@ def _find_layout(path: Path, lines: list[str]) -> _Layout:
         recognised = [r for r in roles if not r.startswith("extra:")]
         if not recognised and ncol >= 3:
             # a header naming nothing we know: read time, rv, err by position, say so
-            roles = ["time", "rv", "err"]
-            for j in range(3, ncol):
-                if j == 3 and not _looks_numeric(cells[3]):
-                    roles.append("instrument")
-                else:
-                    roles.append(f"extra:{_normalise_name(names[j]) or f'column{j + 1}'}")
+            roles = _positional_roles(cells, [_normalise_name(n) for n in names])
             warnings.warn(
                 f"{path}, line {idx + 1}: no column name recognised ({', '.join(names)}); "
                 "read as time, rv, err by position",
@@ -428,13 +423,19 @@ def _find_layout(path: Path, lines: list[str]) -> _Layout:
             f"{path}, line {first_data + 1}: {ncol} column(s) without a header; "
             "need at least time, rv and err"
         )
+    return _Layout(first_data, delimiter, ncol, _positional_roles(cells), None, False)
+
+
+def _positional_roles(cells: list[str], names: list[str] | None = None) -> list[str]:
+    """Roles read by position: time, rv, err, then an instrument if the fourth cell is
+    not a number, then extra columns (named from ``names`` where given)."""
     roles = ["time", "rv", "err"]
-    for j in range(3, ncol):
+    for j in range(3, len(cells)):
         if j == 3 and not _looks_numeric(cells[3]):
             roles.append("instrument")
         else:
-            roles.append(f"extra:column{j + 1}")
-    return _Layout(first_data, delimiter, ncol, roles, None, False)
+            roles.append(f"extra:{(names[j] if names else '') or f'column{j + 1}'}")
+    return roles
 
 
 def _locate_bad_row(path: Path, lines: list[str], layout: _Layout) -> str:

@@ -409,14 +409,15 @@ MAX_FULL_FITS = 5
 AMBIGUOUS_DLNL = 3.0
 
 
-def _rank_by_grid(data, resid, weights, design, periods, keep):
-    """The ``keep`` periods whose best linear-grid chi2 is lowest (order kept)."""
-    if len(periods) <= keep:
-        return list(periods)
-    chi2 = [grid_starts(data, resid, weights, design, float(P), n_best=1)[0]["chi2"]
-            for P in periods]  # fmt: skip
-    best = sorted(np.argsort(chi2)[:keep])
-    return [periods[i] for i in best]
+def _grid_by_period(data, resid, weights, design, periods, n_starts, keep):
+    """Grid starts of the ``keep`` periods whose best linear-grid chi2 is lowest, as
+    (period, starts) in the given order (each period's grid is solved once)."""
+    grids = [(P, grid_starts(data, resid, weights, design, float(P), n_best=n_starts))
+             for P in periods]  # fmt: skip
+    if len(grids) <= keep:
+        return grids
+    best = sorted(np.argsort([g[0]["chi2"] for _, g in grids])[:keep])
+    return [grids[i] for i in best]
 
 
 def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitResult:
@@ -431,15 +432,16 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
     trials = []  # (fitted period, ln L) of every full fit
     if spec is not None:
         label = spec.label
-    periods = _rank_by_grid(data, resid, weights, model.design, list(periods), MAX_FULL_FITS)
-    for P in periods:
+    grids = _grid_by_period(data, resid, weights, model.design, list(periods), n_starts,
+                            MAX_FULL_FITS)  # fmt: skip
+    for P, grid in grids:
         starts = []
         # conjunction nearest the epoch, or nearest the centre of a given tc prior
         centre = data.epoch
         if spec is not None and spec.tc is not None:
             lo, hi = spec.tc.bounds
             centre = getattr(spec.tc, "mean", 0.5 * (lo + hi))
-        for g in grid_starts(data, resid, weights, model.design, float(P), n_best=n_starts):
+        for g in grid:
             tc = g["tc"] + data.epoch - centre
             starts.append(dict(g, tc=_nearest_tc(tc, P) + centre))
         if spec is not None and {"tc", "K"} <= set(spec.start):

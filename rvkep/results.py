@@ -101,9 +101,7 @@ class Results:
 
     @property
     def converged(self) -> bool:
-        if self.sampling is None:
-            return False
-        return bool(self.sampling.diagnostics().get("converged", False))
+        return bool(getattr(self.sampling, "converged", False))
 
     def run_marks(self) -> list[str]:
         """What kind of run made these results, as short marks (empty for a final,
@@ -149,7 +147,7 @@ class Results:
                     "median_error_mps": float(np.median(self.data.err[m])),
                 }
             )
-        trend = {"degree": model.trend, "compared": self.trend_comparison}
+        trend = {"degree": model.trend}
         if model.trend >= 1:
             trend["slope_mps_per_yr"] = self.estimate("trend.slope")
         else:

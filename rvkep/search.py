@@ -130,7 +130,11 @@ def _snap(pg: Periodogram, f: float) -> float:
 
 
 def candidate_periods(
-    pg: Periodogram, t: np.ndarray, period_range: tuple[float, float], n_peaks: int = 3
+    pg: Periodogram,
+    t: np.ndarray,
+    period_range: tuple[float, float],
+    n_peaks: int = 3,
+    known_aliases: tuple[float, list[AliasCandidate]] | None = None,
 ) -> list[float]:
     """Periods to put to the joint fit for the next companion.
 
@@ -139,6 +143,8 @@ def candidate_periods(
     periodogram's local maximum) and its harmonic family (2P, 3P and P/2: an
     eccentric orbit puts sine power at P/2 and P/3). Members outside the search range
     are dropped, near-duplicates (0.5%) merged. The joint fit's likelihood decides.
+    ``known_aliases`` is (period, its :func:`alias_candidates`) when already computed;
+    they are reused if that period is the top peak.
     """
     lo, hi = period_range
     peaks = [p for p, _ in pg.peaks(n_peaks)]
@@ -146,7 +152,11 @@ def candidate_periods(
         return []
     top = peaks[0]
     family = list(peaks)
-    for a in alias_candidates(pg, top, t):
+    if known_aliases is not None and known_aliases[0] == top:
+        aliases = known_aliases[1]
+    else:
+        aliases = alias_candidates(pg, top, t)
+    for a in aliases:
         f = _snap(pg, 1.0 / a.period)
         family.append(1.0 / f)
     family += [2.0 * top, 3.0 * top, 0.5 * top]
@@ -224,7 +234,9 @@ def search(
         candidates.append(cand)
         if not significant:
             break
-        tries = candidate_periods(pg, data.time, period_range, n_peaks)
+        tries = candidate_periods(
+            pg, data.time, period_range, n_peaks, known_aliases=(period, cand.aliases)
+        )
         current = fit_companions(
             data, [tries], base=base, period_range=period_range, previous=current
         )
