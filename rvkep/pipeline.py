@@ -147,6 +147,7 @@ def choose_trend(outcomes: list) -> tuple[int, list[dict]]:
         if outcomes[k][1].bic < outcomes[chosen][1].bic - BIC_THRESHOLD:
             chosen = k
     rows = []
+    best_bic = min(o[1].bic for o in outcomes)
     for k, (_, fit, _, _) in enumerate(outcomes):
         rows.append({
             "degree": fit.model.trend,
@@ -154,7 +155,7 @@ def choose_trend(outcomes: list) -> tuple[int, list[dict]]:
             "periods_d": [fit.params[f"{c.label}.period"] for c in fit.model.companions],
             "log_likelihood": fit.log_likelihood,
             "bic": fit.bic,
-            "delta_bic": fit.bic - min(o[1].bic for o in outcomes),
+            "delta_bic": fit.bic - best_bic,
             "chosen": k == chosen,
         })  # fmt: skip
     return chosen, rows
@@ -166,8 +167,14 @@ def _selection_notes(search_result, fit, comparison) -> list[str]:
     notes = []
     by_label = {}
     if search_result is not None:
-        for c, cand in zip(fit.model.companions, search_result.significant, strict=False):
-            by_label[c.label] = cand
+        # a search candidate belongs to the companion fitted at its period (a model
+        # file's companions need not be the search's, nor in its order)
+        for c in fit.model.companions:
+            P = fit.params[f"{c.label}.period"]
+            for cand in search_result.significant:
+                if abs(cand.period / P - 1.0) < 0.01:
+                    by_label[c.label] = cand
+                    break
     for label, cand in by_label.items():
         if cand.ambiguous_with:
             alts = ", ".join(f"{a['period_d']:.6g} d (ln L lower by {a['delta_ln_l']:.1f})"

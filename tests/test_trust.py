@@ -177,21 +177,16 @@ def test_public_functions_leave_their_arguments_alone(tmp_path):
 # -- 7. files follow the umask ----------------------------------------------------------
 
 
-def test_outputs_follow_the_umask(tmp_path):
+@pytest.mark.parametrize("umask,mode", [(0o002, 0o664), (0o077, 0o600)])
+def test_outputs_follow_the_umask(tmp_path, umask, mode):
     from rvkep.outputs import write_text
 
-    old = os.umask(0o002)
+    old = os.umask(umask)
     try:
         p = write_text(tmp_path / "a.txt", "x")
     finally:
         os.umask(old)
-    assert stat.S_IMODE(p.stat().st_mode) == 0o664
-    old = os.umask(0o077)
-    try:
-        q = write_text(tmp_path / "b.txt", "x")
-    finally:
-        os.umask(old)
-    assert stat.S_IMODE(q.stat().st_mode) == 0o600
+    assert stat.S_IMODE(p.stat().st_mode) == mode
 
 
 # -- 8. exit codes and usage lines ------------------------------------------------------
@@ -333,3 +328,18 @@ def test_acceleration_is_a_trend_not_a_second_companion():
     assert [c.label for c in fit.model.companions] == ["b"]
     assert fit.params["b.period"] == pytest.approx(17.3, rel=2e-3)
     assert fit.params["trend.slope"] == pytest.approx(25.0, abs=1.5)
+
+
+def test_ambiguity_notes_follow_the_companion_at_that_period():
+    # a model file may list companions in another order than the search found them:
+    # the note must name the companion fitted at the ambiguous period
+    from types import SimpleNamespace as NS
+
+    from rvkep.pipeline import _selection_notes
+
+    fit = NS(model=NS(companions=[NS(label="b"), NS(label="c")]),
+             params={"b.period": 11.87, "c.period": 143.4})  # fmt: skip
+    found = [NS(period=143.3, ambiguous_with=[{"period_d": 1.004, "delta_ln_l": 1.7}]),
+             NS(period=11.871, ambiguous_with=[])]  # fmt: skip
+    notes = _selection_notes(NS(significant=found), fit, [])
+    assert len(notes) == 1 and notes[0].startswith("period of c is AMBIGUOUS")
