@@ -34,6 +34,7 @@ import hashlib
 import json
 import os
 import re
+import signal
 import sys
 import time
 from dataclasses import dataclass
@@ -166,7 +167,9 @@ def _target_seed(seed: int, name: str) -> int:
 def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> dict:
     """Run one target into ``out/<name>/``; never raises for the target's own faults.
 
-    Returns {"name", "status" ("done", "failed", "skipped"), "seconds", "error"}.
+    Returns {"name", "status" ("done", "failed", "skipped", "interrupted"), "seconds",
+    "error"}. A KeyboardInterrupt while the target runs leaves its checkpoint flushed
+    and returns status "interrupted" (the next run resumes it).
     """
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ.setdefault(var, "1")
@@ -176,7 +179,6 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
         info = json.loads(done.read_text())
         return {**info, "status": "skipped"}
     folder.mkdir(parents=True, exist_ok=True)
-    clean_temporaries(folder)
     with contextlib.suppress(FileNotFoundError):
         (folder / "error.txt").unlink()
     t0 = time.perf_counter()
@@ -201,6 +203,8 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
                 trend=target.trend,
             )  # fmt: skip
             analyze(list(target.files), opts)
+        except KeyboardInterrupt:
+            status, error = "interrupted", "interrupted"
         except RvkepError as exc:
             status, error = "failed", str(exc)
         except Exception as exc:  # a failed fit must not stop the batch
@@ -213,9 +217,61 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
     info = {"name": target.name, "status": status, "seconds": seconds, "error": error}
     if status == "done":
         write_text(done, json.dumps(info) + "\n")  # last: marks the folder complete
-    else:
+    elif status == "failed":
         write_text(folder / "error.txt", error.replace("\n", " ") + "\n")
     return info
+
+
+# -- local worker processes ------------------------------------------------------------
+# A worker ignores Ctrl-C while idle (no traceback from the pool's queue) and turns the
+# first SIGINT during a target into a KeyboardInterrupt that the target handles (its
+# checkpoint is flushed); later ones are ignored so that nothing interrupts that flush.
+# A thread watches the parent: if it dies (kill -9, out of memory), an idle worker exits
+# at once and a busy one is interrupted like Ctrl-C and exits soon after.
+
+_BUSY = False
+_WATCH_SECONDS = 0.5
+_GRACE_SECONDS = 30.0
+
+
+def _interrupt_once(signum, frame):
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    raise KeyboardInterrupt
+
+
+def _watch_parent(parent: int) -> None:
+    import _thread
+
+    while os.getppid() == parent:
+        time.sleep(_WATCH_SECONDS)
+    if _BUSY:
+        _thread.interrupt_main(signal.SIGINT)
+        deadline = time.monotonic() + _GRACE_SECONDS
+        while _BUSY and time.monotonic() < deadline:
+            time.sleep(0.1)
+    os._exit(1)
+
+
+def _worker_init(parent: int) -> None:
+    import threading
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    threading.Thread(target=_watch_parent, args=(parent,), daemon=True).start()
+
+
+def _run_pooled(target: Target, out: str, seed: int, quick: bool) -> dict:
+    """run_target inside a local worker process (see the notes above)."""
+    global _BUSY
+    _BUSY = True
+    signal.signal(signal.SIGINT, _interrupt_once)
+    try:
+        return run_target(target, out, seed, quick)
+    except KeyboardInterrupt:  # between the target's own steps
+        return {"name": target.name, "status": "interrupted", "seconds": 0.0,
+                "error": "interrupted"}  # fmt: skip
+    finally:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+        _BUSY = False
 
 
 def _run_kind_cells(res: dict) -> dict:
@@ -237,7 +293,7 @@ def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> l
     for t in targets:
         info = infos.get(t.name, {})
         folder = out / t.name
-        status = info.get("status", "missing")
+        status = info.get("status", "not started")
         if status == "skipped":
             status = "done"
         res = {}
@@ -289,7 +345,10 @@ def _local_pool(workers: int):
     import multiprocessing as mp
     from concurrent.futures import ProcessPoolExecutor
 
-    return ProcessPoolExecutor(max_workers=workers, mp_context=mp.get_context("spawn"))
+    return ProcessPoolExecutor(
+        max_workers=workers, mp_context=mp.get_context("spawn"),
+        initializer=_worker_init, initargs=(os.getpid(),),
+    )  # fmt: skip
 
 
 _ADDRESS = re.compile(r"^((tcp|tls|inproc|ucx|ws|wss)://)?[\w.\-\[\]:]+:\d{1,5}$")
@@ -324,17 +383,33 @@ def run_batch(
     executor=None,
 ) -> dict[str, dict]:
     """Run every target (see the module text); returns {name: info} and writes the
-    summary. ``executor`` may be any object with ``submit`` (e.g. a Dask Client)."""
+    summary. ``executor`` may be any object with ``submit`` (e.g. a Dask Client).
+
+    On KeyboardInterrupt (Ctrl-C, or SIGINT to this process alone) no further target
+    starts, running targets on local workers are interrupted (their checkpoints
+    flushed, status "interrupted"), the summary of what finished is written and the
+    KeyboardInterrupt is re-raised. Tasks already running on a Dask cluster finish
+    there; queued ones are cancelled.
+    """
+    from rvkep.outputs import folder_lock
+
     targets = read_targets(targets_file)
     out = Path(out)
     out.mkdir(parents=True, exist_ok=True)
-    clean_temporaries(out)
+    with folder_lock(out):
+        clean_temporaries(out)
+        infos = _run_targets(targets, out, workers, scheduler, seed, quiet, quick, executor)
+    return infos
+
+
+def _run_targets(targets, out, workers, scheduler, seed, quiet, quick, executor):
     own = None
     if executor is None:
         if scheduler:
             executor = own = _dask_client(scheduler)
         else:
             executor = own = _local_pool(workers or os.cpu_count() or 1)
+    local = own is not None and not _is_dask(own)
     infos: dict[str, dict] = {}
     pending = []
     for t in targets:
@@ -352,48 +427,91 @@ def run_batch(
         bar = tqdm(
             total=len(targets), initial=len(targets) - len(pending), desc="targets", unit="star"
         )
-    try:
-        futures = {executor.submit(run_target, t, str(out), seed, quick): t for t in pending}
-        for fut in _as_completed(executor, futures):
-            t = futures[fut]
-            try:
-                info = fut.result()
-            except Exception as exc:  # the worker itself died
-                info = {
-                    "name": t.name,
-                    "status": "failed",
-                    "seconds": 0.0,
-                    "error": f"worker failed: {exc}",
-                }
-            infos[t.name] = info
-            if bar is not None:
-                bar.update(1)
-                bar.set_postfix(last=f"{t.name}: {info['status']}")
-            elif not quiet:
-                msg = f"{t.name}: {info['status']} ({info['seconds']:.1f} s)"
-                print(msg + (f" - {info['error']}" if info["error"] else ""), flush=True)
-    finally:
+
+    def record(fut, t):
+        try:
+            info = fut.result()
+        except Exception as exc:  # the worker itself died
+            info = {"name": t.name, "status": "failed", "seconds": 0.0,
+                    "error": f"worker failed: {exc}"}  # fmt: skip
+        infos[t.name] = info
         if bar is not None:
-            bar.close()
-        if own is not None:
-            # a Dask Client is closed, never shut down: that would stop the user's cluster
-            if _is_dask(own):
-                own.close()
-            else:
-                own.shutdown()
-    write_summary(targets, out, infos)
+            bar.update(1)
+            bar.set_postfix(last=f"{t.name}: {info['status']}")
+        elif not quiet:
+            msg = f"{t.name}: {info['status']} ({info['seconds']:.1f} s)"
+            print(msg + (f" - {info['error']}" if info["error"] else ""), flush=True)
+
+    # local pools get no more work than they have workers, so that nothing is queued
+    # inside the pool when the run is interrupted; a Dask cluster gets the whole list
+    window = (workers or os.cpu_count() or 1) if local else len(pending)
+    queue = list(pending)
+    running: dict = {}
+    try:
+        try:
+            while queue or running:
+                while queue and len(running) < window:
+                    t = queue.pop(0)
+                    fn = _run_pooled if local else run_target
+                    running[executor.submit(fn, t, str(out), seed, quick)] = t
+                for fut in _first_completed(executor, list(running)):
+                    record(fut, running.pop(fut))
+        except KeyboardInterrupt:
+            previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+            try:
+                _stop(executor, own if local else None, running, record)
+            finally:
+                signal.signal(signal.SIGINT, previous)
+            raise
+        finally:
+            if bar is not None:
+                bar.close()
+            if own is not None:
+                # a Dask Client is closed, never shut down: that would stop the cluster
+                if _is_dask(own):
+                    own.close()
+                else:
+                    own.shutdown(wait=True, cancel_futures=True)
+    finally:
+        write_summary(targets, out, infos)
     return infos
+
+
+def _stop(executor, pool, running: dict, record) -> None:
+    """After Ctrl-C: cancel what has not started, interrupt local workers, and record
+    what the running targets report within the grace period."""
+    for fut in list(running):
+        if fut.cancel():
+            running.pop(fut)
+    if _is_dask(executor):
+        executor.cancel(list(running))
+        return
+    deadline = time.monotonic() + _GRACE_SECONDS
+    while running and time.monotonic() < deadline:
+        if pool is not None:
+            for proc in list(getattr(pool, "_processes", {}).values()):
+                with contextlib.suppress(OSError):
+                    os.kill(proc.pid, signal.SIGINT)
+        from concurrent.futures import wait
+
+        done, _ = wait(list(running), timeout=0.5)
+        for fut in done:
+            record(fut, running.pop(fut))
+    if running and pool is not None:  # a worker that did not stop in time
+        for proc in list(getattr(pool, "_processes", {}).values()):
+            with contextlib.suppress(OSError):
+                proc.kill()
 
 
 def _is_dask(executor) -> bool:
     return type(executor).__module__.split(".")[0] == "distributed"
 
 
-def _as_completed(executor, futures):
+def _first_completed(executor, futures: list) -> list:
+    """Block until at least one future is done; return the done ones."""
     if _is_dask(executor):
-        from distributed import as_completed
-
-        return as_completed(list(futures))
-    from concurrent.futures import as_completed
-
-    return as_completed(futures)
+        from distributed import wait
+    else:
+        from concurrent.futures import wait
+    done, _ = wait(futures, return_when="FIRST_COMPLETED")
+    return list(done)

@@ -361,8 +361,14 @@ def _run_batch(args: argparse.Namespace) -> int:
         from rvkep.errors import OptionError
 
         raise OptionError("--workers must be at least 1")
-    infos = run_batch(args.targets, args.out, workers=args.workers, scheduler=args.scheduler,
-                      seed=args.seed, quiet=args.quiet, quick=args.quick)  # fmt: skip
+    try:
+        infos = run_batch(args.targets, args.out, workers=args.workers,
+                          scheduler=args.scheduler, seed=args.seed, quiet=args.quiet,
+                          quick=args.quick)  # fmt: skip
+    except KeyboardInterrupt:
+        print(f"rvkep batch: interrupted; what finished is in {args.out}/summary.csv "
+              "(run the same command again to go on)", file=sys.stderr)  # fmt: skip
+        return 130
     failed = [n for n, i in infos.items() if i["status"] == "failed"]
     if not args.quiet:
         done = sum(i["status"] in ("done", "skipped") for i in infos.values())

@@ -4,7 +4,7 @@ Every error a user can cause is one of these; the command line catches
 :class:`RvkepError` once and prints its message as a single line (exit status 2).
 """
 
-__all__ = ["RvkepError", "DataError", "ModelFileError", "OptionError"]
+__all__ = ["RvkepError", "DataError", "ModelFileError", "OptionError", "FolderBusyError"]
 
 
 class RvkepError(Exception):
@@ -24,3 +24,7 @@ class ModelFileError(RvkepError, ValueError):
 
 class OptionError(RvkepError, ValueError):
     """An option or argument combination is invalid."""
+
+
+class FolderBusyError(RvkepError):
+    """Another rvkep run holds the output folder (the message names the folder and it)."""

@@ -12,7 +12,15 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["atomic_write", "write_text", "save_figure", "clean_temporaries", "current_umask"]
+from rvkep.errors import FolderBusyError
+
+__all__ = [
+    "atomic_write", "write_text", "save_figure", "clean_temporaries", "current_umask",
+    "folder_lock", "LOCK_NAME",
+]  # fmt: skip
+
+#: The lock file of an output folder (see :func:`folder_lock`).
+LOCK_NAME = ".rvkep.lock"
 
 
 def current_umask() -> int:
@@ -79,3 +87,50 @@ def clean_temporaries(folder: str | Path) -> int:
             p.unlink()
             n += 1
     return n
+
+
+@contextlib.contextmanager
+def folder_lock(folder: str | Path):
+    """Hold an advisory lock on an output folder for the length of a run.
+
+    The lock is :func:`fcntl.flock` on ``<folder>/.rvkep.lock``, which also records the
+    holder (process id, host, start time, command). The kernel releases it when the
+    process ends, however it ends, so a killed run never leaves a stale lock. A second
+    run into the same folder raises :class:`rvkep.errors.FolderBusyError` naming the
+    folder and the running process. Where ``fcntl`` does not exist (Windows) no lock
+    is taken.
+    """
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - not on POSIX systems
+        yield
+        return
+    import socket
+    import sys
+    import time
+
+    folder = Path(folder)
+    path = folder / LOCK_NAME
+    fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o666 & ~current_umask())
+    try:
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except OSError:
+            holder = os.pread(fd, 4096, 0).decode("utf-8", "replace").strip() or "unknown"
+            raise FolderBusyError(
+                f"{folder}: another rvkep run is writing there ({holder}); wait for it to "
+                "finish or choose another --out"
+            ) from None
+        command = " ".join(["rvkep", *sys.argv[1:]])[:300]
+        stamp = time.strftime("%Y-%m-%d %H:%M:%S")
+        note = f"pid {os.getpid()} on {socket.gethostname()} since {stamp}: {command}\n"
+        os.ftruncate(fd, 0)
+        os.pwrite(fd, note.encode(), 0)
+        try:
+            yield
+        finally:
+            with contextlib.suppress(OSError):
+                os.ftruncate(fd, 0)
+            fcntl.flock(fd, fcntl.LOCK_UN)
+    finally:
+        os.close(fd)

@@ -24,6 +24,7 @@ import numpy as np
 
 from rvkep.data import DataWarning, RVData, load_rv
 from rvkep.errors import OptionError, RvkepError
+from rvkep.outputs import clean_temporaries, folder_lock
 from rvkep.physics import StarProperties
 
 __all__ = ["AnalyzeOptions", "analyze", "BIC_THRESHOLD", "write_figures", "choose_companions"]
@@ -275,16 +276,7 @@ def validate_options(opts: AnalyzeOptions) -> None:
 def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     """Run the whole job; returns :class:`rvkep.results.Results` (also written to
     ``opts.out``). Raises RvkepError subclasses for bad input before writing anything."""
-    from rvkep.model import SystemModel
     from rvkep.modelfile import read_model_file
-    from rvkep.posterior import PosteriorSamples
-    from rvkep.results import Results
-    from rvkep.sampling import (
-        CheckpointNotice,
-        SamplerOptions,
-        UnconvergedWarning,
-        run_sampler,
-    )
 
     opts = opts or AnalyzeOptions()
     t_start = time.perf_counter()
@@ -319,6 +311,24 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     if star is not None and star.teff is not None and star.radius is None:
         raise OptionError("--star-teff needs --star-radius as well")
     out = Path(opts.out)
+    out.mkdir(parents=True, exist_ok=True)
+    with folder_lock(out):  # one run per output folder
+        clean_temporaries(out)  # left by a run that was killed
+        return _analyze_in(out, data, spec, star, opts, t_start)
+
+
+def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: float):
+    """The part of :func:`analyze` that runs while the output folder is locked."""
+    from rvkep.model import SystemModel
+    from rvkep.posterior import PosteriorSamples
+    from rvkep.results import Results
+    from rvkep.sampling import (
+        CheckpointNotice,
+        SamplerOptions,
+        UnconvergedWarning,
+        run_sampler,
+    )
+
     _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                f"{', '.join(data.instruments)}")  # fmt: skip
     base = spec.base_model(data) if spec else SystemModel(data, [])
@@ -345,7 +355,6 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     walkers = sampling_spec.get("walkers") or max(32, 4 * fit.model.ndim)
     walkers += walkers % 2
     max_steps = opts.max_steps or sampling_spec.get("max_steps") or (1500 if opts.quick else 40000)
-    out.mkdir(parents=True, exist_ok=True)
     chain_path = out / "chain.h5"  # keyed on the whole model and settings (sampling.py)
     if fit.model.ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")

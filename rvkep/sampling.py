@@ -30,6 +30,7 @@ References
 
 from __future__ import annotations
 
+import contextlib
 import math
 import sys
 import warnings
@@ -297,6 +298,40 @@ def initial_ball(
     raise RvkepError("could not place the walkers inside the prior around the best fit")
 
 
+@contextlib.contextmanager
+def _interrupt_between_steps():
+    """Turn Ctrl-C into a KeyboardInterrupt at the next step boundary of the loop.
+
+    emcee prints a traceback for any exception raised inside the log-posterior (and a
+    signal arriving during an HDF5 write would leave a half-written step), so while the
+    sampler runs a SIGINT only sets a flag; the loop calls the yielded function after
+    each step, which raises KeyboardInterrupt once the flag is set. Only the main
+    thread can install signal handlers; elsewhere (a Dask worker thread) and where
+    SIGINT is ignored this does nothing.
+    """
+    import signal
+    import threading
+
+    hit = []
+    previous = None
+    if threading.current_thread() is threading.main_thread():
+        previous = signal.getsignal(signal.SIGINT)
+        if previous in (signal.SIG_IGN, None):
+            previous = None
+        else:
+            signal.signal(signal.SIGINT, lambda signum, frame: hit.append(signum))
+
+    def check():
+        if hit:
+            raise KeyboardInterrupt
+
+    try:
+        yield check
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGINT, previous)
+
+
 def _autocorr(chain: np.ndarray) -> np.ndarray:
     import emcee
 
@@ -378,49 +413,11 @@ def run_sampler(
     converged = False
     bar = _progress(opts.max_steps, steps, opts.progress)
     t0 = time.perf_counter()
-    try:
-        # replay the checks of the part already done so the stopping rule matches
-        if steps:
-            full = np.concatenate(chains)
-            for s in range(opts.check_every, steps + 1, opts.check_every):
-                tau = _autocorr(full[:s])
-                history.append((s, float(np.max(tau))))
-                converged = _converged(tau, tau_prev, s, opts)
-                tau_prev = tau
-            if converged:
-                steps = opts.max_steps  # already done
-        while steps < opts.max_steps and not converged:
-            n = min(opts.check_every - steps % opts.check_every, opts.max_steps - steps)
-            block_c = np.empty((n, nwalkers, ndim))
-            block_l = np.empty((n, nwalkers))
-            for i, st in enumerate(sampler.sample(state, iterations=n)):
-                block_c[i] = st.coords
-                block_l[i] = st.log_prob
-                if bar is not None and (i % 25 == 24 or i == n - 1):
-                    bar.update(25 if i % 25 == 24 else (i % 25) + 1)
-            state = st
-            if backend is not None:
-                backend.flush()
-            chains.append(block_c)
-            logps.append(block_l)
-            steps += n
-            if steps % opts.check_every == 0 or steps >= opts.max_steps:
-                full = np.concatenate(chains)
-                tau = _autocorr(full)
-                history.append((steps, float(np.max(tau))))
-                converged = _converged(tau, tau_prev, steps, opts)
-                tau_prev = tau
-                if bar is not None:
-                    bar.set_postfix(
-                        tau=f"{np.max(tau):.0f}", need=f"{opts.tau_factor * np.max(tau):.0f}"
-                    )
-    except KeyboardInterrupt:
-        if backend is not None:
-            backend.flush()
-        raise
-    finally:
-        if bar is not None:
-            bar.close()
+    with _interrupt_between_steps() as interrupted:
+        state, steps, converged = _steps(
+            sampler, state, steps, converged, tau_prev, chains, logps, history, backend,
+            bar, opts, nwalkers, ndim, interrupted,
+        )  # fmt: skip
     chain = np.concatenate(chains)
     log_prob = np.concatenate(logps)
     tau = _autocorr(chain)
@@ -442,6 +439,58 @@ def run_sampler(
         model, chain, log_prob, tau, np.asarray(acceptance, float), converged, burn, thin,
         time.perf_counter() - t0, opts.moves, history,
     )  # fmt: skip
+
+
+def _steps(sampler, state, steps, converged, tau_prev, chains, logps, history, backend, bar,
+           opts, nwalkers, ndim, interrupted):  # fmt: skip
+    """The sampling loop of :func:`run_sampler`: blocks of steps up to each check,
+    flushed to the checkpoint, until converged or at the cap. Appends to ``chains``,
+    ``logps`` and ``history``; returns (state, steps, converged)."""
+    try:
+        # replay the checks of the part already done so the stopping rule matches
+        if steps:
+            full = np.concatenate(chains)
+            for s in range(opts.check_every, steps + 1, opts.check_every):
+                tau = _autocorr(full[:s])
+                history.append((s, float(np.max(tau))))
+                converged = _converged(tau, tau_prev, s, opts)
+                tau_prev = tau
+            if converged:
+                steps = opts.max_steps  # already done
+        while steps < opts.max_steps and not converged:
+            n = min(opts.check_every - steps % opts.check_every, opts.max_steps - steps)
+            block_c = np.empty((n, nwalkers, ndim))
+            block_l = np.empty((n, nwalkers))
+            for i, st in enumerate(sampler.sample(state, iterations=n)):
+                block_c[i] = st.coords
+                block_l[i] = st.log_prob
+                if bar is not None and (i % 25 == 24 or i == n - 1):
+                    bar.update(25 if i % 25 == 24 else (i % 25) + 1)
+                interrupted()
+            state = st
+            if backend is not None:
+                backend.flush()
+            chains.append(block_c)
+            logps.append(block_l)
+            steps += n
+            if steps % opts.check_every == 0 or steps >= opts.max_steps:
+                full = np.concatenate(chains)
+                tau = _autocorr(full)
+                history.append((steps, float(np.max(tau))))
+                converged = _converged(tau, tau_prev, steps, opts)
+                tau_prev = tau
+                if bar is not None:
+                    bar.set_postfix(
+                        tau=f"{np.max(tau):.0f}", need=f"{opts.tau_factor * np.max(tau):.0f}"
+                    )
+    except KeyboardInterrupt:
+        if backend is not None:
+            backend.flush()  # every completed step is kept
+        raise
+    finally:
+        if bar is not None:
+            bar.close()
+    return state, steps, converged
 
 
 def _converged(tau, tau_prev, steps, opts) -> bool:
