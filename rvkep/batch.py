@@ -175,8 +175,8 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
         os.environ.setdefault(var, "1")
     folder = Path(out) / target.name
     done = folder / "done.json"
-    if done.exists():
-        info = json.loads(done.read_text())
+    info = _read_done(folder)
+    if info is not None:
         return {**info, "status": "skipped"}
     folder.mkdir(parents=True, exist_ok=True)
     with contextlib.suppress(FileNotFoundError):
@@ -274,6 +274,26 @@ def _run_pooled(target: Target, out: str, seed: int, quick: bool) -> dict:
         _BUSY = False
 
 
+def _read_json(path: Path) -> dict | None:
+    """A JSON object from ``path``; None if it is missing, unreadable or not an object."""
+    try:
+        doc = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return doc if isinstance(doc, dict) else None
+
+
+def _read_done(folder: Path) -> dict | None:
+    """The completion record of a target folder, or None if it is not complete. A
+    damaged record (a disk that filled up, a hand edit) makes the target run again."""
+    info = _read_json(folder / "done.json")
+    if info is None or not {"name", "status", "seconds", "error"} <= set(info):
+        with contextlib.suppress(OSError):
+            (folder / "done.json").unlink()
+        return None
+    return info
+
+
 def _run_kind_cells(res: dict) -> dict:
     """The kind of run of one target's results (empty cells when it has none)."""
     if not res:
@@ -296,9 +316,7 @@ def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> l
         status = info.get("status", "not started")
         if status == "skipped":
             status = "done"
-        res = {}
-        if status == "done" and (folder / "results.json").exists():
-            res = json.loads((folder / "results.json").read_text())
+        res = (_read_json(folder / "results.json") or {}) if status == "done" else {}
         kind = _run_kind_cells(res)
         rows.append(
             {
@@ -413,11 +431,9 @@ def _run_targets(targets, out, workers, scheduler, seed, quiet, quick, executor)
     infos: dict[str, dict] = {}
     pending = []
     for t in targets:
-        if (out / t.name / "done.json").exists():
-            infos[t.name] = {
-                **json.loads((out / t.name / "done.json").read_text()),
-                "status": "skipped",
-            }
+        info = _read_done(out / t.name)
+        if info is not None:
+            infos[t.name] = {**info, "status": "skipped"}
         else:
             pending.append(t)
     bar = None

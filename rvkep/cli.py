@@ -9,6 +9,7 @@ subcommands so that ``rvkep --help`` starts fast.
 from __future__ import annotations
 
 import argparse
+import errno
 import json
 import sys
 from collections.abc import Sequence
@@ -415,6 +416,14 @@ _SUBCOMMANDS: list = [
 ]  # fmt: skip
 
 
+#: Failures of the machine rather than of rvkep (a full disk, a quota, a read-only or
+#: failing file system): one line and exit status 2, like a bad input.
+_MACHINE_ERRORS = {
+    getattr(errno, name) for name in ("ENOSPC", "EDQUOT", "EFBIG", "EROFS", "EACCES", "EIO",
+                                      "EPERM", "ENAMETOOLONG") if hasattr(errno, name)
+}  # fmt: skip
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``rvkep`` console script; returns the exit status."""
     parser = build_parser()
@@ -430,6 +439,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"rvkep {args.command}: interrupted", file=sys.stderr)
         return 130
+    except OSError as exc:
+        if exc.errno not in _MACHINE_ERRORS:
+            raise
+        where = f"{exc.filename}: " if exc.filename else ""
+        print(f"rvkep {args.command}: error: {where}{exc.strerror or exc}", file=sys.stderr)
+        return 2
     except BrokenPipeError:  # output piped into a program that stopped reading
         import os
 

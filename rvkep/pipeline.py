@@ -372,6 +372,7 @@ def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: floa
             _say(opts, f"WARNING: {w.message}")
         elif issubclass(w.category, CheckpointNotice):
             _say(opts, f"note: {w.message}")
+            notes.append(str(w.message))  # kept in results.json: it says what ran
     posterior = PosteriorSamples.from_chain(
         fit.model, sampling.flat, sampling.flat_log_prob, rng=seed
     )

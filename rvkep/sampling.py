@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import contextlib
 import math
+import os
 import sys
 import warnings
 from dataclasses import dataclass, field
@@ -49,6 +50,7 @@ __all__ = [
     "UnconvergedWarning",
     "BufferedHDFBackend",
     "CheckpointNotice",
+    "CheckpointWriteError",
     "checkpoint_key",
     "run_sampler",
     "initial_ball",
@@ -61,7 +63,13 @@ class UnconvergedWarning(UserWarning):
 
 
 class CheckpointNotice(UserWarning):
-    """A checkpoint could not be resumed (another model or settings); started afresh."""
+    """A checkpoint could not be resumed (another model or settings, or a damaged
+    file kept under a new name); the chain started afresh."""
+
+
+class CheckpointWriteError(RvkepError):
+    """The checkpoint could not be written (disk full, quota, I/O error); the file
+    still holds every step of the previous flush."""
 
 
 def _moves(kind: str):
@@ -116,17 +124,57 @@ def BufferedHDFBackend(filename, name: str = "mcmc"):  # noqa: N802 - behaves as
     return _BACKEND_CLASS(filename, name)
 
 
+def _pack_commit(iteration: int, accepted: np.ndarray, rstate) -> np.ndarray:
+    """One float64 array holding a flush's commit record: the iteration count, the
+    accepted counts and the MT19937 random state after the last step (all exact in
+    float64: counts below 2**53, uint32 keys, the cached Gaussian)."""
+    _, keys, pos, has_gauss, cached = rstate
+    return np.concatenate(
+        [[iteration], np.asarray(accepted, float), np.asarray(keys, float),
+         [pos, has_gauss, cached]]
+    )  # fmt: skip
+
+
+def _unpack_commit(rec: np.ndarray, nwalkers: int):
+    iteration = int(rec[0])
+    accepted = np.array(rec[1 : 1 + nwalkers])
+    keys = np.asarray(rec[1 + nwalkers : 1 + nwalkers + 624]).astype(np.uint32)
+    pos, has_gauss, cached = rec[-3:]
+    return iteration, accepted, ("MT19937", keys, int(pos), int(has_gauss), float(cached))
+
+
 def _make_backend_class():
     from emcee.backends import HDFBackend
 
     class _Buffered(HDFBackend):
+        """See :func:`BufferedHDFBackend`. The authoritative state of the file is the
+        commit record ``rvkep_commit`` (iteration, accepted counts, random state in one
+        fixed-size attribute), rewritten in place only after the new steps are on disk;
+        emcee's own ``iteration``, ``accepted`` and ``random_state_*`` follow it."""
+
         def __init__(self, filename, name):
             super().__init__(str(filename), name=name)
             self._buffer = []
 
+        def _committed(self):
+            with self.open() as f:
+                g = f[self.name]
+                if "rvkep_commit" in g.attrs:
+                    return _unpack_commit(g.attrs["rvkep_commit"], int(g.attrs["nwalkers"]))
+                # a file written before commit records: emcee's own fields
+                state = [v for k, v in sorted(g.attrs.items()) if k.startswith("random_state_")]
+                return int(g.attrs["iteration"]), g["accepted"][...], tuple(state) or None
+
+        def reset(self, nwalkers, ndim):
+            super().reset(nwalkers, ndim)
+            with self.open("a") as f:  # created now, so later commits overwrite in place
+                zero = ("MT19937", np.zeros(624), 0, 0, 0.0)
+                f[self.name].attrs["rvkep_commit"] = _pack_commit(0, np.zeros(nwalkers), zero)
+            self._buffer = []
+
         @property
         def iteration(self):
-            base = super().iteration if self.initialized else 0
+            base = self._committed()[0] if self.initialized else 0
             return base + len(self._buffer)
 
         def grow(self, ngrow, blobs):
@@ -139,29 +187,49 @@ def _make_backend_class():
             )
 
         def flush(self):
+            """Append the buffered steps; raise :class:`CheckpointWriteError` (the file
+            keeps every step of the previous flush) if they cannot be written."""
             if not self._buffer:
                 return
             coords = np.stack([b[0] for b in self._buffer])
             logp = np.stack([b[1] for b in self._buffer])
             acc = np.sum([b[2] for b in self._buffer], axis=0)
             rstate = self._buffer[-1][3]
-            with self.open("a") as f:
-                g = f[self.name]
-                it = int(g.attrs["iteration"])
-                n = coords.shape[0]
-                g["chain"].resize(it + n, axis=0)
-                g["log_prob"].resize(it + n, axis=0)
-                g["chain"][it:] = coords
-                g["log_prob"][it:] = logp
-                g["accepted"][:] += acc
-                for i, v in enumerate(rstate):
-                    g.attrs[f"random_state_{i}"] = v
-                g.attrs["iteration"] = it + n
+            it, accepted, _ = self._committed()
+            _reserve_space(Path(self.filename), coords.nbytes + logp.nbytes, it)
+            n = coords.shape[0]
+            try:
+                with self.open("a") as f:
+                    g = f[self.name]
+                    g["chain"].resize(it + n, axis=0)
+                    g["log_prob"].resize(it + n, axis=0)
+                    g["chain"][it:] = coords
+                    g["log_prob"][it:] = logp
+                    f.flush()  # the new steps are on disk before the commit names them
+                    record = _pack_commit(it + n, accepted + acc, rstate)
+                    g.attrs.modify("rvkep_commit", record)  # same shape: in place
+                    f.flush()
+                    g["accepted"][:] = accepted + acc  # emcee's copies of the commit
+                    for i, v in enumerate(rstate):
+                        g.attrs.modify(f"random_state_{i}", v)
+                    g.attrs.modify("iteration", it + n)
+            except OSError as exc:
+                raise CheckpointWriteError(
+                    f"{self.filename}: cannot write the checkpoint ({_short(exc)}); it keeps "
+                    f"the {it} steps written before, and the same command resumes from them"
+                ) from None
             self._buffer = []
 
         def get_value(self, name, flat=False, thin=1, discard=0):
             self.flush()
-            return super().get_value(name, flat=flat, thin=thin, discard=discard)
+            it = self.iteration
+            if it <= 0:
+                raise AttributeError("the checkpoint holds no steps yet")
+            with self.open() as f:
+                v = f[self.name][name][discard + thin - 1 : it : thin]
+            if flat:
+                return v.reshape(-1, *v.shape[2:])
+            return v
 
         def get_last_sample(self):
             self.flush()
@@ -170,15 +238,70 @@ def _make_backend_class():
         @property
         def accepted(self):
             self.flush()
-            return super().accepted
+            return self._committed()[1]
 
         @property
         def random_state(self):
             if self._buffer:
                 return self._buffer[-1][3]
-            return super().random_state
+            return self._committed()[2]
 
     return _Buffered
+
+
+def _short(exc: BaseException) -> str:
+    text = str(exc).split("\n")[0]
+    for marker in ("error message = '", "errno = "):
+        if marker in str(exc):
+            text = str(exc).split(marker, 1)[1].split("'")[0].split(",")[0]
+            break
+    return text[:120]
+
+
+#: Extra room reserved per flush for HDF5's own bookkeeping (chunk index, headers).
+_METADATA_ROOM = 256 * 1024
+
+
+def _reserve_space(path: Path, nbytes: int, steps: int) -> None:
+    """Make sure the disk holds the next flush before HDF5 writes a byte of it.
+
+    HDF5 does not survive a failed write (it crashes the process with a segmentation
+    fault and may leave the file unreadable), so the room is claimed first with
+    :func:`os.posix_fallocate` past the end of the file: HDF5 then writes into blocks
+    that already exist and trims the file back to its own end when it closes. Where
+    that call is missing, the free space is compared instead. On failure the file is
+    left exactly as it was and :class:`CheckpointWriteError` says so.
+    """
+    import errno
+    import shutil
+
+    need = int(nbytes * 1.1) + _METADATA_ROOM
+
+    def refuse(reason: str):
+        raise CheckpointWriteError(
+            f"{path}: cannot write the checkpoint ({reason}); it keeps the {steps} steps "
+            "written before, and the same command resumes from them once there is room"
+        )
+
+    if not hasattr(os, "posix_fallocate"):  # pragma: no cover - not on Linux
+        with contextlib.suppress(OSError):
+            free = shutil.disk_usage(path.parent).free
+            if free < 2 * need:
+                refuse(f"disk full: {free / 2**20:.1f} MiB free, {need / 2**20:.1f} MiB needed")
+        return
+    fd = os.open(path, os.O_RDWR)
+    try:
+        size = os.fstat(fd).st_size
+        try:
+            os.posix_fallocate(fd, size, need)
+        except OSError as exc:
+            with contextlib.suppress(OSError):
+                os.ftruncate(fd, size)
+            if exc.errno in (errno.EINVAL, errno.EOPNOTSUPP):
+                return  # the file system cannot reserve; HDF5 writes as before
+            refuse(f"{os.strerror(exc.errno)}; {need / 2**20:.1f} MiB needed")
+    finally:
+        os.close(fd)
 
 
 @dataclass
@@ -259,6 +382,55 @@ def checkpoint_key(model: SystemModel, options: SamplerOptions, walkers: int) ->
     }
     text = json.dumps(doc, sort_keys=True, default=repr)
     return hashlib.sha256(text.encode()).hexdigest(), text
+
+
+def _open_checkpoint(path: Path, key: str, post, nwalkers: int, ndim: int):
+    """The checkpoint at ``path`` if it holds a sound chain of this model and settings;
+    otherwise an empty one (with a :class:`CheckpointNotice` saying why).
+
+    A file that cannot be read, has the wrong shape, or whose last step's stored
+    log-posterior differs from the model's value there is damaged: it is kept as
+    ``<name>.damaged-<time>`` and a new chain starts.
+    """
+    import time
+
+    if not path.exists():
+        return BufferedHDFBackend(path)
+    try:
+        backend = BufferedHDFBackend(path)
+        if not backend.initialized:
+            raise ValueError("no chain in the file")
+        if _stored_key(backend) != key:
+            # another model, other priors, data or settings: never resume that chain
+            warnings.warn(
+                f"{path}: the checkpoint belongs to another model, data set or sampler "
+                "settings; starting a new chain",
+                CheckpointNotice,
+                stacklevel=3,
+            )
+            path.unlink()
+            return BufferedHDFBackend(path)
+        it = backend.iteration
+        if it > 0:
+            last = backend.get_last_sample()
+            if last.coords.shape != (nwalkers, ndim) or last.random_state is None:
+                raise ValueError("the stored chain has another shape")
+            chain, logp = backend.get_chain(), backend.get_log_prob()
+            if chain.shape != (it, nwalkers, ndim) or logp.shape != (it, nwalkers):
+                raise ValueError(f"{it} steps announced, {chain.shape[0]} stored")
+            if not np.allclose(post(last.coords), last.log_prob, rtol=1e-9, atol=1e-9):
+                raise ValueError("the last stored step does not match the model")
+        return backend
+    except Exception as exc:  # noqa: BLE001 - anything a damaged file raises
+        kept = path.with_name(f"{path.name}.damaged-{time.strftime('%Y%m%d-%H%M%S')}")
+        path.replace(kept)
+        warnings.warn(
+            f"{path}: damaged checkpoint ({_short(exc)}); kept as {kept.name}, starting "
+            "a new chain",
+            CheckpointNotice,
+            stacklevel=3,
+        )
+        return BufferedHDFBackend(path)
 
 
 def _stored_key(backend) -> str | None:
@@ -381,17 +553,7 @@ def run_sampler(
         if path.exists() and not opts.resume:
             path.unlink()
         key, key_text = checkpoint_key(model, opts, nwalkers)
-        backend = BufferedHDFBackend(path)
-        if backend.initialized and _stored_key(backend) != key:
-            # another model, other priors, data or settings: never resume that chain
-            warnings.warn(
-                f"{path}: the checkpoint belongs to another model, data set or sampler "
-                "settings; starting a new chain",
-                CheckpointNotice,
-                stacklevel=2,
-            )
-            path.unlink()
-            backend = BufferedHDFBackend(path)
+        backend = _open_checkpoint(path, key, post, nwalkers, ndim)
         if backend.initialized:
             resumed_steps = backend.iteration
         else:

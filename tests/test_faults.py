@@ -2,6 +2,7 @@
 in one folder, damaged checkpoints, a full disk. The outcome is always the same: one
 clear line, nothing lost, nothing left running."""
 
+import json
 import os
 import signal
 import subprocess
@@ -204,3 +205,163 @@ def test_second_batch_into_the_same_folder_refuses(tmp_path):
                 pass
     assert proc.returncode == 2 and "another rvkep run is writing there" in proc.stderr
     assert not (out / "summary.csv").exists()
+
+
+FULL_DISK_SCRIPT = """
+import resource, signal, sys, warnings
+sys.path.insert(0, {tests!r})
+from test_sampling import one_planet, planet_model
+from rvkep.sampling import CheckpointWriteError, SamplerOptions, UnconvergedWarning, run_sampler
+fit = planet_model(one_planet())
+opts = SamplerOptions(seed=9, max_steps=3000, check_every=100, tau_factor=1e9, walkers=32,
+                      progress=False, checkpoint={path!r})
+if {limit}:
+    # the largest file this process may write: the disk is "full" beyond it (EFBIG)
+    signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+    resource.setrlimit(resource.RLIMIT_FSIZE, ({limit}, {limit}))
+warnings.simplefilter("ignore", UnconvergedWarning)
+try:
+    res = run_sampler(fit.model, fit.theta, opts)
+except CheckpointWriteError as exc:
+    print(exc, file=sys.stderr)
+    sys.exit(2)
+import numpy as np
+np.save({out!r}, res.chain)
+np.save({out!r}.replace(".npy", "_acc.npy"), res.acceptance)
+"""
+
+
+def run_full_disk(tmp_path, name, limit):
+    path, out = tmp_path / f"{name}.h5", tmp_path / f"{name}.npy"
+    code = FULL_DISK_SCRIPT.format(tests=os.path.dirname(__file__), path=str(path),
+                                   out=str(out), limit=limit)  # fmt: skip
+    return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                          timeout=300), path, out  # fmt: skip
+
+
+def test_full_disk_keeps_the_last_checkpoint_and_resumes_with_correct_counts(tmp_path):
+    """A write that does not fit fails with one line (no segmentation fault, no
+    traceback), the file keeps the last flushed steps, and the resumed chain and its
+    acceptance rate equal an uninterrupted run's (no step counted twice)."""
+    import h5py
+    import numpy as np
+
+    whole, _, whole_out = run_full_disk(tmp_path, "whole", 0)
+    assert whole.returncode == 0, whole.stderr
+    full, path, out = run_full_disk(tmp_path, "part", 1_500_000)
+    assert full.returncode == 2, (full.returncode, full.stderr[-2000:])
+    lines = full.stderr.strip().splitlines()
+    assert len(lines) == 1 and "cannot write the checkpoint" in lines[0], full.stderr[-2000:]
+    with h5py.File(path, "r") as f:  # readable, and consistent with its commit record
+        g = f["mcmc"]
+        kept = int(g.attrs["iteration"])
+        assert 0 < kept < 3000 and f"keeps the {kept} steps" in lines[0]
+        assert g["chain"].shape[0] >= kept
+    resumed, _, out = run_full_disk(tmp_path, "part", 0)  # room again: the same command
+    assert resumed.returncode == 0, resumed.stderr
+    assert np.array_equal(np.load(whole_out), np.load(out))
+    acc_whole = np.load(str(whole_out).replace(".npy", "_acc.npy"))
+    assert np.array_equal(acc_whole, np.load(str(out).replace(".npy", "_acc.npy")))
+    assert np.all(acc_whole <= 1.0)
+
+
+@pytest.mark.parametrize("damage", ["garbage", "truncated", "empty", "changed_step"])
+def test_damaged_checkpoint_is_kept_aside_and_the_chain_starts_afresh(tmp_path, damage):
+    import warnings
+
+    import h5py
+    import numpy as np
+    from test_sampling import one_planet, planet_model
+
+    from rvkep.sampling import CheckpointNotice, SamplerOptions, UnconvergedWarning, run_sampler
+
+    fit = planet_model(one_planet())
+    opts = dict(seed=9, max_steps=300, check_every=100, tau_factor=1e9, progress=False)
+    path = tmp_path / "chain.h5"
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        fresh = run_sampler(fit.model, fit.theta, SamplerOptions(**opts))
+        run_sampler(fit.model, fit.theta, SamplerOptions(**opts, checkpoint=path))
+        if damage == "garbage":
+            path.write_bytes(b"\x89HDF\r\n\x1a\n" + bytes(range(256)) * 40)
+        elif damage == "truncated":
+            path.write_bytes(path.read_bytes()[: path.stat().st_size // 2])
+        elif damage == "empty":
+            path.write_bytes(b"")
+        else:  # a stored step that the model does not give
+            with h5py.File(path, "a") as f:
+                f["mcmc/log_prob"][-1, 0] += 5.0
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", CheckpointNotice)
+            again = run_sampler(fit.model, fit.theta, SamplerOptions(**opts, checkpoint=path))
+    notes = [str(w.message) for w in caught if issubclass(w.category, CheckpointNotice)]
+    assert len(notes) == 1 and "damaged checkpoint" in notes[0], notes
+    kept = list(tmp_path.glob("chain.h5.damaged-*"))
+    assert len(kept) == 1 and kept[0].name in notes[0]
+    assert np.array_equal(again.chain, fresh.chain)  # a new chain, as if none was there
+
+
+def test_damaged_checkpoint_through_the_command_line(tmp_path, capsys):
+    from rvkep.cli import demo_folder, main
+
+    demo = demo_folder()
+    files = [str(demo / "kestrel.txt"), str(demo / "osprey.csv")]
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "chain.h5").write_bytes(b"not an HDF5 file at all\n" * 100)
+    code = main(["analyze", *files, "--out", str(out), "--quick", "--trend", "0",
+                 "--max-steps", "250"])  # fmt: skip
+    printed = capsys.readouterr()
+    assert code == 0, printed.err
+    assert "Traceback" not in printed.out + printed.err
+    assert sum("damaged checkpoint" in line for line in printed.out.splitlines()) == 1
+    notes = json.loads((out / "results.json").read_text())["notes"]
+    assert any("damaged checkpoint" in n for n in notes)
+    assert list(out.glob("chain.h5.damaged-*"))
+
+
+def test_full_disk_through_the_command_line(tmp_path):
+    """rvkep analyze on a disk that fills up: one line, exit 2, and the same command
+    finishes the job once there is room."""
+    import resource
+
+    from rvkep.cli import demo_folder
+
+    demo = demo_folder()
+    out = tmp_path / "out"
+    cmd = [sys.executable, "-m", "rvkep", "analyze", str(demo / "kestrel.txt"),
+           str(demo / "osprey.csv"), "--out", str(out), "--quick", "--trend", "0"]  # fmt: skip
+
+    def small_disk():
+        signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+        resource.setrlimit(resource.RLIMIT_FSIZE, (300_000, 300_000))
+
+    full = subprocess.run(cmd, capture_output=True, text=True, timeout=300, preexec_fn=small_disk)
+    assert full.returncode == 2, full.stderr[-3000:]
+    assert (
+        full.stderr.strip().splitlines()
+        == [
+            line
+            for line in full.stderr.strip().splitlines()
+            if line.startswith("rvkep analyze: error:")
+        ]
+        and len(full.stderr.strip().splitlines()) == 1
+    ), full.stderr[-3000:]
+    assert "cannot write the checkpoint" in full.stderr and "Traceback" not in full.stderr
+    again = subprocess.run(cmd + ["--quiet"], capture_output=True, text=True, timeout=300)
+    assert again.returncode == 0, again.stderr
+    assert (out / "results.json").exists()
+
+
+def test_damaged_completion_record_reruns_that_target(tmp_path):
+    from rvkep.batch import run_batch
+
+    targets = make_targets(tmp_path / "in", 2)
+    out = tmp_path / "out"
+    run_batch(targets, out, workers=2, quick=True, quiet=True)
+    (out / "star1" / "done.json").write_text('{"name": "star1", "sta')  # cut short
+    (out / "star0" / "results.json").write_text("")  # and a damaged result of a done one
+    infos = run_batch(targets, out, workers=2, quick=True, quiet=True)
+    assert infos["star1"]["status"] == "done" and infos["star0"]["status"] == "skipped"
+    rows = {r["name"]: r for r in read_summary(out) if r["row"] == "target"}
+    assert rows["star1"]["status"] == "done" and rows["star1"]["n_planets"] == "1"
