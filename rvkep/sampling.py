@@ -221,6 +221,8 @@ def _make_backend_class():
             self._buffer = []
 
         def get_value(self, name, flat=False, thin=1, discard=0):
+            if name == "blobs":
+                return None  # never stored (see grow)
             self.flush()
             it = self.iteration
             if it <= 0:

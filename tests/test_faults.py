@@ -259,6 +259,7 @@ def test_full_disk_keeps_the_last_checkpoint_and_resumes_with_correct_counts(tmp
         assert g["chain"].shape[0] >= kept
     resumed, _, out = run_full_disk(tmp_path, "part", 0)  # room again: the same command
     assert resumed.returncode == 0, resumed.stderr
+    assert not list(tmp_path.glob("*.damaged-*")), resumed.stderr  # resumed, not restarted
     assert np.array_equal(np.load(whole_out), np.load(out))
     acc_whole = np.load(str(whole_out).replace(".npy", "_acc.npy"))
     assert np.array_equal(acc_whole, np.load(str(out).replace(".npy", "_acc.npy")))
