@@ -46,6 +46,7 @@ __all__ = [
     "read_rv_file",
     "COLUMN_NAMES",
     "MIN_POINTS",
+    "MIN_SPAN_DAYS",
 ]
 
 #: Header names (lower case, with ``-``, ``.`` and spaces turned into ``_`` and any unit
@@ -69,6 +70,10 @@ COLUMN_NAMES: dict[str, tuple[str, ...]] = {
         "instrument", "inst", "tel", "telescope", "spectrograph", "instr", "site", "source",
     ),
 }  # fmt: skip
+
+#: The shortest time span (days) accepted for one star: data from a single night
+#: cannot separate an orbit from a drift.
+MIN_SPAN_DAYS = 1.0
 
 #: The fewest points rvkep accepts for one star (a one-companion fit has seven
 #: parameters with one instrument).
@@ -327,6 +332,12 @@ def _decode(path: Path) -> str:
         raise DataError(f"{path}: is a folder, not a data file") from None
     except OSError as exc:
         raise DataError(f"{path}: cannot read ({exc.strerror})") from None
+    utf16 = _utf16_encoding(raw)
+    if utf16 is not None:  # e.g. a table saved as "Unicode" by a Windows editor
+        try:
+            return raw.decode(utf16).lstrip("\ufeff")
+        except UnicodeDecodeError:
+            raise DataError(f"{path}: a UTF-16 file with undecodable bytes") from None
     control = np.frombuffer(raw, dtype=np.uint8)
     control = control[(control < 32) & ~np.isin(control, (9, 10, 12, 13))]
     if control.size:
@@ -338,6 +349,21 @@ def _decode(path: Path) -> str:
             return raw.decode("latin-1")
         except UnicodeDecodeError:  # pragma: no cover - latin-1 decodes any byte
             raise DataError(f"{path}: not a text file (undecodable bytes)") from None
+
+
+def _utf16_encoding(raw: bytes) -> str | None:
+    """ "utf-16" (with a byte-order mark), "utf-16-le"/"-be" (none, but every other byte
+    of an ASCII text is zero), or None for any other file."""
+    if raw[:2] in (b"\xff\xfe", b"\xfe\xff"):
+        return "utf-16"
+    head = raw[:4096]
+    if len(head) >= 8 and len(head) % 2 == 0:
+        even, odd = head[0::2], head[1::2]
+        if odd.count(0) == len(odd) and even.count(0) == 0:
+            return "utf-16-le"
+        if even.count(0) == len(even) and odd.count(0) == 0:
+            return "utf-16-be"
+    return None
 
 
 @dataclass
@@ -450,11 +476,32 @@ def _locate_bad_row(path: Path, lines: list[str], layout: _Layout) -> str:
             return (
                 f"{path}, line {i + 1}: {len(cells)} columns where the table has {layout.n_columns}"
             )
+        raw_cells = _raw_cells(line, layout.delimiter)
         for j in numeric:
-            if not _looks_numeric(cells[j]):
+            if not _parses(raw_cells[j]):
                 name = layout.roles[j].removeprefix("extra:")
-                return f"{path}, line {i + 1}: non-numeric value {cells[j]!r} in column {name}"
+                return f"{path}, line {i + 1}: non-numeric value {raw_cells[j]!r} in column {name}"
     return f"{path}: unreadable table"
+
+
+def _raw_cells(line: str, delimiter: str | None) -> list[str]:
+    """Cells as numpy's reader sees them (only double quotes are quotes)."""
+    line = line.split("#", 1)[0]
+    if delimiter is None:
+        return line.split()
+    return [c.strip().strip('"') for c in line.split(delimiter)]
+
+
+def _parses(cell: str) -> bool:
+    try:
+        float(cell.strip().strip('"'))
+    except ValueError:
+        return False
+    return True
+
+
+#: A Fortran double-precision exponent (1.5D0, 2.0d-3) inside a number.
+_FORTRAN_EXPONENT = re.compile(r"(?<=[0-9.])[dD](?=[+-]?[0-9])")
 
 
 def _byte_class(chars: bytes) -> np.ndarray:
@@ -541,7 +588,12 @@ def read_rv_file(path: str | Path, *, kms: bool = False, instrument: str | None 
         try:
             table = np.loadtxt(rows, usecols=numeric_cols, dtype=float, **read)
         except ValueError:
-            raise DataError(_locate_bad_row(path, lines, layout)) from None
+            try:  # old Fortran tables write exponents with D (1.5D0)
+                table = np.loadtxt([_fortran_to_e(r, layout, numeric_cols) for r in rows],
+                                   usecols=numeric_cols, dtype=float, **read)  # fmt: skip
+            except ValueError:
+                lines = [_fortran_to_e(ln, layout, numeric_cols) for ln in lines]
+                raise DataError(_locate_bad_row(path, lines, layout)) from None
         names = None
         if "instrument" in layout.roles:
             col = [layout.roles.index("instrument")]
@@ -574,6 +626,8 @@ def read_rv_file(path: str | Path, *, kms: bool = False, instrument: str | None 
         )
     _check_duplicates(path, line_numbers, time, names)
     scale = 1000.0 if (kms or layout.header_kms) else 1.0
+    _check_ranges(path, line_numbers, time, rv, err, scale)
+    _check_time_system(path, line_numbers, time)
     if scale == 1.0:
         _warn_if_kms(path, rv, err)
     return RVData(
@@ -581,10 +635,63 @@ def read_rv_file(path: str | Path, *, kms: bool = False, instrument: str | None 
     )
 
 
+def _fortran_to_e(line: str, layout: _Layout, numeric_cols: list[int]) -> str:
+    """``line`` with D exponents of its numeric cells written as e (names untouched)."""
+    if "d" not in line.lower() or _is_comment(line):
+        return line
+    sep = layout.delimiter
+    cells = line.split(sep) if sep else line.split()
+    for j in numeric_cols:
+        if j < len(cells):
+            cells[j] = _FORTRAN_EXPONENT.sub("e", cells[j])
+    return (sep or " ").join(cells)
+
+
+#: The speed of light in m/s (exact, SI): no velocity or error can exceed it.
+_C_MPS = 299_792_458.0
+#: Times beyond this many days are no dates at all (full JDs are about 2.46e6).
+_MAX_TIME = 1e8
+#: Errors below this (m/s, i.e. 0.1 mm/s) are no measurement errors in either unit.
+_MIN_PLAUSIBLE_ERR = 1e-4
+
+
+def _check_ranges(path: Path, line_numbers: np.ndarray, time, rv, err, scale: float) -> None:
+    """Refuse values no spectrograph gives: speeds beyond light, times beyond dates."""
+    for label, values, limit, what in (
+        ("time", time, _MAX_TIME, f"beyond {_MAX_TIME:g} days, not a date"),
+        ("rv", rv * scale, _C_MPS, "faster than light (m/s)"),
+        ("error", err * scale, _C_MPS, "larger than the speed of light (m/s)"),
+    ):
+        bad = np.abs(values) >= limit
+        if np.any(bad):
+            k = int(np.argmax(bad))
+            raise DataError(f"{path}, line {line_numbers[k]}: {label} {values[k]:g} is {what}")
+
+
+def _check_time_system(path: Path, line_numbers: np.ndarray, time: np.ndarray) -> None:
+    """All times of one file in one system (full JD, JD - 2400000 or MJD, a smaller
+    offset): a mixture spans millions of days and no fit can make sense of it."""
+    classes = np.digitize(time, (30_000.0, 2_000_000.0))
+    if classes.size and np.any(classes != classes[0]):
+        common = np.bincount(classes).argmax()
+        k = int(np.argmax(classes != common))
+        raise DataError(
+            f"{path}, line {line_numbers[k]}: time {float(time[k])!r} is in another time system "
+            f"({_time_system(time[k : k + 1])}) than most of this file "
+            f"({_time_system(time[classes == common])}); give all times in one system"
+        )
+
+
 def _warn_if_kms(path: Path, rv: np.ndarray, err: np.ndarray) -> None:
     med_err = float(np.median(err))
     spread = float(np.ptp(rv)) if rv.size else 0.0
-    if med_err < 0.05 and spread < 200.0:
+    if med_err < _MIN_PLAUSIBLE_ERR:
+        warnings.warn(
+            f"{path}: errors implausibly small (median {med_err:g}); check the error column",
+            DataWarning,
+            stacklevel=3,
+        )
+    elif med_err < 0.05 and spread < 200.0:
         warnings.warn(
             f"{path}: velocities look like km/s (median error {med_err:g}, spread "
             f"{spread:g}); read as m/s. Pass kms=True (--kms) if they are km/s.",
@@ -693,5 +800,12 @@ def load_rv(
         raise DataError(
             f"{', '.join(map(str, paths))}: {len(data)} points, fewer than the "
             f"{min_points} a fit needs"
+        )
+    span = float(data.time[-1] - data.time[0])
+    if span < MIN_SPAN_DAYS:
+        raise DataError(
+            f"{', '.join(map(str, paths))}: all {len(data)} points lie within "
+            f"{span * 24:.1f} hours (a single night); an orbit needs observations on "
+            "more than one night"
         )
     return data

@@ -288,9 +288,9 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", DataWarning)
         data = load_rv(files, kms=opts.kms or (spec.kms if spec else False))
-    for w in caught:
-        if issubclass(w.category, DataWarning):
-            _say(opts, f"warning: {w.message}")
+    data_notes = [f"data: {w.message}" for w in caught if issubclass(w.category, DataWarning)]
+    for note in data_notes:  # printed now, and kept in results.json and the summary
+        _say(opts, f"warning: {note.removeprefix('data: ')}")
     star = spec.star if spec and spec.star else None
     if opts.star_mass is not None:
         if not opts.star_mass > 0 or opts.star_mass_err < 0:
@@ -314,10 +314,11 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     out.mkdir(parents=True, exist_ok=True)
     with folder_lock(out):  # one run per output folder
         clean_temporaries(out)  # left by a run that was killed
-        return _analyze_in(out, data, spec, star, opts, t_start)
+        return _analyze_in(out, data, spec, star, opts, t_start, data_notes)
 
 
-def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: float):
+def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: float,
+                data_notes: list[str]):  # fmt: skip
     """The part of :func:`analyze` that runs while the output folder is locked."""
     from rvkep.model import SystemModel
     from rvkep.posterior import PosteriorSamples
@@ -349,6 +350,7 @@ def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: floa
     notes = _selection_notes(search_result, fit, comparison)
     for note in notes:
         _say(opts, f"note: {note}")
+    notes = data_notes + notes
     # sampling, resumable through a checkpoint in the output folder
     sampling_spec = spec.sampling if spec else {}
     seed = opts.seed if opts.seed is not None else sampling_spec.get("seed", 0)

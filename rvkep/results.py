@@ -318,7 +318,7 @@ class Results:
                 "",
             ]
         for note in self.notes:
-            lines.append(f"*Note: {note}.*")
+            lines.append(f"*Note: {note.rstrip('.')}.*")
         if self.notes:
             lines.append("")
         star = d["star"]
