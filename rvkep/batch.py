@@ -32,12 +32,13 @@ import csv
 import glob
 import hashlib
 import json
+import math
 import os
 import re
 import signal
 import sys
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 from rvkep.errors import DataError, OptionError, RvkepError
@@ -69,22 +70,58 @@ class Target:
     kms: bool = False
     trend: int | str = "auto"
     line: int = 0
+    problem: str = ""  # why this target cannot run (it fails alone; see read_targets)
 
 
-def _bool(value: str, where: str) -> bool:
+def _bool(value: str, column: str) -> bool:
     v = value.strip().lower()
     if v in ("", "0", "false", "no", "n"):
         return False
     if v in ("1", "true", "yes", "y"):
         return True
-    raise DataError(f"{where}: expected true or false, got {value!r}")
+    raise DataError(f"{column}: expected true or false, got {value!r}")
+
+
+#: The longest target name (characters): it becomes a folder name, which most file
+#: systems cap at 255 bytes.
+MAX_NAME = 100
+
+
+def _name_problem(name: str) -> str | None:
+    """Why ``name`` cannot name a target's folder, or None."""
+    import unicodedata
+
+    if not name:
+        return "empty target name"
+    if len(name) > MAX_NAME or len(name.encode("utf-8")) > 200:
+        return f"target name of {len(name)} characters (at most {MAX_NAME})"
+    bad = [c for c in name if unicodedata.category(c).startswith("C")]
+    if bad:
+        return f"target name {_shown(name)} holds a control character ({bad[0]!r})"
+    if "/" in name or "\\" in name:
+        return f"target name {_shown(name)} holds a path separator"
+    if name.startswith("."):
+        return f"target name {_shown(name)} starts with a dot"
+    return None
+
+
+def _shown(name: str, width: int = 40) -> str:
+    """A printable, bounded form of a name for messages and the summary."""
+    text = name.encode("unicode_escape").decode("ascii")
+    return repr(text if len(text) <= width else text[: width - 3] + "...")
 
 
 def read_targets(path: str | Path) -> list[Target]:
     """Read and check a target list; errors name the file, line and problem.
 
-    Data patterns that match no file are not an error here: that target fails alone.
+    A problem of the list itself (unreadable, missing or unknown columns, a row with
+    the wrong number of cells) raises :class:`DataError`. A problem of one target (its
+    name, its numbers, listed twice) only makes that target fail: it comes back with
+    ``problem`` set, and the batch runs the others. Data patterns that match no file
+    are not checked here either: that target fails when it runs.
     """
+    import io
+
     path = Path(path)
     try:
         text = path.read_text(encoding="utf-8-sig")
@@ -92,72 +129,89 @@ def read_targets(path: str | Path) -> list[Target]:
         raise DataError(f"{path}: no such file") from None
     except (OSError, UnicodeDecodeError) as exc:
         raise DataError(f"{path}: cannot read ({exc})") from None
-    rows = list(
-        csv.reader(
-            line for line in text.splitlines() if line.strip() and not line.lstrip().startswith("#")
-        )
-    )
+    rows: list[tuple[int, list[str]]] = []  # (first line of the row, cells)
+    reader = csv.reader(io.StringIO(text, newline=""))
+    last = 0
+    try:
+        for row in reader:
+            first, last = last + 1, reader.line_num
+            if not row or not "".join(row).strip() or row[0].lstrip().startswith("#"):
+                continue
+            rows.append((first, row))
+    except csv.Error as exc:
+        raise DataError(f"{path}, line {reader.line_num}: {exc}") from None
     if not rows:
         raise DataError(f"{path}: empty target list")
-    header = [h.strip().lower() for h in rows[0]]
+    header = [h.strip().lower() for h in rows[0][1]]
     missing = [c for c in _REQUIRED if c not in header]
     if missing:
-        raise DataError(f"{path}, line 1: missing column(s) {', '.join(missing)}")
+        raise DataError(f"{path}, line {rows[0][0]}: missing column(s) {', '.join(missing)}")
     unknown = [c for c in header if c not in _REQUIRED + _OPTIONAL]
     if unknown:
-        raise DataError(f"{path}, line 1: unknown column(s) {', '.join(unknown)}")
-    base = path.parent
+        raise DataError(f"{path}, line {rows[0][0]}: unknown column(s) {', '.join(unknown)}")
     targets, names = [], set()
-    # line numbers: count only the non-blank, non-comment lines' positions
-    line_numbers = [
-        i + 1
-        for i, line in enumerate(text.splitlines())
-        if line.strip() and not line.lstrip().startswith("#")
-    ]
-    for row, line in zip(rows[1:], line_numbers[1:], strict=False):
+    for line, row in rows[1:]:
         where = f"{path}, line {line}"
         if len(row) != len(header):
             raise DataError(f"{where}: {len(row)} cells where the header has {len(header)}")
         rec = {h: c.strip() for h, c in zip(header, row, strict=True)}
         name = rec["name"]
-        if not name or "/" in name or name.startswith("."):
-            raise DataError(f"{where}: bad target name {name!r}")
-        if name in names:
-            raise DataError(f"{where}: target {name!r} listed twice")
+        problem = _name_problem(name)
+        if problem is None and name in names:
+            problem = f"target {name!r} listed twice"
+        if problem is not None:
+            shown = _shown(name).strip("'") or f"line-{line}"
+            while shown in names:
+                shown += f"@line{line}"
+            name = shown
         names.add(name)
         try:
-            mass, err = float(rec["star_mass"]), float(rec["star_mass_err"] or 0.0)
-        except ValueError:
-            raise DataError(f"{where}: star_mass and star_mass_err must be numbers") from None
-        if not mass > 0 or err < 0:
-            raise DataError(f"{where}: star_mass must be positive and star_mass_err not negative")
-        files: list[str] = []
-        for pattern in rec["data"].split(";"):
-            pattern = pattern.strip()
-            if pattern:
-                full = str(base / pattern)
-                matches = sorted(glob.glob(full))
-                files.extend(matches or [full])
-        kw = {}
-        if rec.get("trend"):
-            value = rec["trend"].strip()
-            if value not in ("auto", "0", "1", "2"):
-                raise DataError(f"{where}: trend must be auto, 0, 1 or 2, got {value!r}")
-            kw["trend"] = value if value == "auto" else int(value)
-        for key in ("max_planets", "planets"):
-            if rec.get(key):
-                try:
-                    kw[key] = int(rec[key])
-                except ValueError:
-                    raise DataError(f"{where}: {key} must be a whole number") from None
-        if rec.get("model"):
-            kw["model"] = str(base / rec["model"])
-        if "kms" in rec:
-            kw["kms"] = _bool(rec["kms"], where)
-        targets.append(Target(name, tuple(files), mass, err, line=line, **kw))
+            target = _target_from(rec, name, path.parent, line)
+        except DataError as exc:
+            target = Target(name, (), 1.0, 0.0, line=line)
+            problem = problem or str(exc)
+        if problem is not None:
+            target = replace(target, problem=f"{where}: {problem}")
+        targets.append(target)
     if not targets:
         raise DataError(f"{path}: no targets")
     return targets
+
+
+def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Target:
+    """One target from its row's cells (raises DataError with the problem)."""
+    try:
+        mass, err = float(rec["star_mass"]), float(rec["star_mass_err"] or 0.0)
+    except ValueError:
+        raise DataError("star_mass and star_mass_err must be numbers") from None
+    if not (math.isfinite(mass) and mass > 0) or not (math.isfinite(err) and err >= 0):
+        raise DataError("star_mass must be positive and star_mass_err not negative")
+    files: list[str] = []
+    for pattern in rec["data"].split(";"):
+        pattern = pattern.strip()
+        if pattern:
+            full = str(base / pattern)
+            matches = sorted(glob.glob(full))
+            files.extend(matches or [full])
+    kw = {}
+    if rec.get("trend"):
+        value = rec["trend"].strip()
+        if value not in ("auto", "0", "1", "2"):
+            raise DataError(f"trend must be auto, 0, 1 or 2, got {value!r}")
+        kw["trend"] = value if value == "auto" else int(value)
+    for key in ("max_planets", "planets"):
+        if rec.get(key):
+            try:
+                kw[key] = int(rec[key])
+            except ValueError:
+                raise DataError(f"{key} must be a whole number") from None
+            if kw[key] < 0:
+                raise DataError(f"{key} must be 0 or more")
+    if rec.get("model"):
+        kw["model"] = str(base / rec["model"])
+    if "kms" in rec:
+        kw["kms"] = _bool(rec["kms"], "kms")
+    return Target(name, tuple(files), mass, err, line=line, **kw)
 
 
 def _target_seed(seed: int, name: str) -> int:
@@ -431,6 +485,10 @@ def _run_targets(targets, out, workers, scheduler, seed, quiet, quick, executor)
     infos: dict[str, dict] = {}
     pending = []
     for t in targets:
+        if t.problem:
+            infos[t.name] = {"name": t.name, "status": "failed", "seconds": 0.0,
+                             "error": t.problem}  # fmt: skip
+            continue
         info = _read_done(out / t.name)
         if info is not None:
             infos[t.name] = {**info, "status": "skipped"}

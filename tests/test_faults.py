@@ -366,3 +366,48 @@ def test_damaged_completion_record_reruns_that_target(tmp_path):
     assert infos["star1"]["status"] == "done" and infos["star0"]["status"] == "skipped"
     rows = {r["name"]: r for r in read_summary(out) if r["row"] == "target"}
     assert rows["star1"]["status"] == "done" and rows["star1"]["n_planets"] == "1"
+
+
+def test_bad_target_names_fail_alone(tmp_path):
+    """A 300-character name, a NUL, a quoted newline: that target fails with its line,
+    the others run, and summary.csv holds only printable names."""
+    from rvkep.batch import read_targets, run_batch
+
+    targets = make_targets(tmp_path / "in", 1)
+    text = targets.read_text().replace("broken,broken.txt,1.0,0.05,1\n", "")
+    text += "x" * 300 + ",star0.txt,1.0,0.05,1\n"
+    text += "nul\x00name,star0.txt,1.0,0.05,1\n"
+    text += '"two\nlines",star0.txt,1.0,0.05,1\n'
+    text += "after,star0.txt,1.0,0.05,1\n"
+    targets.write_text(text)
+    listed = read_targets(targets)
+    assert [t.line for t in listed] == [2, 3, 4, 5, 7]  # the quoted newline spans 5-6
+    assert "line 3: target name of 300 characters" in listed[1].problem
+    assert "line 4: target name" in listed[2].problem and "control character" in listed[2].problem
+    assert "line 5: target name" in listed[3].problem
+    assert not listed[0].problem and not listed[4].problem
+    out = tmp_path / "out"
+    infos = run_batch(targets, out, workers=2, quick=True, quiet=True)
+    assert infos["star0"]["status"] == "done" and infos["after"]["status"] == "done"
+    assert sum(i["status"] == "failed" for i in infos.values()) == 3
+    summary = (out / "summary.csv").read_text()
+    assert "\x00" not in summary and "x" * 100 not in summary
+    rows = [r for r in read_summary(out) if r["row"] == "target"]
+    assert len(rows) == 5 and all("\n" not in r["name"] for r in rows)
+    assert sorted(p.name for p in out.iterdir() if p.is_dir()) == ["after", "star0"]
+
+
+def test_analyze_clears_debris_of_a_killed_run(tmp_path):
+    """Temporary files of a run killed mid-write are removed by the next run."""
+    from rvkep.cli import demo_folder, main
+
+    demo = demo_folder()
+    out = tmp_path / "out"
+    out.mkdir()
+    debris = [out / ".timeseries.png.tmp-k1ll3d", out / ".results.json.tmp-abc123"]
+    for p in debris:
+        p.write_bytes(b"half a file")
+    code = main(["analyze", str(demo / "kestrel.txt"), str(demo / "osprey.csv"), "--out",
+                 str(out), "--quick", "--quiet", "--trend", "0", "--max-steps", "250"])  # fmt: skip
+    assert code == 0
+    assert not any(p.exists() for p in debris) and not list(out.glob(".*.tmp-*"))
