@@ -48,6 +48,18 @@ def _add_data_args(p: argparse.ArgumentParser) -> None:
         help="RV tables (one per instrument, or with an instrument column)",
     )
     p.add_argument("--kms", action="store_true", help="velocities and errors are in km/s")
+    _add_bin_arg(p)
+
+
+def _add_bin_arg(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--bin",
+        type=float,
+        default=None,
+        metavar="DAYS",
+        help="average each instrument's points in bins DAYS wide first (weighted by 1/err^2; "
+        "needed above 20,000 points)",
+    )
 
 
 def _load(args: argparse.Namespace):
@@ -62,6 +74,11 @@ def _load(args: argparse.Namespace):
     for w in caught:
         if issubclass(w.category, DataWarning):
             print(f"rvkep {args.command}: warning: {w.message}", file=sys.stderr)
+    if getattr(args, "bin", None) is not None:
+        from rvkep.pipeline import bin_data
+
+        data, note = bin_data(data, args.bin)
+        print(f"rvkep {args.command}: {note}", file=sys.stderr)
     return data
 
 
@@ -89,8 +106,11 @@ def _run_periodogram(args: argparse.Namespace) -> int:
     from rvkep.errors import OptionError
 
     data = _load(args)
+    from rvkep.data import check_size
     from rvkep.outputs import save_figure
     from rvkep.plots import plot_periodograms
+
+    check_size(data)
     from rvkep.search import search
 
     try:
@@ -197,6 +217,7 @@ def _analyze_options(args: argparse.Namespace, out: str):
         trend=args.trend,
         fig_format=args.format,
         max_steps=args.max_steps,
+        bin_days=getattr(args, "bin", None),
     )
 
 
@@ -281,6 +302,7 @@ def _add_analyze(sub) -> None:
     p.add_argument("files", nargs="*", metavar="FILE", help="RV tables (or give them in --model)")
     p.add_argument("--kms", action="store_true", help="velocities and errors are in km/s")
     p.add_argument("--model", default=None, metavar="MODEL.toml", help="a model file")
+    _add_bin_arg(p)
     _add_analysis_args(p, "rvkep_output")
     p.set_defaults(run=_run_analyze)
 
@@ -347,6 +369,7 @@ def _add_sample(sub) -> None:
     p.add_argument("model", metavar="MODEL.toml")
     p.add_argument("files", nargs="*", metavar="DATA", help="RV tables (default: the model's)")
     p.add_argument("--kms", action="store_true", help="velocities and errors are in km/s")
+    _add_bin_arg(p)
     p.add_argument("--out", required=True, metavar="DIR")
     p.add_argument("--seed", type=int, default=None, help="default: the model file's, else 0")
     p.add_argument("--max-steps", type=int, default=None, help="default: the model file's")

@@ -47,6 +47,8 @@ __all__ = [
     "COLUMN_NAMES",
     "MIN_POINTS",
     "MIN_SPAN_DAYS",
+    "MAX_POINTS",
+    "check_size",
 ]
 
 #: Header names (lower case, with ``-``, ``.`` and spaces turned into ``_`` and any unit
@@ -74,6 +76,11 @@ COLUMN_NAMES: dict[str, tuple[str, ...]] = {
 #: The shortest time span (days) accepted for one star: data from a single night
 #: cannot separate an orbit from a drift.
 MIN_SPAN_DAYS = 1.0
+
+#: The most points the search, fit and sampler take for one star. Typical RV sets
+#: hold 10 to 5,000 points; beyond this the sampler alone would run for hours, so larger
+#: sets are refused with a pointer to binning (``--bin DAYS``, :meth:`RVData.binned`).
+MAX_POINTS = 20_000
 
 #: The fewest points rvkep accepts for one star (a one-companion fit has seven
 #: parameters with one instrument).
@@ -266,6 +273,36 @@ class RVData:
             list(self.files),
             self.epoch,
         )
+
+    def binned(self, days: float) -> RVData:
+        """Each instrument's points averaged in time bins ``days`` wide.
+
+        Bins start at the first whole day of the time system (for BJD: noon UT, so a
+        1-day bin holds one night in Europe, Africa and the Americas). Within a bin the
+        time, velocity and extra columns are means weighted by 1/err^2 (extras over
+        their finite values) and the error is that of the weighted mean, 1/sqrt(sum
+        1/err^2); jitter is left to the model, which fits it on the binned points.
+        Instruments are never mixed. A copy is returned; ``self`` is not changed.
+        """
+        if not (np.isfinite(days) and days > 0):
+            raise ValueError(f"bin width must be a positive number of days, got {days!r}")
+        start = float(np.floor(self.time.min()))
+        b = np.floor((self.time - start) / days).astype(np.int64)
+        codes = self.instrument_index.astype(np.int64)
+        keys = codes * (int(b.max()) + 1) + b
+        uniq, inv = np.unique(keys, return_inverse=True)
+        w = 1.0 / self.err**2
+        sw = np.bincount(inv, w)
+        time = start + np.bincount(inv, w * (self.time - start)) / sw
+        rv = np.bincount(inv, w * self.rv) / sw
+        names = np.asarray(self.instruments)[uniq // (int(b.max()) + 1)]
+        extra = {}
+        for k, v in self.extra.items():
+            ok = np.isfinite(v)
+            wk = np.bincount(inv, np.where(ok, w, 0.0))
+            with np.errstate(invalid="ignore", divide="ignore"):
+                extra[k] = np.bincount(inv, np.where(ok, w * v, 0.0)) / wk
+        return RVData(time, rv, 1.0 / np.sqrt(sw), names, extra, list(self.files))
 
     def summary(self) -> DataSummary:
         """Per instrument: points, time span, median error and RMS of the velocities."""
@@ -514,7 +551,22 @@ _BLANK_BYTES = _byte_class(b" \t\r\x0b\x0c")
 _LINE_COMMENT_BYTES = _byte_class(b"!%")
 
 
+#: Lines handled per block when counting cells: bounds the reader's working memory
+#: (about 30 bytes per byte of a block) whatever the size of the file.
+_LINES_PER_BLOCK = 200_000
+
+
 def _fields_per_line(body: list[str], delimiter: str | None) -> np.ndarray:
+    """Number of cells on each line (0 for blank and comment lines), in blocks."""
+    if len(body) <= _LINES_PER_BLOCK:
+        return _fields_in_block(body, delimiter)
+    return np.concatenate([
+        _fields_in_block(body[i : i + _LINES_PER_BLOCK], delimiter)
+        for i in range(0, len(body), _LINES_PER_BLOCK)
+    ])  # fmt: skip
+
+
+def _fields_in_block(body: list[str], delimiter: str | None) -> np.ndarray:
     """Number of cells on each line (0 for blank and comment lines), vectorized.
 
     Works on the bytes of the whole table at once: a ``#`` comment runs to the end of
@@ -567,7 +619,11 @@ def read_rv_file(path: str | Path, *, kms: bool = False, instrument: str | None 
         With the file, the line and the problem.
     """
     path = Path(path)
-    lines = _decode(path).replace("\r\n", "\n").replace("\r", "\n").split("\n")
+    text = _decode(path)
+    if "\r" in text:  # Windows or old Mac line ends
+        text = text.replace("\r\n", "\n").replace("\r", "\n")
+    lines = text.split("\n")
+    del text
     layout = _find_layout(path, lines)
     body = lines[layout.first_data :]
     widths = _fields_per_line(body, layout.delimiter)
@@ -809,3 +865,13 @@ def load_rv(
             "more than one night"
         )
     return data
+
+
+def check_size(data: RVData, max_points: int = MAX_POINTS) -> None:
+    """Refuse a data set larger than the analysis takes, saying what to do instead."""
+    if len(data) > max_points:
+        raise DataError(
+            f"{', '.join(data.files)}: {len(data):,} points, more than the {max_points:,} "
+            "rvkep fits directly; average them in time bins first with --bin DAYS (e.g. "
+            "--bin 1: one point per instrument and day)"
+        )

@@ -216,6 +216,14 @@ class LogPosterior:
         added back). Invalid rows give NaN.
         """
         theta = np.atleast_2d(np.asarray(theta, float))
+        # in blocks of about two million residuals, so memory does not grow with
+        # samples x points (the draws are the same as in one block: one stream)
+        block = max(1, 2_000_000 // max(len(self.model.data), 1))
+        if theta.shape[0] > block:
+            return np.concatenate([
+                self.linear_parameters(theta[i : i + block], rng)
+                for i in range(0, theta.shape[0], block)
+            ])  # fmt: skip
         _, det = self.evaluate(theta)
         m = self.model.n_linear
         out = np.full((theta.shape[0], m), np.nan)

@@ -199,7 +199,7 @@ def periodogram(
     return pg
 
 
-def spectral_window(t: np.ndarray, frequency: np.ndarray, chunk: int = 4096) -> np.ndarray:
+def spectral_window(t: np.ndarray, frequency: np.ndarray, chunk: int | None = None) -> np.ndarray:
     """Spectral window |sum exp(2 pi i f t)|^2 / N^2 of the sampling (Deeming 1975).
 
     Equals 1 at f = 0; peaks at the sidereal day and the year reveal where aliases of
@@ -209,6 +209,8 @@ def spectral_window(t: np.ndarray, frequency: np.ndarray, chunk: int = 4096) -> 
     t = t - np.round(np.mean(t))
     frequency = np.asarray(frequency, float)
     out = np.empty(frequency.size)
+    if chunk is None:  # about 2 million phases (16 MB) at a time, whatever the sizes
+        chunk = max(1, 2_000_000 // max(t.size, 1))
     for i in range(0, frequency.size, chunk):
         ph = 2.0 * np.pi * np.outer(frequency[i : i + chunk], t)
         out[i : i + chunk] = (np.cos(ph).sum(1) ** 2 + np.sin(ph).sum(1) ** 2) / t.size**2

@@ -15,6 +15,7 @@ References
 
 from __future__ import annotations
 
+import math
 import time
 import warnings
 from dataclasses import dataclass, replace
@@ -22,7 +23,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rvkep.data import DataWarning, RVData, load_rv
+from rvkep.data import DataWarning, RVData, check_size, load_rv
 from rvkep.errors import OptionError, RvkepError
 from rvkep.outputs import clean_temporaries, folder_lock
 from rvkep.physics import StarProperties
@@ -57,6 +58,18 @@ class AnalyzeOptions:
     fig_format: str = "png"
     max_steps: int | None = None
     figures: bool = True
+    bin_days: float | None = None  # average each instrument's points in bins this wide
+
+
+def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
+    """``data`` averaged in bins ``days`` wide (:meth:`RVData.binned`), and the line
+    that says so (printed, and kept in results.json's notes)."""
+    if not (isinstance(days, (int, float)) and math.isfinite(days) and days > 0):
+        raise OptionError(f"--bin must be a positive number of days, got {days!r}")
+    binned = data.binned(days)
+    note = (f"data averaged in {days:g}-day bins per instrument: {len(data):,} -> "
+            f"{len(binned):,} points")  # fmt: skip
+    return binned, note
 
 
 def _say(opts: AnalyzeOptions, text: str) -> None:
@@ -252,6 +265,7 @@ def validate_options(opts: AnalyzeOptions) -> None:
             raise OptionError(f"--star-{name}-err needs --star-{name}")
     if not (isinstance(opts.fap, (int, float)) and 0 < opts.fap < 1):
         raise OptionError(f"--fap must lie between 0 and 1, got {opts.fap!r}")
+    finite("--bin", opts.bin_days, positive=True)
     finite("--min-period", opts.min_period, positive=True)
     finite("--max-period", opts.max_period, positive=True)
     for name in ("min_period", "max_period"):
@@ -291,6 +305,11 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
     data_notes = [f"data: {w.message}" for w in caught if issubclass(w.category, DataWarning)]
     for note in data_notes:  # printed now, and kept in results.json and the summary
         _say(opts, f"warning: {note.removeprefix('data: ')}")
+    if opts.bin_days is not None:
+        data, note = bin_data(data, opts.bin_days)
+        data_notes.append(note)
+        _say(opts, note)
+    check_size(data)
     star = spec.star if spec and spec.star else None
     if opts.star_mass is not None:
         if not opts.star_mass > 0 or opts.star_mass_err < 0:
