@@ -191,18 +191,46 @@ def plot_phase(data, phase, velocity, curve_phase, curve, label, period, band=No
 
 
 def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None, fig=None):
-    """Corner plot (corner) of the named posterior columns."""
+    """Corner plot (corner) of the named posterior columns.
+
+    Columns that do not vary (fixed parameters, and quantities derived from them
+    alone) have no distribution to draw: they are left out of the panels and listed
+    with their value in the figure's title line instead. With fewer than one varying
+    column the figure holds only that line.
+    """
+    import logging
+
     import corner
+    import matplotlib.pyplot as plt
 
     from rvkep.formatting import text_value
 
-    x = np.column_stack([np.asarray(samples[n]) for n in names])
-    fig = corner.corner(
-        x, labels=labels, truths=truths, fig=fig, quantiles=[0.16, 0.5, 0.84],
-        label_kwargs={"fontsize": 9}, color=INSTRUMENT_COLOURS[0],
-    )  # fmt: skip
-    axes = np.array(fig.axes).reshape(len(names), len(names))
-    for i, label in enumerate(labels):  # titles rounded to the uncertainty
+    columns = {n: np.asarray(samples[n], float) for n in names}
+    constant = [(n, lab) for n, lab in zip(names, labels, strict=True) if np.ptp(columns[n]) == 0]
+    keep = [(n, lab) for n, lab in zip(names, labels, strict=True) if np.ptp(columns[n]) > 0]
+    fixed_text = ", ".join(f"{lab} = {columns[n][0]:.6g} (fixed)" for n, lab in constant)
+    if not keep:
+        fig = fig or plt.figure(figsize=(4.0, 1.2))
+        fig.text(0.5, 0.5, fixed_text or "nothing to draw", ha="center", va="center", fontsize=9)
+        return fig
+    x = np.column_stack([columns[n] for n, _ in keep])
+    if truths is not None:
+        truths = [t for t, n in zip(truths, names, strict=True) if np.ptp(columns[n]) > 0]
+    corner_log = logging.getLogger()  # corner warns about sparse contours on the root logger
+    level = corner_log.level
+    corner_log.setLevel(logging.ERROR)
+    try:
+        fig = corner.corner(
+            x, labels=[lab for _, lab in keep], truths=truths, fig=fig,
+            quantiles=[0.16, 0.5, 0.84], label_kwargs={"fontsize": 9},
+            color=INSTRUMENT_COLOURS[0],
+        )  # fmt: skip
+    finally:
+        corner_log.setLevel(level)
+    axes = np.array(fig.axes).reshape(len(keep), len(keep))
+    for i, (_, label) in enumerate(keep):  # titles rounded to the uncertainty
         lo, med, hi = np.percentile(x[:, i], [15.87, 50.0, 84.13])
         axes[i, i].set_title(f"{label} = {text_value(med, med - lo, hi - med)}", fontsize=8)
+    if fixed_text:
+        fig.text(0.99, 0.99, fixed_text, ha="right", va="top", fontsize=8)
     return fig

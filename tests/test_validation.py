@@ -98,3 +98,42 @@ def test_scheduler_that_is_not_an_address(tmp_path, capsys):
                  "notanaddress", "--quiet"])  # fmt: skip
     err = capsys.readouterr().err.strip()
     assert code == 2 and "not a scheduler address" in err and len(err.splitlines()) == 1
+
+
+def test_fixed_K_and_fixed_jitters_run_to_the_end(tmp_path, capsys):
+    """Fixed parameters have no distribution: the corner plot lists them instead of
+    failing (it raised "no dynamic range" before), and nothing leaks onto --quiet."""
+    model = tmp_path / "fixed.toml"
+    model.write_text(
+        f'[data]\nfiles = ["{DATA[0]}", "{DATA[1]}"]\n'
+        '[instruments.kestrel]\njitter = { prior = "fixed", value = 2.0 }\n'
+        '[instruments.osprey]\njitter = { prior = "fixed", value = 2.0 }\n'
+        '[companions.b]\nperiod = 11.87\nK = { prior = "fixed", value = 18.0 }\n'
+    )
+    out = tmp_path / "out"
+    code = main(["sample", str(model), "--out", str(out), "--max-steps", "200", "--quiet"])
+    printed = capsys.readouterr()
+    assert code == 0, printed.err
+    assert printed.out == "" and "WARNING" not in printed.err
+    import json
+
+    res = json.loads((out / "results.json").read_text())
+    assert res["planets"][0]["K_mps"]["median"] == 18.0
+    assert (out / "corner_b.png").exists()
+
+
+@pytest.mark.parametrize(
+    "prior", ["{ prior = 'uniform', min = 50000, max = 60000 }",
+              "{ prior = 'loguniform', min = 0.001, max = 0.0011 }"],
+)  # fmt: skip
+def test_period_prior_away_from_the_data_range_runs_or_refuses_in_one_line(tmp_path, capsys, prior):
+    """Priors far beyond the baseline or below the sampling run (such a model is legal,
+    if poorly constrained), and say nothing on --quiet; they must never crash."""
+    model = tmp_path / "far.toml"
+    model.write_text(
+        f'[data]\nfiles = ["{DATA[0]}", "{DATA[1]}"]\n[companions.b]\nperiod = {prior}\n'
+    )
+    code = main(["sample", str(model), "--out", str(tmp_path / "out"), "--max-steps", "200",
+                 "--quiet"])  # fmt: skip
+    printed = capsys.readouterr()
+    assert code == 0 and "Traceback" not in printed.err, printed.err
