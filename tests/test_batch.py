@@ -118,6 +118,13 @@ def test_dask_local_cluster(tmp_path):
         dashboard_address="127.0.0.1:0", local_directory=str(tmp_path / "dask"),
     ) as cluster:  # fmt: skip
         address = cluster.scheduler_address
+        # nothing listens beyond this machine: the scheduler and every worker (and
+        # its nanny) on the loopback interface
+        with distributed.Client(address) as client:
+            workers = client.scheduler_info()["workers"]
+        assert address.startswith("tcp://127.0.0.1:")
+        assert len(workers) == 2 and all(w.startswith("tcp://127.0.0.1:") for w in workers)
+        assert all(w["nanny"].startswith("tcp://127.0.0.1:") for w in workers.values())
         code = main(["batch", str(targets), "--out", str(out), "--scheduler", address,
                      "--quick", "--quiet"])  # fmt: skip
     assert code == BATCH_FAILED_EXIT  # the broken target
