@@ -652,9 +652,12 @@ def read_rv_file(path: str | Path, *, kms: bool = False, instrument: str | None 
                 raise DataError(_locate_bad_row(path, lines, layout)) from None
         names = None
         if "instrument" in layout.roles:
-            col = [layout.roles.index("instrument")]
-            names = np.loadtxt(rows, usecols=col, dtype=str, **read)
-            names = np.char.strip(names[:, 0], "\"' ")
+            col = layout.roles.index("instrument")
+            try:
+                names = np.loadtxt(rows, usecols=[col], dtype=str, **read)[:, 0]
+            except ValueError:  # e.g. an empty quoted name "" that numpy drops
+                names = np.array([_split(r, layout.delimiter)[col] for r in rows], dtype=str)
+            names = np.char.strip(names, "\"' ")
     n_rows = table.shape[0]
     col = {
         r: table[:, numeric_cols.index(j)] for j, r in enumerate(layout.roles) if j in numeric_cols
