@@ -310,7 +310,29 @@ def _worker_init(parent: int) -> None:
     import threading
 
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    # the worker was started with SIGINT blocked (see _sigint_deferred): a Ctrl-C
+    # during its start-up is pending now, and dropped as ignored
+    if hasattr(signal, "pthread_sigmask"):
+        signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
     threading.Thread(target=_watch_parent, args=(parent,), daemon=True).start()
+
+
+@contextlib.contextmanager
+def _sigint_deferred():
+    """Block SIGINT in this thread for the duration (a pending one is delivered after).
+
+    Local workers are spawned inside ``submit``; a child inherits the signal mask, so
+    it imports and unpickles with SIGINT blocked instead of dying of a
+    KeyboardInterrupt with a traceback if Ctrl-C comes while it starts.
+    """
+    if not hasattr(signal, "pthread_sigmask"):  # pragma: no cover - not on POSIX
+        yield
+        return
+    old = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+    try:
+        yield
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, old)
 
 
 def _run_pooled(target: Target, out: str, seed: int, quick: bool) -> dict:
@@ -527,7 +549,8 @@ def _run_targets(targets, out, workers, scheduler, seed, quiet, quick, executor)
                 while queue and len(running) < window:
                     t = queue.pop(0)
                     fn = _run_pooled if local else run_target
-                    running[executor.submit(fn, t, str(out), seed, quick)] = t
+                    with _sigint_deferred():
+                        running[executor.submit(fn, t, str(out), seed, quick)] = t
                 for fut in _first_completed(executor, list(running)):
                     record(fut, running.pop(fut))
         except KeyboardInterrupt:

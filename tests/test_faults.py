@@ -411,3 +411,18 @@ def test_analyze_clears_debris_of_a_killed_run(tmp_path):
                  str(out), "--quick", "--quiet", "--trend", "0", "--max-steps", "250"])  # fmt: skip
     assert code == 0
     assert not any(p.exists() for p in debris) and not list(out.glob(".*.tmp-*"))
+
+
+@pytest.mark.parametrize("delay", [0.0, 0.3, 1.0])
+def test_ctrl_c_while_workers_start_prints_no_traceback(tmp_path, delay):
+    """Ctrl-C while the worker processes are still starting (importing, unpickling)."""
+    targets = make_targets(tmp_path / "in", 3)
+    out = tmp_path / "out"
+    proc = subprocess.Popen(batch_cmd(targets, out), start_new_session=True,
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)  # fmt: skip
+    assert wait_for(lambda: len(children(proc.pid)) >= 2, 60, step=0.01)
+    time.sleep(delay)
+    os.killpg(proc.pid, signal.SIGINT)
+    stdout, stderr = proc.communicate(timeout=60)
+    assert proc.returncode == 130, stderr
+    assert "Traceback" not in stderr + stdout, stderr
