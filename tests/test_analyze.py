@@ -24,6 +24,7 @@ def inside(estimate, truth, k=3.0):
     return med - k * lo <= truth <= med + k * hi
 
 
+@pytest.mark.integration
 def test_demo_results_json(demo_run):
     # the truth was invented and written by scripts/make_demo.py (seed 20261202)
     res = json.loads((demo_run / "results.json").read_text())
@@ -57,6 +58,7 @@ def test_demo_results_json(demo_run):
     assert any(row["chosen"] and row["n_companions"] == 2 for row in res["model_comparison"])
 
 
+@pytest.mark.integration
 def test_demo_files_and_figures(demo_run):
     for name in ("summary.md", "parameters.tex", "parameters.csv", "samples.csv", "samples.npz",
                  "timeseries.png", "periodogram.png", "phase_b.png", "phase_c.png",
@@ -70,6 +72,7 @@ def test_demo_files_and_figures(demo_run):
     assert not list(demo_run.glob(".*tmp*"))
 
 
+@pytest.mark.integration
 def test_every_output_says_it_was_a_quick_run(demo_run):
     res = json.loads((demo_run / "results.json").read_text())
     assert res["run_kind"]["quick"] is True and "QUICK" in res["run_kind"]["label"]
@@ -81,6 +84,7 @@ def test_every_output_says_it_was_a_quick_run(demo_run):
     assert "Quick mode" in (demo_run / "summary.md").read_text()
 
 
+@pytest.mark.integration
 def test_figures_carry_the_kind_of_run(demo_run):
     from PIL import Image
 

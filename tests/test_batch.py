@@ -71,6 +71,7 @@ def test_target_list_errors(tmp_path):
     assert not first.problem and "line 3: target 'x' listed twice" in second.problem
 
 
+@pytest.mark.integration
 def test_local_batch_and_skip_on_rerun(tmp_path, capsys):
     targets = make_targets(tmp_path / "in", 3)
     out = tmp_path / "out"
@@ -89,6 +90,7 @@ def test_local_batch_and_skip_on_rerun(tmp_path, capsys):
     check_complete(out, 3)
 
 
+@pytest.mark.integration
 def test_rerun_after_sigkill(tmp_path):
     targets = make_targets(tmp_path / "in", 4)
     out = tmp_path / "out"
@@ -109,6 +111,7 @@ def test_rerun_after_sigkill(tmp_path):
     check_complete(out, 4)
 
 
+@pytest.mark.integration
 def test_dask_local_cluster(tmp_path):
     distributed = pytest.importorskip("distributed")
     targets = make_targets(tmp_path / "in", 2)
@@ -133,6 +136,7 @@ def test_dask_local_cluster(tmp_path):
     assert res["n_planets"] == 1
 
 
+@pytest.mark.integration
 def test_unreachable_scheduler(tmp_path, capsys):
     targets = make_targets(tmp_path / "in", 1)
     code = main(

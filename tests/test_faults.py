@@ -13,7 +13,10 @@ from pathlib import Path
 import pytest
 from test_batch import make_targets, read_summary
 
-pytestmark = pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="needs /proc")
+pytestmark = [
+    pytest.mark.integration,
+    pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="needs /proc"),
+]
 
 
 def children(pid: int) -> set[int]:

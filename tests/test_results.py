@@ -33,6 +33,7 @@ def test_latex_and_text_forms():
     assert text_value(143.37701, 0.10519, 0.10452) == "143.38 +0.10 -0.11"
 
 
+@pytest.mark.integration
 def test_sample_command_with_a_model_file(tmp_path):
     model = tmp_path / "veyla.toml"
     model.write_text(

@@ -120,6 +120,7 @@ def run_script(tmp_path, path, out, steps, kill_after=None):
     proc.wait()
 
 
+@pytest.mark.integration
 def test_resume_after_sigkill_gives_the_same_chain(tmp_path):
     steps = 1500
     whole = tmp_path / "whole.h5"

@@ -42,6 +42,7 @@ def test_reading_in_blocks_gives_the_same_table(tmp_path, monkeypatch):
         load_rv(path)
 
 
+@pytest.mark.integration
 def test_check_of_a_million_rows_stays_small(tmp_path):
     """Reading costs about 300 bytes per row, not 900 (a million rows measured at 0.9 GB
     before reading in blocks)."""
@@ -99,6 +100,7 @@ def test_binning_is_the_weighted_mean_per_instrument_and_bin():
         data.binned(0.0)
 
 
+@pytest.mark.integration
 def test_analyze_with_bin_notes_it(tmp_path):
     path = big_table(tmp_path / "big.txt", MAX_POINTS + 1)
     out = tmp_path / "out"

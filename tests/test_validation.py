@@ -100,6 +100,7 @@ def test_scheduler_that_is_not_an_address(tmp_path, capsys):
     assert code == 2 and "not a scheduler address" in err and len(err.splitlines()) == 1
 
 
+@pytest.mark.integration
 def test_fixed_K_and_fixed_jitters_run_to_the_end(tmp_path, capsys):
     """Fixed parameters have no distribution: the corner plot lists them instead of
     failing (it raised "no dynamic range" before), and nothing leaks onto --quiet."""
@@ -122,6 +123,7 @@ def test_fixed_K_and_fixed_jitters_run_to_the_end(tmp_path, capsys):
     assert (out / "corner_b.png").exists()
 
 
+@pytest.mark.integration
 @pytest.mark.parametrize(
     "prior", ["{ prior = 'uniform', min = 50000, max = 60000 }",
               "{ prior = 'loguniform', min = 0.001, max = 0.0011 }"],
