@@ -65,6 +65,7 @@ class Results:
     quick: bool = False
     seed: int | None = None
     notes: list[str] = field(default_factory=list)
+    saved: dict | None = None  # results.json of a run read back by Results.load
 
     # -- building -------------------------------------------------------------
 
@@ -95,12 +96,103 @@ class Results:
 
     @property
     def labels(self) -> list[str]:
+        if self.fit is None and self.saved is not None:
+            return [p["label"] for p in self.saved["planets"]]
         return [c.label for c in self.fit.model.companions]
+
+    @property
+    def instrument_names(self) -> list[str]:
+        if self.fit is None and self.saved is not None:
+            return [i["name"] for i in self.saved["instruments"]]
+        return [i.name for i in self.fit.model.instruments]
+
+    @property
+    def trend_degree(self) -> int:
+        if self.fit is None and self.saved is not None:
+            return int(self.saved["trend"]["degree"])
+        return int(self.fit.model.trend)
+
+    # -- reloading and predicting ------------------------------------------------
+
+    @classmethod
+    def load(cls, folder: str | Path) -> Results:
+        """A finished run read back from its folder, without refitting.
+
+        Reads ``results.json``, the posterior samples (``samples.npz``) and the data
+        the run used (``data.csv``). The result predicts (:meth:`predict`), prints,
+        and writes its tables like the original; what it does not keep is the best-fit
+        object and the sampler's chain (``fit`` and ``sampling`` are None; their
+        numbers are in :attr:`saved`).
+
+        Raises
+        ------
+        rvkep.errors.DataError
+            If the folder lacks one of those files or they do not belong together.
+        """
+        from rvkep.errors import DataError
+
+        folder = Path(folder)
+        try:
+            saved = json.loads((folder / "results.json").read_text(encoding="utf-8"))
+        except FileNotFoundError:
+            raise DataError(f"{folder}: no results.json (not a finished rvkep run)") from None
+        except (OSError, ValueError) as exc:
+            raise DataError(f"{folder / 'results.json'}: unreadable ({exc})") from None
+        for name in ("samples.npz", "data.csv"):
+            if not (folder / name).exists():
+                raise DataError(f"{folder}: no {name} (written by rvkep 0.1.0 runs from now on)")
+        try:
+            posterior = PosteriorSamples.read_npz(folder / "samples.npz")
+            data = _read_data_csv(folder / "data.csv", float(saved["reference_epoch"]))
+        except (OSError, ValueError, KeyError) as exc:
+            raise DataError(f"{folder}: damaged samples.npz or data.csv ({exc})") from None
+        missing = [f"{p['label']}.period" for p in saved["planets"]
+                   if f"{p['label']}.period" not in posterior]  # fmt: skip
+        if missing or len(data) != sum(i["n_points"] for i in saved["instruments"]):
+            raise DataError(f"{folder}: results.json, samples.npz and data.csv disagree")
+        s = saved["star"]
+        star = StarProperties(s["mass_msun"], s["mass_err_msun"], radius=s.get("radius_rsun"),
+                              teff=s.get("teff_k"))  # fmt: skip
+        kind = saved["run_kind"]
+        return cls(
+            data, posterior, None, star=star, star_assumed=bool(kind["star_mass_assumed"]),
+            comparison=saved.get("model_comparison", []),
+            trend_comparison=saved.get("trend_comparison", []), quick=bool(kind["quick"]),
+            seed=saved.get("seed"), notes=list(saved.get("notes", [])), saved=saved,
+        )  # fmt: skip
+
+    def predict(
+        self,
+        t,
+        *,
+        instrument: str | None = None,
+        draws: int | None = None,
+        typical_error: float | None = None,
+        rng: np.random.Generator | int | None = 0,
+    ):
+        """Posterior predictive curves at times ``t`` (see :mod:`rvkep.predict`).
+
+        Each companion's curve, their sum plus the trend (``total``) and, with
+        ``instrument``, what that instrument should measure (``measured``: its offset,
+        its jitter and ``typical_error`` folded in; default the median error of its
+        points). Returns a :class:`rvkep.predict.Prediction`.
+        """
+        from rvkep.predict import predict
+
+        if instrument is not None and typical_error is None:
+            own = self.data.err[self.data.instrument == instrument]
+            typical_error = float(np.median(own)) if own.size else 0.0
+        return predict(
+            self.posterior.columns, self.labels, t, epoch=self.data.epoch,
+            instrument=instrument, typical_error=typical_error or 0.0, draws=draws, rng=rng,
+        )  # fmt: skip
 
     # -- summaries ------------------------------------------------------------
 
     @property
     def converged(self) -> bool:
+        if self.sampling is None and self.saved is not None:
+            return bool(self.saved["run_kind"]["converged"])
         return bool(getattr(self.sampling, "converged", False))
 
     def run_marks(self) -> list[str]:
@@ -126,6 +218,8 @@ class Results:
 
     def to_dict(self) -> dict:
         """The content of results.json."""
+        if self.fit is None and self.saved is not None:
+            return json.loads(json.dumps(self.saved))  # a copy
         planets = []
         for L in self.labels:
             entry = {"label": L}
@@ -229,28 +323,28 @@ class Results:
             for _, col, unit, sym in _PLANET_COLUMNS:
                 if f"{L}.{col}" in self.posterior:
                     rows.append((L, sym, self.estimate(f"{L}.{col}"), unit))
-        for inst in self.fit.model.instruments:
+        for name in self.instrument_names:
             rows.append(
                 (
-                    inst.name,
+                    name,
                     r"$\gamma$ (offset)",
-                    self.estimate(f"offset.{inst.name}"),
+                    self.estimate(f"offset.{name}"),
                     "m s$^{-1}$",
                 )
             )
             rows.append(
                 (
-                    inst.name,
+                    name,
                     r"$\sigma_\mathrm{jit}$",
-                    self.estimate(f"jitter.{inst.name}"),
+                    self.estimate(f"jitter.{name}"),
                     "m s$^{-1}$",
                 )
             )
-        if self.fit.model.trend >= 1:
+        if self.trend_degree >= 1:
             rows.append(
                 ("trend", r"$\dot\gamma$", self.estimate("trend.slope"), "m s$^{-1}$ yr$^{-1}$")
             )
-        if self.fit.model.trend >= 2:
+        if self.trend_degree >= 2:
             rows.append(
                 (
                     "trend",
@@ -293,13 +387,11 @@ class Results:
                     out.append(
                         f"{L},{key},{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},{_plain(unit)}"
                     )
-        for inst in self.fit.model.instruments:
+        for name in self.instrument_names:
             for key, col in (("offset_mps", "offset"), ("jitter_mps", "jitter")):
-                e = self.estimate(f"{col}.{inst.name}")
-                out.append(
-                    f"{inst.name},{key},{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},m/s"
-                )
-        if self.fit.model.trend >= 1:
+                e = self.estimate(f"{col}.{name}")
+                out.append(f"{name},{key},{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},m/s")
+        if self.trend_degree >= 1:
             e = self.estimate("trend.slope")
             out.append(
                 f"trend,slope_mps_per_yr,{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},m/s/yr"
@@ -439,12 +531,45 @@ class Results:
             "csv": write_text(out / "parameters.csv", self.csv_table()),
             "samples_csv": self.posterior.to_csv(out / "samples.csv"),
             "samples_npz": self.posterior.to_npz(out / "samples.npz"),
+            "data": write_text(out / "data.csv", _data_csv(self.data)),
         }
         # results.json last: its presence marks a complete result folder
         paths["json"] = write_text(
             out / "results.json", json.dumps(_clean(self.to_dict()), indent=2) + "\n"
         )
         return paths
+
+
+def _data_csv(data) -> str:
+    """The data a run used, exactly (shortest round-trip reprs), for Results.load."""
+    import csv
+    import io
+
+    extra = list(data.extra)
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["time", "rv", "err", "instrument", *extra])
+    for i in range(len(data)):
+        w.writerow([repr(float(data.time[i])), repr(float(data.rv[i])), repr(float(data.err[i])),
+                    str(data.instrument[i]), *(repr(float(data.extra[k][i])) for k in extra)])  # fmt: skip
+    return buf.getvalue()
+
+
+def _read_data_csv(path: Path, epoch: float):
+    """The RVData written by :func:`_data_csv` (extras may hold NaN where a file had
+    no such column)."""
+    import csv
+
+    from rvkep.data import RVData
+
+    with open(path, newline="", encoding="utf-8") as fh:
+        rows = list(csv.reader(fh))
+    header, body = rows[0], rows[1:]
+    cols = list(zip(*body, strict=True)) if body else [[] for _ in header]
+    num = {name: np.array(cols[j], float) for j, name in enumerate(header) if name != "instrument"}
+    extra = {k: v for k, v in num.items() if k not in ("time", "rv", "err")}
+    return RVData(num["time"], num["rv"], num["err"], np.array(cols[header.index("instrument")]),
+                  extra, [str(path)], epoch)  # fmt: skip
 
 
 def _latex_escape(text: str) -> str:

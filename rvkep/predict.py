@@ -1,0 +1,156 @@
+"""Posterior predictions: the velocity each companion, the star and an instrument
+should show at any time, from the kept posterior samples (not from best-fit values).
+
+For every posterior draw the Keplerian curve of each companion is evaluated at the
+requested times (one vectorized kernel call per companion over all draws and times);
+the spread of the curves across draws is the uncertainty of the prediction. Three
+kinds of curve are returned:
+
+* ``<label>``: the star's reflex velocity due to one companion;
+* ``total``: the sum over companions plus the fitted trend (the star's velocity
+  relative to the system's mean, which no instrument measures directly);
+* ``measured`` (when an instrument is named): ``total`` plus that instrument's
+  offset, plus a Gaussian draw with variance jitter^2 + err^2 (the instrument's jitter
+  of that posterior draw and its typical error, by default the median error of its
+  points): the posterior predictive distribution of a new measurement.
+
+The trend is a polynomial in years from the data's reference epoch, as in the model.
+Times are in the data's own time system.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from dataclasses import dataclass
+
+import numpy as np
+
+from rvkep.orbit import radial_velocity
+
+__all__ = ["Prediction", "predict", "QUANTILES"]
+
+#: The columns of a prediction summary and the percentiles behind them: the median,
+#: and the central 68.27% and 95.45% intervals (1 and 2 sigma of a Gaussian).
+QUANTILES = {
+    "median": 50.0,
+    "lo68": 15.865,
+    "hi68": 84.135,
+    "lo95": 2.275,
+    "hi95": 97.725,
+}
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """Predicted curves: ``curves[name]`` has shape (draws, times)."""
+
+    time: np.ndarray
+    curves: dict[str, np.ndarray]
+    instrument: str | None = None
+
+    @property
+    def names(self) -> list[str]:
+        """Curve names: the companions' labels, ``total``, and ``measured``."""
+        return list(self.curves)
+
+    def summary(self) -> dict[str, dict[str, np.ndarray]]:
+        """Per curve, the median and the 68% and 95% interval bounds at each time
+        (keys of :data:`QUANTILES`)."""
+        out = {}
+        for name, draws in self.curves.items():
+            levels = np.percentile(draws, list(QUANTILES.values()), axis=0)
+            out[name] = dict(zip(QUANTILES, levels, strict=True))
+        return out
+
+    def rows(self) -> list[dict[str, float]]:
+        """One row per time: ``time``, then ``<name>_<quantile>`` for every curve
+        (the columns of a prediction table, e.g. ``total_median``, ``b_lo68``)."""
+        summary = self.summary()
+        rows = []
+        for i, t in enumerate(self.time):
+            row = {"time": float(t)}
+            for name in ["total", *[n for n in self.curves if n not in ("total", "measured")],
+                         "measured"]:  # fmt: skip
+                if name in summary:
+                    for q, values in summary[name].items():
+                        row[f"{name}_{q}"] = float(values[i])
+            rows.append(row)
+        return rows
+
+
+def predict(
+    columns: Mapping[str, np.ndarray],
+    labels: list[str],
+    t,
+    *,
+    epoch: float,
+    instrument: str | None = None,
+    typical_error: float = 0.0,
+    draws: int | None = None,
+    rng: np.random.Generator | int | None = 0,
+) -> Prediction:
+    """Posterior predictive curves at times ``t`` (see the module text).
+
+    Parameters
+    ----------
+    columns : mapping of str to array
+        Posterior samples by name, as :class:`rvkep.posterior.PosteriorSamples` holds
+        them: ``<label>.period``, ``.K``, ``.ecc``, ``.omega_deg``, ``.tp`` (absolute),
+        ``offset.<instrument>``, ``jitter.<instrument>``, optional ``trend.slope``
+        (m/s per year) and ``trend.curvature`` (m/s per year^2).
+    labels : list of str
+        The companions to include.
+    t : array_like
+        Times, in the data's time system.
+    epoch : float
+        The data's reference epoch (the trend's zero point).
+    instrument : str, optional
+        Add this instrument's offset and noise (the ``measured`` curve).
+    typical_error : float
+        The measurement error folded into ``measured`` beside the jitter (m/s).
+    draws : int, optional
+        Use this many posterior draws, chosen at random without replacement (default:
+        all).
+    rng : Generator or int
+        For the choice of draws and the measurement noise.
+
+    Returns
+    -------
+    Prediction
+    """
+    rng = np.random.default_rng(rng)
+    t = np.atleast_1d(np.asarray(t, dtype=float))
+    if t.ndim != 1 or not np.all(np.isfinite(t)):
+        raise ValueError("times must be a 1-d array of finite numbers")
+    if not labels and instrument is None and "trend.slope" not in columns:
+        raise ValueError("nothing to predict: no companion, trend or instrument")
+    n_all = len(next(iter(columns.values())))
+    idx = np.arange(n_all)
+    if draws is not None:
+        if draws < 1:
+            raise ValueError(f"draws must be at least 1, got {draws}")
+        idx = np.sort(rng.choice(n_all, size=min(draws, n_all), replace=False))
+    dt = t - epoch  # phases are computed relative to the epoch, as in the model
+    curves: dict[str, np.ndarray] = {}
+    total = np.zeros((idx.size, t.size))
+    for L in labels:
+        col = {k: np.asarray(columns[f"{L}.{k}"], float)[idx, None]
+               for k in ("period", "K", "ecc", "omega_deg", "tp")}  # fmt: skip
+        v = radial_velocity(dt, col["period"], col["tp"] - epoch, col["ecc"],
+                            np.radians(col["omega_deg"]), col["K"])  # fmt: skip
+        curves[L] = v
+        total = total + v
+    years = dt / 365.25
+    for name, power in (("trend.slope", 1), ("trend.curvature", 2)):
+        if name in columns:
+            total = total + np.asarray(columns[name], float)[idx, None] * years**power
+    curves["total"] = total
+    if instrument is not None:
+        if f"offset.{instrument}" not in columns:
+            known = sorted(k.removeprefix("offset.") for k in columns if k.startswith("offset."))
+            raise ValueError(f"unknown instrument {instrument!r}; known: {', '.join(known)}")
+        offset = np.asarray(columns[f"offset.{instrument}"], float)[idx, None]
+        jitter = np.asarray(columns.get(f"jitter.{instrument}", np.zeros(n_all)), float)[idx, None]
+        sd = np.sqrt(jitter**2 + float(typical_error) ** 2)
+        curves["measured"] = total + offset + sd * rng.standard_normal(total.shape)
+    return Prediction(t, curves, instrument)

@@ -1,0 +1,96 @@
+"""Posterior predictions and finished runs read back: against a point-by-point
+reference curve and against the run's own files."""
+
+import json
+
+import numpy as np
+import pytest
+from test_orbit import slow_rv
+
+from rvkep.predict import QUANTILES, predict
+
+
+def posterior(n=40, seed=3):
+    """Invented posterior draws of two companions, one instrument and a linear trend."""
+    rng = np.random.default_rng(seed)
+    return {
+        "b.period": rng.normal(143.4, 0.1, n), "b.K": rng.normal(28.0, 0.3, n),
+        "b.ecc": rng.uniform(0.35, 0.4, n), "b.omega_deg": rng.normal(230.0, 2.0, n),
+        "b.tp": rng.normal(2459410.0, 1.0, n),
+        "c.period": rng.normal(11.87, 0.001, n), "c.K": rng.normal(18.7, 0.3, n),
+        "c.ecc": rng.uniform(0.08, 0.12, n), "c.omega_deg": rng.normal(60.0, 5.0, n),
+        "c.tp": rng.normal(2459403.3, 0.2, n),
+        "offset.north": rng.normal(-12.8, 0.3, n), "jitter.north": rng.uniform(1.5, 2.0, n),
+        "trend.slope": rng.normal(3.0, 0.2, n),
+    }  # fmt: skip
+
+
+def test_curves_match_the_point_by_point_reference():
+    cols = posterior()
+    before = {k: v.copy() for k, v in cols.items()}
+    epoch = 2459600.0
+    t = np.array([2459412.3, 2459600.0, 2459990.7])
+    pred = predict(cols, ["b", "c"], t, epoch=epoch)
+    for j in (0, 17, 39):
+        ref = {L: np.array(slow_rv(t, cols[f"{L}.period"][j], cols[f"{L}.tp"][j],
+                                   cols[f"{L}.ecc"][j], np.radians(cols[f"{L}.omega_deg"][j]),
+                                   cols[f"{L}.K"][j])) for L in ("b", "c")}  # fmt: skip
+        assert np.allclose(pred.curves["b"][j], ref["b"], atol=1e-8)
+        # total = companions + the trend in years from the epoch (the model's convention)
+        trend = cols["trend.slope"][j] * (t - epoch) / 365.25
+        assert np.allclose(pred.curves["total"][j], ref["b"] + ref["c"] + trend, atol=1e-8)
+    assert all(np.array_equal(before[k], cols[k]) for k in cols)  # inputs untouched
+    assert "measured" not in pred.curves
+
+
+def test_measured_adds_offset_and_noise_of_the_right_size():
+    cols = posterior(n=20000, seed=5)
+    t = np.array([2459500.0])
+    pred = predict(cols, ["b", "c"], t, epoch=2459600.0, instrument="north", typical_error=1.2)
+    noise = pred.curves["measured"][:, 0] - pred.curves["total"][:, 0] - cols["offset.north"]
+    expected = np.sqrt(np.mean(cols["jitter.north"] ** 2) + 1.2**2)
+    # a Gaussian sample's standard deviation: relative error 1/sqrt(2 n) = 0.5% here
+    assert np.std(noise) == pytest.approx(expected, rel=0.02)
+    assert abs(np.mean(noise)) < 0.05
+    summary = pred.summary()["measured"]
+    assert set(summary) == set(QUANTILES)
+    assert summary["lo95"][0] < summary["lo68"][0] < summary["median"][0] < summary["hi68"][0]
+    with pytest.raises(ValueError, match="unknown instrument 'south'; known: north"):
+        predict(cols, ["b"], t, epoch=0.0, instrument="south")
+
+
+def test_rows_name_the_columns_of_a_prediction_table():
+    pred = predict(posterior(), ["b", "c"], [2459500.0, 2459501.0], epoch=2459600.0,
+                   instrument="north", draws=25)  # fmt: skip
+    assert pred.curves["b"].shape == (25, 2)
+    row = pred.rows()[0]
+    names = list(row)
+    assert names[:6] == ["time", "total_median", "total_lo68", "total_hi68", "total_lo95",
+                         "total_hi95"]  # fmt: skip
+    assert "b_median" in row and "c_hi95" in row and names[-5:][0] == "measured_median"
+
+
+@pytest.mark.integration
+def test_a_finished_run_reads_back_and_predicts_its_own_data(tmp_path):
+    from rvkep.cli import main
+    from rvkep.errors import DataError
+    from rvkep.results import Results
+
+    out = tmp_path / "run"
+    assert main(["demo", "--quick", "--quiet", "--out", str(out), "--seed", "1"]) == 0
+    res = Results.load(out)
+    saved = json.loads((out / "results.json").read_text())
+    assert res.to_dict() == saved and res.labels == ["b", "c"]
+    # the tables come out as the run wrote them
+    assert res.csv_table() == (out / "parameters.csv").read_text()
+    assert res.latex_table() == (out / "parameters.tex").read_text()
+    assert res.run_label() == saved["run_kind"]["label"]
+    # what kestrel should have measured, at its own times: the data lie inside
+    data = res.data
+    m = data.instrument == "kestrel"
+    pred = res.predict(data.time[m], instrument="kestrel", draws=400)
+    s = pred.summary()["measured"]
+    inside = (data.rv[m] >= s["lo95"]) & (data.rv[m] <= s["hi95"])
+    assert inside.mean() > 0.85  # about 95% expected
+    with pytest.raises(DataError, match="no results.json"):
+        Results.load(tmp_path)
