@@ -275,6 +275,17 @@ def eccentric_anomaly(M: ArrayLike, e: ArrayLike) -> np.ndarray:
     References
     ----------
     .. [1] Markley, F. L. (1995), Celestial Mechanics and Dynamical Astronomy 63, 101.
+    .. [2] Meeus, J. (1998), Astronomical Algorithms, 2nd ed., example 30.a.
+
+    Examples
+    --------
+    Meeus' example 30.a [2]_: e = 0.1 and M = 5 degrees give E = 5.554589 degrees.
+
+    >>> import numpy as np
+    >>> from rvkep.kepler import eccentric_anomaly
+    >>> E = eccentric_anomaly(np.radians(5.0), 0.1)
+    >>> print(f"{np.degrees(E):.6f}")
+    5.554589
     """
     e = check_eccentricity(e)
     M, e = np.broadcast_arrays(np.asarray(M, dtype=float), e)

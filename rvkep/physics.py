@@ -113,6 +113,22 @@ def minimum_mass(
     period : days;  K : m/s;  ecc : eccentricity;  star_mass : solar masses.
     unit : {"jupiter", "earth", "sun"}
         Unit of the plain-float result.
+
+    References
+    ----------
+    .. [1] Mayor, M. & Queloz, D. (1995), Nature 378, 355 (51 Peg b).
+
+    Examples
+    --------
+    The first hot Jupiter, 51 Peg b: P = 4.2293 d, K = 59 m/s, a circular orbit, and a
+    one-solar-mass star give m sin i = 0.47 Jupiter masses, as published [1]_ (values
+    from memory):
+
+    >>> from rvkep.physics import minimum_mass
+    >>> print(f"{minimum_mass(4.2293, 59.0, 0.0, 1.0):.2f}")
+    0.47
+    >>> print(f"{minimum_mass(4.2293, 59.0, 0.0, 1.0, unit='earth'):.0f}")
+    149
     """
     f = mass_function(period, K, ecc)
     M, q = _value(star_mass, u.M_sun)
