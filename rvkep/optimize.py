@@ -28,7 +28,15 @@ from rvkep.likelihood import LogPosterior, keplerian_velocity
 from rvkep.model import LABELS, SystemModel, default_companion
 from rvkep.orbit import tp_to_tc
 
-__all__ = ["FitResult", "fit", "fit_companions", "grid_starts", "GRID_ECC", "GRID_PHASES"]
+__all__ = [
+    "FitResult",
+    "fit",
+    "fit_orbits",
+    "fit_companions",
+    "grid_starts",
+    "GRID_ECC",
+    "GRID_PHASES",
+]
 
 #: eccentricities and periastron phases of the start grid
 GRID_ECC = (
@@ -69,6 +77,16 @@ class FitResult:
     @property
     def bic(self) -> float:
         return self.n_free * math.log(self.n_points) - 2.0 * self.log_likelihood
+
+    def sample(self, **options):
+        """Sample the posterior from this fit: ``run_sampler(self.model, self.theta,
+        SamplerOptions(**options))`` (walkers, max_steps, seed, checkpoint, progress,
+        ...). The result remembers this fit (``.fit``)."""
+        from rvkep.sampling import SamplerOptions, run_sampler
+
+        result = run_sampler(self.model, self.theta, SamplerOptions(**options))
+        result.fit = self
+        return result
 
     @property
     def aic(self) -> float:
@@ -336,6 +354,32 @@ def grid_starts(
 def _nearest_tc(tc_rel: float, period: float) -> float:
     """Shift a conjunction time by whole periods to the one nearest the epoch."""
     return tc_rel - period * round(tc_rel / period)
+
+
+def fit_orbits(
+    data: RVData,
+    periods: list[list[float]] | list[float],
+    *,
+    trend: int = 0,
+    base: SystemModel | None = None,
+    period_range: tuple[float, float] | None = None,
+    n_starts: int = 3,
+) -> FitResult:
+    """Best fit of ``data`` with one companion per entry of ``periods`` (a period, or
+    a list of candidate periods); see :func:`fit_companions`. Chain ``.sample()``.
+
+    Examples
+    --------
+    >>> import rvkep
+    >>> from rvkep.cli import demo_folder
+    >>> folder = demo_folder()
+    >>> data = rvkep.load_rv([folder / "kestrel.txt", folder / "osprey.csv"])
+    >>> best = rvkep.fit(data, [143.0, 11.87])  # rvkep.fit is this function
+    >>> print(f"{best.params['b.period']:.1f} d, {best.params['c.period']:.2f} d")
+    143.4 d, 11.87 d
+    """
+    return fit_companions(data, periods, trend=trend, base=base, period_range=period_range,
+                          n_starts=n_starts)  # fmt: skip
 
 
 def fit_companions(

@@ -287,9 +287,16 @@ def validate_options(opts: AnalyzeOptions) -> None:
         raise OptionError(f"--out {out}: cannot write there ({probe} is not writable)")
 
 
-def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None):
+def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **options):
     """Run the whole job; returns :class:`rvkep.results.Results` (also written to
-    ``opts.out``). Raises RvkepError subclasses for bad input before writing anything."""
+    ``opts.out``). Raises RvkepError subclasses for bad input before writing anything.
+
+    The options come as an :class:`AnalyzeOptions` or as its fields by keyword:
+    ``analyze(files, star_mass=0.92, star_mass_err=0.04, out="veyla")``."""
+    if options:
+        if opts is not None:
+            raise TypeError("give the options as AnalyzeOptions or as keywords, not both")
+        opts = AnalyzeOptions(**options)
     from rvkep.modelfile import read_model_file
 
     opts = opts or AnalyzeOptions()

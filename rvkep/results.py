@@ -94,6 +94,18 @@ class Results:
             out.notes.append("star mass not given: 1 M_sun assumed for masses and orbit sizes")
         return out
 
+    @classmethod
+    def from_sampling(cls, sampling, *, star: StarProperties | None = None, search=None,
+                      rng: int = 1, **kwargs) -> Results:  # fmt: skip
+        """Results of a sampling run started from a fit (``fit.sample()``): its
+        posterior (offsets drawn with ``rng - 1``), the derived quantities with the
+        stellar mass drawn per sample (``rng``), the search if given."""
+        if getattr(sampling, "fit", None) is None:
+            raise ValueError("the sampling run does not know its fit: use fit.sample()")
+        posterior = sampling.posterior(rng=rng - 1)
+        return cls.build(sampling.model.data, sampling.fit, sampling, posterior, star, rng=rng,
+                         search=search, **kwargs)  # fmt: skip
+
     @property
     def labels(self) -> list[str]:
         if self.fit is None and self.saved is not None:

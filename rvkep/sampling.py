@@ -53,6 +53,7 @@ __all__ = [
     "CheckpointWriteError",
     "checkpoint_key",
     "run_sampler",
+    "sample",
     "initial_ball",
     "MOVES",
 ]
@@ -325,6 +326,14 @@ class SamplingResult:
     seconds: float
     moves: str
     history: list[tuple[int, float]] = field(default_factory=list)  # (step, max tau)
+    fit: object | None = None  # the best fit it started from (FitResult.sample sets it)
+
+    def posterior(self, rng: np.random.Generator | int | None = 0):
+        """The kept samples in physical parameters, offsets and trend drawn back
+        (:meth:`rvkep.posterior.PosteriorSamples.from_chain`)."""
+        from rvkep.posterior import PosteriorSamples
+
+        return PosteriorSamples.from_chain(self.model, self.flat, self.flat_log_prob, rng=rng)
 
     @property
     def steps(self) -> int:
@@ -663,3 +672,9 @@ def _converged(tau, tau_prev, steps, opts) -> bool:
     long_enough = steps > opts.tau_factor * np.max(tau)
     stable = np.all(np.abs(tau - tau_prev) / tau < opts.tau_rtol)
     return bool(long_enough and stable)
+
+
+def sample(fit, **options) -> SamplingResult:
+    """Sample the posterior from a best fit (``fit.sample(**options)``); the options
+    are those of :class:`SamplerOptions`."""
+    return fit.sample(**options)
