@@ -340,6 +340,40 @@ class SystemModel:
                 theta[:, j] = values[f"{L}.K"]
         return theta
 
+    def prior_transform(self, u: np.ndarray) -> np.ndarray:
+        """Sampled coordinates from points of the unit cube, through each prior's
+        inverse CDF (``ppf``): the map nested samplers draw the prior with.
+
+        ``u`` has shape (n_sets, ndim) or (ndim,). Period: P = ppf(u), coordinate ln P;
+        tc: ppf(u) minus the epoch; the pair (sqrt(e) cos omega, sqrt(e) sin omega) from
+        two cube coordinates, e = ppf of the eccentricity prior and omega = 2 pi u
+        (uniform, as in :meth:`log_prior`); K and jitter: ppf(u). Uniform points give
+        draws of the prior that :meth:`log_prior` states.
+        """
+        u = np.asarray(u, dtype=float)
+        single = u.ndim == 1
+        u = np.atleast_2d(u)
+        if u.shape[1] != self.ndim:
+            raise ValueError(f"need {self.ndim} unit-cube coordinates, got {u.shape[1]}")
+        theta = np.empty_like(u)
+        for j, (kind, i, f) in enumerate(self._slots):
+            if kind == "instrument":
+                theta[:, j] = self.instruments[i].jitter.ppf(u[:, j])
+                continue
+            c = self.companions[i]
+            if f == "ln_period":
+                theta[:, j] = np.log(c.period.ppf(u[:, j]))
+            elif f == "tc":
+                theta[:, j] = c.tc.ppf(u[:, j]) - self.data.epoch
+            elif f == "h":  # the k slot follows it (see _build)
+                e = np.asarray(c.ecc.ppf(u[:, j]), float)
+                w = 2.0 * np.pi * u[:, j + 1]
+                theta[:, j] = np.sqrt(e) * np.cos(w)
+                theta[:, j + 1] = np.sqrt(e) * np.sin(w)
+            elif f == "K":
+                theta[:, j] = c.K.ppf(u[:, j])
+        return theta[0] if single else theta
+
     def start_physical(self) -> dict[str, float]:
         """Physical start values from each companion's ``start`` and the jitter starts."""
         out: dict[str, float] = {}

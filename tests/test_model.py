@@ -88,3 +88,33 @@ def test_to_physical_matches_orbit_functions():
     assert p["d.tc"] == pytest.approx(20.0) and p["jitter.b"] == 1.5
     back = model.from_physical({k: np.array([v]) for k, v in p.items()})
     assert np.allclose(back, theta)
+
+
+def test_prior_transform_draws_the_stated_priors():
+    """Uniform points of the unit cube through prior_transform give the priors the
+    model states: each physical parameter against draws of its own prior
+    (two-sample Kolmogorov-Smirnov, scipy), omega uniform, log_prior finite."""
+    from scipy import stats
+
+    from rvkep.data import RVData
+    from rvkep.model import Companion, Instrument, SystemModel
+    from rvkep.priors import Beta, LogUniform, Normal, Uniform
+
+    rng = np.random.default_rng(11)
+    t = np.sort(rng.uniform(2459000, 2459400, 30))
+    data = RVData(t, rng.normal(0, 5, 30), np.full(30, 2.0), np.full(30, "a"))
+    start = {"period": 20.0, "tc": 2459100.0, "K": 5.0}
+    comp = Companion("b", LogUniform(2.0, 200.0), Normal(2459100.0, 3.0), Uniform(0.0, 50.0),
+                     Beta(0.867, 3.03), start=start)  # fmt: skip
+    model = SystemModel(data, [comp], [Instrument("a", Uniform(0.0, 10.0))])
+    u = rng.uniform(size=(20000, model.ndim))
+    theta = model.prior_transform(u)
+    assert np.all(np.isfinite(model.log_prior(theta)))
+    phys = model.to_physical(theta)
+    for name, prior, shift in (("b.period", comp.period, 0.0), ("b.tc", comp.tc, data.epoch),
+                               ("b.K", comp.K, 0.0), ("b.ecc", comp.ecc, 0.0),
+                               ("jitter.a", model.instruments[0].jitter, 0.0)):  # fmt: skip
+        ref = prior.sample(20000, rng=rng)
+        assert stats.ks_2samp(phys[name] + shift, ref).pvalue > 1e-3, name
+    assert stats.kstest(phys["b.omega"] / (2 * np.pi), "uniform").pvalue > 1e-3
+    assert np.allclose(model.prior_transform(u[0]), theta[0])
