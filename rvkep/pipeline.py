@@ -346,15 +346,12 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
 def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: float,
                 data_notes: list[str]):  # fmt: skip
     """The part of :func:`analyze` that runs while the output folder is locked."""
+    from rvkep.likelihood import LogPosterior
     from rvkep.model import SystemModel
     from rvkep.posterior import PosteriorSamples
     from rvkep.results import Results
-    from rvkep.sampling import (
-        CheckpointNotice,
-        SamplerOptions,
-        UnconvergedWarning,
-        run_sampler,
-    )
+    from rvkep.samplers import get_sampler
+    from rvkep.sampling import CheckpointNotice, SamplerOptions, UnconvergedWarning
 
     _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                f"{', '.join(data.instruments)}")  # fmt: skip
@@ -394,16 +391,16 @@ def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: floa
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UnconvergedWarning)
         warnings.simplefilter("always", CheckpointNotice)
-        sampling = run_sampler(fit.model, fit.theta, sopts)
+        # the posterior is built once and handed to the sampler (rvkep.samplers)
+        sampling = get_sampler("emcee").run(LogPosterior(fit.model), fit.theta, sopts)
     for w in caught:
         if issubclass(w.category, UnconvergedWarning):
             _say(opts, f"WARNING: {w.message}")
         elif issubclass(w.category, CheckpointNotice):
             _say(opts, f"note: {w.message}")
             notes.append(str(w.message))  # kept in results.json: it says what ran
-    posterior = PosteriorSamples.from_chain(
-        fit.model, sampling.flat, sampling.flat_log_prob, rng=seed
-    )
+    theta, log_prob = sampling.equal_weight(rng=seed)  # as they are for MCMC
+    posterior = PosteriorSamples.from_chain(fit.model, theta, log_prob, rng=seed)
     results = Results.build(
         data, fit, sampling, posterior, star, rng=seed + 1, search=search_result,
         comparison=comparison, quick=opts.quick, seed=seed, trend_comparison=trend_rows,

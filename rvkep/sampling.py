@@ -533,7 +533,11 @@ def _progress(total: int, initial: int, enabled: bool | None):
 
 
 def run_sampler(
-    model: SystemModel, start: np.ndarray, options: SamplerOptions | None = None
+    model: SystemModel,
+    start: np.ndarray,
+    options: SamplerOptions | None = None,
+    *,
+    posterior: LogPosterior | None = None,
 ) -> SamplingResult:
     """Sample the posterior of ``model`` from a best-fit vector ``start``.
 
@@ -543,13 +547,17 @@ def run_sampler(
     ``options.resume`` is true, the run continues from it; any other chain there is
     replaced by a new one (a :class:`CheckpointNotice` says so).
     KeyboardInterrupt flushes the completed steps to the file and is re-raised.
+    ``posterior`` is the log-posterior of ``model`` when the caller built it already
+    (the samplers' interface, :mod:`rvkep.samplers`).
     """
     import time
 
     import emcee
 
     opts = options or SamplerOptions()
-    post = LogPosterior(model)
+    post = posterior if posterior is not None else LogPosterior(model)
+    if post.model is not model:
+        raise ValueError("the posterior belongs to another model")
     ndim = model.ndim
     if ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")
