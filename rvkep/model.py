@@ -128,6 +128,8 @@ class SystemModel:
     trend : int
         Polynomial degree of the long-term trend: 0 (none), 1 (linear), 2 (quadratic).
     star : StarProperties, optional
+    noise : str
+        The noise model's name (:mod:`rvkep.noise`; default ``"white"``).
     """
 
     data: RVData
@@ -135,6 +137,7 @@ class SystemModel:
     instruments: list[Instrument] | None = None
     trend: int = 0
     star: StarProperties | None = None
+    noise: str = "white"  # a name in rvkep.noise.NOISE_MODELS
 
     def __post_init__(self) -> None:
         names = self.data.instruments
@@ -231,6 +234,13 @@ class SystemModel:
         )
 
     @property
+    def noise_model(self):
+        """The noise model object (:func:`rvkep.noise.get_noise_model`)."""
+        from rvkep.noise import get_noise_model
+
+        return get_noise_model(self.noise)
+
+    @property
     def ndim(self) -> int:
         return len(self.names)
 
@@ -264,7 +274,7 @@ class SystemModel:
             "companions": [c.canonical() for c in self.companions],
             "instruments": [i.canonical() for i in self.instruments],
             "trend": self.trend,
-            "noise": "white",
+            "noise": self.noise,
             "linear": "marginalized, flat",
             "data_sha256": h.hexdigest(),
         }

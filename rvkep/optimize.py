@@ -470,8 +470,7 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
     # residuals of the current fit (linear part free again), weights from its jitters
     phys = model.to_physical(current.theta[None, :])
     resid = model.y - keplerian_velocity(model, phys)[0]
-    jit = np.array([current.params[f"jitter.{i.name}"] for i in model.instruments])
-    weights = 1.0 / (model.err2 + jit[model.inst_index] ** 2)
+    weights = 1.0 / model.noise_model.effective_variance(model, phys, np.array([0]))[0]
     best = None
     trials = []  # (fitted period, ln L) of every full fit
     if spec is not None:

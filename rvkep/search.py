@@ -170,9 +170,8 @@ def candidate_periods(
 def residual_velocities(fit_result: FitResult) -> tuple[np.ndarray, np.ndarray]:
     """Residuals of a fit (offsets and trend removed) and errors with jitter added."""
     model = fit_result.model
-    p = fit_result.params
-    jit = np.array([p[f"jitter.{i.name}"] for i in model.instruments])
-    dy = np.sqrt(model.err2 + jit[model.inst_index] ** 2)
+    phys = model.to_physical(np.asarray(fit_result.theta, float)[None, :])
+    dy = np.sqrt(model.noise_model.effective_variance(model, phys, np.array([0]))[0])
     return fit_result.residuals, dy
 
 

@@ -1,0 +1,41 @@
+"""Noise models as plug-ins: each is one file with a
+:class:`~rvkep.noise.base.NoiseModel` subclass, registered in :data:`NOISE_MODELS` by
+name (loaded on first use). A :class:`~rvkep.model.SystemModel` names its noise model
+(``noise="white"``); the likelihood, the search's weights and the start grids all ask
+it for the effective variances and the log-likelihood.
+
+Adding a noise model is one new file plus one line here.
+"""
+
+from __future__ import annotations
+
+import importlib
+
+from rvkep.noise.base import NoiseModel
+
+__all__ = ["NoiseModel", "NOISE_MODELS", "get_noise_model", "available_noise_models"]
+
+#: name -> "module:class"
+NOISE_MODELS = {
+    "white": "rvkep.noise.white:WhiteNoise",
+}
+
+_INSTANCES: dict[str, NoiseModel] = {}
+
+
+def available_noise_models() -> list[str]:
+    """The registered noise models' names."""
+    return list(NOISE_MODELS)
+
+
+def get_noise_model(name: str) -> NoiseModel:
+    """The noise model registered as ``name`` (one shared, stateless instance)."""
+    if name not in _INSTANCES:
+        try:
+            module, cls = NOISE_MODELS[name].split(":")
+        except KeyError:
+            raise ValueError(
+                f"unknown noise model {name!r}; available: {', '.join(NOISE_MODELS)}"
+            ) from None
+        _INSTANCES[name] = getattr(importlib.import_module(module), cls)()
+    return _INSTANCES[name]
