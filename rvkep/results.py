@@ -29,24 +29,7 @@ from rvkep.posterior import PosteriorSamples, circular_percentiles, percentiles
 
 __all__ = ["Results", "format_uncertain", "latex_value"]
 
-_PLANET_COLUMNS = [
-    # (results.json key, posterior column, unit, LaTeX symbol)
-    ("period_d", "period", "d", r"$P$"),
-    ("K_mps", "K", "m s$^{-1}$", r"$K$"),
-    ("ecc", "ecc", "", r"$e$"),
-    ("omega_deg", "omega_deg", "deg", r"$\omega_\star$"),
-    ("tp_bjd", "tp", "d", r"$t_\mathrm{p}$"),
-    ("tc_bjd", "tc", "d", r"$t_\mathrm{c}$"),
-    ("msini_mjup", "msini_mjup", "M$_\\mathrm{J}$", r"$m \sin i$"),
-    ("msini_mearth", "msini_mearth", "M$_\\oplus$", r"$m \sin i$"),
-    ("a_au", "a_au", "au", r"$a$"),
-    ("periastron_au", "periastron_au", "au", r"$r_\mathrm{peri}$"),
-    ("apastron_au", "apastron_au", "au", r"$r_\mathrm{apo}$"),
-    ("mass_function_msun", "mass_function_msun", "M$_\\odot$", r"$f(m)$"),
-    ("transit_probability", "transit_probability", "", r"$p_\mathrm{tr}$"),
-    ("teq_k", "teq_k", "K", r"$T_\mathrm{eq}$"),
-    ("insolation_earth", "insolation_earth", "S$_\\oplus$", r"$S$"),
-]
+from rvkep.report.rows import PLANET_COLUMNS as _PLANET_COLUMNS  # noqa: E402
 
 
 @dataclass
@@ -328,181 +311,26 @@ class Results:
             "notes": list(self.notes),
         }
 
-    def parameter_rows(self) -> list[tuple[str, str, dict[str, float], str]]:
-        """(group, name, estimate, unit) for the tables."""
-        rows = []
-        for L in self.labels:
-            for _, col, unit, sym in _PLANET_COLUMNS:
-                if f"{L}.{col}" in self.posterior:
-                    rows.append((L, sym, self.estimate(f"{L}.{col}"), unit))
-        for name in self.instrument_names:
-            rows.append(
-                (
-                    name,
-                    r"$\gamma$ (offset)",
-                    self.estimate(f"offset.{name}"),
-                    "m s$^{-1}$",
-                )
-            )
-            rows.append(
-                (
-                    name,
-                    r"$\sigma_\mathrm{jit}$",
-                    self.estimate(f"jitter.{name}"),
-                    "m s$^{-1}$",
-                )
-            )
-        if self.trend_degree >= 1:
-            rows.append(
-                ("trend", r"$\dot\gamma$", self.estimate("trend.slope"), "m s$^{-1}$ yr$^{-1}$")
-            )
-        if self.trend_degree >= 2:
-            rows.append(
-                (
-                    "trend",
-                    r"$\ddot\gamma$",
-                    self.estimate("trend.curvature"),
-                    "m s$^{-1}$ yr$^{-2}$",
-                )
-            )
-        return rows
+    def parameter_rows(self):
+        """The one list of table rows (:func:`rvkep.report.rows.parameter_rows`)."""
+        from rvkep.report.rows import parameter_rows
+
+        return parameter_rows(self)
 
     def latex_table(self) -> str:
-        lines = [f"% rvkep {__version__}: {self.run_label()}"]
-        lines += [
-            r"\begin{table}",
-            r"\centering",
-            r"\caption{Orbital and derived parameters (posterior median and 68\% interval)"
-            + ("" if not self.run_marks() else f" [{_latex_escape(self.run_label())}]")
-            + ".}",
-            r"\begin{tabular}{llll}",
-            r"\hline",
-            r"Object & Parameter & Value & Unit \\",
-            r"\hline",
-        ]
-        for group, sym, est, unit in self.parameter_rows():
-            lines.append(
-                f"{group} & {sym} & {latex_value(est['median'], est['minus'], est['plus'])} & {unit} \\\\"
-            )
-        lines += [r"\hline", r"\end{tabular}", r"\end{table}"]
-        return "\n".join(lines) + "\n"
+        from rvkep.report import render
+
+        return render(self, "latex")
 
     def csv_table(self) -> str:
-        out = [
-            f"# rvkep {__version__}: {self.run_label()}",
-            "object,parameter,median,minus,plus,unit",
-        ]
-        for L in self.labels:
-            for key, col, unit, _ in _PLANET_COLUMNS:
-                if f"{L}.{col}" in self.posterior:
-                    e = self.estimate(f"{L}.{col}")
-                    out.append(
-                        f"{L},{key},{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},{_plain(unit)}"
-                    )
-        for name in self.instrument_names:
-            for key, col in (("offset_mps", "offset"), ("jitter_mps", "jitter")):
-                e = self.estimate(f"{col}.{name}")
-                out.append(f"{name},{key},{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},m/s")
-        if self.trend_degree >= 1:
-            e = self.estimate("trend.slope")
-            out.append(
-                f"trend,slope_mps_per_yr,{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},m/s/yr"
-            )
-        return "\n".join(out) + "\n"
+        from rvkep.report import render
+
+        return render(self, "csv")
 
     def markdown(self) -> str:
-        d = self.to_dict()
-        s = d["sampler"]
-        lines = [f"# rvkep results: {d['n_planets']} companion(s)", ""]
-        if self.quick:
-            lines += ["**Quick mode: short chains for a preview; not for publication.**", ""]
-        if not s["converged"]:
-            lines += [
-                "**WARNING: the chain did not converge; the numbers below are preliminary.**",
-                "",
-            ]
-        for note in self.notes:
-            lines.append(f"*Note: {note.rstrip('.')}.*")
-        if self.notes:
-            lines.append("")
-        star = d["star"]
-        lines.append(f"Star mass {star['mass_msun']:g} +- {star['mass_err_msun']:g} M_sun"
-                     + (" (assumed)" if star["assumed"] else "") + f"; {len(self.data)} velocities"
-                     f" from {len(d['instruments'])} instrument(s); reference epoch {self.data.epoch:.1f}.")  # fmt: skip
-        lines.append("")
-        if d["planets"]:
-            lines += ["## Companions", "",
-                      "| | P [d] | K [m/s] | e | omega [deg] | tc | m sin i [M_Jup] | m sin i [M_Earth] | a [au] |",
-                      "|---|---|---|---|---|---|---|---|---|"]  # fmt: skip
-            for p in d["planets"]:
-                cells = [_md(p[k]) for k in ("period_d", "K_mps", "ecc", "omega_deg", "tc_bjd",
-                                               "msini_mjup", "msini_mearth", "a_au")]  # fmt: skip
-                lines.append(f"| {p['label']} | " + " | ".join(cells) + " |")
-            lines.append("")
-        else:
-            lines += ["No significant companion.", ""]
-        lines += [
-            "## Instruments",
-            "",
-            "| instrument | points | offset [m/s] | jitter [m/s] | rms of residuals [m/s] |",
-            "|---|---|---|---|---|",
-        ]
-        for i in d["instruments"]:
-            lines.append(
-                f"| {i['name']} | {i['n_points']} | {_md(i['offset_mps'])} | {_md(i['jitter_mps'])} | {i['rms_residual_mps']:.2f} |"
-            )
-        lines.append("")
-        if d["trend"]["degree"]:
-            lines += [f"Trend: {_md(d['trend']['slope_mps_per_yr'])} m/s/yr", ""]
-        if d["search"]:
-            lines += [
-                "## Signal search",
-                "",
-                "| # | period [d] | power | FAP | significant | aliases flagged | activity |",
-                "|---|---|---|---|---|---|---|",
-            ]
-            for k, c in enumerate(d["search"], 1):
-                lines.append(
-                    f"| {k} | {c['period_d']:.5g} | {c['power']:.3f} | {c['fap']:.2e} | {'yes' if c['significant'] else 'no'} | {', '.join(c['aliases_flagged']) or '-'} | {', '.join(c['activity']) or '-'} |"
-                )
-            lines.append("")
-        if d["model_comparison"]:
-            lines += [
-                "## Number of companions",
-                "",
-                "| companions | ln L | BIC | delta BIC | chosen |",
-                "|---|---|---|---|---|",
-            ]
-            for row in d["model_comparison"]:
-                lines.append(
-                    f"| {row['n_companions']} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
-                )
-            lines.append("")
-        if d["trend_comparison"]:
-            lines += [
-                "## Trend",
-                "",
-                "Degrees compared by the companions' rule (a higher degree must lower the BIC by more than 10):",
-                "",
-                "| degree | companions | periods [d] | ln L | BIC | delta BIC | chosen |",
-                "|---|---|---|---|---|---|---|",
-            ]
-            for row in d["trend_comparison"]:
-                periods = ", ".join(f"{p:.5g}" for p in row["periods_d"]) or "-"
-                lines.append(
-                    f"| {row['degree']} | {row['n_companions']} | {periods} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
-                )
-            lines.append("")
-        lines += [
-            "## Sampler", "",
-            f"{s['walkers']} walkers, {s['steps']} steps, autocorrelation time {s['autocorr_steps']:.1f} steps, "
-            f"converged: {'yes' if s['converged'] else 'NO'}"
-            + (f", acceptance {s['acceptance_mean']:.2f}, {s['effective_samples']:.0f} effective samples, {s['seconds']:.1f} s" if "acceptance_mean" in s else ""),
-            "",
-            "## Priors", "", "| parameter | prior |", "|---|---|",
-        ]  # fmt: skip
-        lines += [f"| {p['parameter']} | {p['prior']} |" for p in d["priors"]]
-        return "\n".join(lines) + "\n"
+        from rvkep.report import render
+
+        return render(self, "markdown")
 
     def _repr_markdown_(self) -> str:
         return self.markdown()
@@ -582,19 +410,6 @@ def _read_data_csv(path: Path, epoch: float):
     extra = {k: v for k, v in num.items() if k not in ("time", "rv", "err")}
     return RVData(num["time"], num["rv"], num["err"], np.array(cols[header.index("instrument")]),
                   extra, [str(path)], epoch)  # fmt: skip
-
-
-def _latex_escape(text: str) -> str:
-    for a, b in (("\\", r"\textbackslash{}"), ("%", r"\%"), ("_", r"\_"), ("&", r"\&"),
-                 ("#", r"\#"), ("$", r"\$")):  # fmt: skip
-        text = text.replace(a, b)
-    return text
-
-
-def _plain(unit: str) -> str:
-    return (unit.replace("$", "").replace("^{-1}", "^-1").replace("\\mathrm{J}", "Jup")
-            .replace("_\\oplus", "_Earth").replace("_\\odot", "_Sun").replace(" s^-1", "/s")
-            .replace("m s^-1", "m/s"))  # fmt: skip
 
 
 def _md(e: dict) -> str:

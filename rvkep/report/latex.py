@@ -1,0 +1,40 @@
+"""The parameter table as LaTeX (two significant digits on the uncertainty, the value
+rounded to match, asymmetric errors as superscript/subscript)."""
+
+from __future__ import annotations
+
+from rvkep import __version__
+from rvkep.formatting import latex_value
+from rvkep.report.rows import parameter_rows
+
+__all__ = ["render", "latex_escape"]
+
+SUFFIX = ".tex"
+
+
+def latex_escape(text: str) -> str:
+    for a, b in (("\\", r"\textbackslash{}"), ("%", r"\%"), ("_", r"\_"), ("&", r"\&"),
+                 ("#", r"\#"), ("$", r"\$")):  # fmt: skip
+        text = text.replace(a, b)
+    return text
+
+
+def render(results) -> str:
+    lines = [f"% rvkep {__version__}: {results.run_label()}"]
+    lines += [
+        r"\begin{table}",
+        r"\centering",
+        r"\caption{Orbital and derived parameters (posterior median and 68\% interval)"
+        + ("" if not results.run_marks() else f" [{latex_escape(results.run_label())}]")
+        + ".}",
+        r"\begin{tabular}{llll}",
+        r"\hline",
+        r"Object & Parameter & Value & Unit \\",
+        r"\hline",
+    ]
+    for row in parameter_rows(results):
+        e = row.estimate
+        value = latex_value(e["median"], e["minus"], e["plus"])
+        lines.append(f"{row.object} & {row.symbol} & {value} & {row.unit} \\\\")
+    lines += [r"\hline", r"\end{tabular}", r"\end{table}"]
+    return "\n".join(lines) + "\n"

@@ -1,0 +1,109 @@
+"""The readable report (summary.md): verdict, warnings, companions, instruments, trend,
+search, companion-number and trend comparisons, sampler and priors."""
+
+from __future__ import annotations
+
+from rvkep.formatting import text_value
+
+__all__ = ["render"]
+
+SUFFIX = ".md"
+
+
+def _md(e: dict) -> str:
+    return text_value(e["median"], e["minus"], e["plus"])
+
+
+def render(results) -> str:
+    d = results.to_dict()
+    s = d["sampler"]
+    lines = [f"# rvkep results: {d['n_planets']} companion(s)", ""]
+    if results.quick:
+        lines += ["**Quick mode: short chains for a preview; not for publication.**", ""]
+    if not s["converged"]:
+        lines += [
+            "**WARNING: the chain did not converge; the numbers below are preliminary.**",
+            "",
+        ]
+    for note in results.notes:
+        lines.append(f"*Note: {note.rstrip('.')}.*")
+    if results.notes:
+        lines.append("")
+    star = d["star"]
+    lines.append(f"Star mass {star['mass_msun']:g} +- {star['mass_err_msun']:g} M_sun"
+                 + (" (assumed)" if star["assumed"] else "") + f"; {len(results.data)} velocities"
+                 f" from {len(d['instruments'])} instrument(s); reference epoch {results.data.epoch:.1f}.")  # fmt: skip
+    lines.append("")
+    if d["planets"]:
+        lines += ["## Companions", "",
+                  "| | P [d] | K [m/s] | e | omega [deg] | tc | m sin i [M_Jup] | m sin i [M_Earth] | a [au] |",
+                  "|---|---|---|---|---|---|---|---|---|"]  # fmt: skip
+        for p in d["planets"]:
+            cells = [_md(p[k]) for k in ("period_d", "K_mps", "ecc", "omega_deg", "tc_bjd",
+                                           "msini_mjup", "msini_mearth", "a_au")]  # fmt: skip
+            lines.append(f"| {p['label']} | " + " | ".join(cells) + " |")
+        lines.append("")
+    else:
+        lines += ["No significant companion.", ""]
+    lines += [
+        "## Instruments",
+        "",
+        "| instrument | points | offset [m/s] | jitter [m/s] | rms of residuals [m/s] |",
+        "|---|---|---|---|---|",
+    ]
+    for i in d["instruments"]:
+        lines.append(
+            f"| {i['name']} | {i['n_points']} | {_md(i['offset_mps'])} | {_md(i['jitter_mps'])} | {i['rms_residual_mps']:.2f} |"
+        )
+    lines.append("")
+    if d["trend"]["degree"]:
+        lines += [f"Trend: {_md(d['trend']['slope_mps_per_yr'])} m/s/yr", ""]
+    if d["search"]:
+        lines += [
+            "## Signal search",
+            "",
+            "| # | period [d] | power | FAP | significant | aliases flagged | activity |",
+            "|---|---|---|---|---|---|---|",
+        ]
+        for k, c in enumerate(d["search"], 1):
+            lines.append(
+                f"| {k} | {c['period_d']:.5g} | {c['power']:.3f} | {c['fap']:.2e} | {'yes' if c['significant'] else 'no'} | {', '.join(c['aliases_flagged']) or '-'} | {', '.join(c['activity']) or '-'} |"
+            )
+        lines.append("")
+    if d["model_comparison"]:
+        lines += [
+            "## Number of companions",
+            "",
+            "| companions | ln L | BIC | delta BIC | chosen |",
+            "|---|---|---|---|---|",
+        ]
+        for row in d["model_comparison"]:
+            lines.append(
+                f"| {row['n_companions']} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
+            )
+        lines.append("")
+    if d["trend_comparison"]:
+        lines += [
+            "## Trend",
+            "",
+            "Degrees compared by the companions' rule (a higher degree must lower the BIC by more than 10):",
+            "",
+            "| degree | companions | periods [d] | ln L | BIC | delta BIC | chosen |",
+            "|---|---|---|---|---|---|---|",
+        ]
+        for row in d["trend_comparison"]:
+            periods = ", ".join(f"{p:.5g}" for p in row["periods_d"]) or "-"
+            lines.append(
+                f"| {row['degree']} | {row['n_companions']} | {periods} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
+            )
+        lines.append("")
+    lines += [
+        "## Sampler", "",
+        f"{s['walkers']} walkers, {s['steps']} steps, autocorrelation time {s['autocorr_steps']:.1f} steps, "
+        f"converged: {'yes' if s['converged'] else 'NO'}"
+        + (f", acceptance {s['acceptance_mean']:.2f}, {s['effective_samples']:.0f} effective samples, {s['seconds']:.1f} s" if "acceptance_mean" in s else ""),
+        "",
+        "## Priors", "", "| parameter | prior |", "|---|---|",
+    ]  # fmt: skip
+    lines += [f"| {p['parameter']} | {p['prior']} |" for p in d["priors"]]
+    return "\n".join(lines) + "\n"

@@ -1,0 +1,76 @@
+"""The one list of parameter rows every table renderer draws from.
+
+Each row is one estimate of the posterior: the object it belongs to (a companion's
+label, an instrument's name, ``trend``), its results.json key, its LaTeX symbol, its
+estimate ``{"median", "minus", "plus"}`` and its unit in LaTeX and in plain text.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+__all__ = ["ParameterRow", "parameter_rows", "PLANET_COLUMNS", "plain_unit"]
+
+PLANET_COLUMNS = [
+    # (results.json key, posterior column, unit, LaTeX symbol)
+    ("period_d", "period", "d", r"$P$"),
+    ("K_mps", "K", "m s$^{-1}$", r"$K$"),
+    ("ecc", "ecc", "", r"$e$"),
+    ("omega_deg", "omega_deg", "deg", r"$\omega_\star$"),
+    ("tp_bjd", "tp", "d", r"$t_\mathrm{p}$"),
+    ("tc_bjd", "tc", "d", r"$t_\mathrm{c}$"),
+    ("msini_mjup", "msini_mjup", "M$_\\mathrm{J}$", r"$m \sin i$"),
+    ("msini_mearth", "msini_mearth", "M$_\\oplus$", r"$m \sin i$"),
+    ("a_au", "a_au", "au", r"$a$"),
+    ("periastron_au", "periastron_au", "au", r"$r_\mathrm{peri}$"),
+    ("apastron_au", "apastron_au", "au", r"$r_\mathrm{apo}$"),
+    ("mass_function_msun", "mass_function_msun", "M$_\\odot$", r"$f(m)$"),
+    ("transit_probability", "transit_probability", "", r"$p_\mathrm{tr}$"),
+    ("teq_k", "teq_k", "K", r"$T_\mathrm{eq}$"),
+    ("insolation_earth", "insolation_earth", "S$_\\oplus$", r"$S$"),
+]
+
+
+def plain_unit(unit: str) -> str:
+    """A LaTeX unit as plain text (``m s$^{-1}$`` -> ``m/s``)."""
+    return (unit.replace("$", "").replace("^{-1}", "^-1").replace("\\mathrm{J}", "Jup")
+            .replace("_\\oplus", "_Earth").replace("_\\odot", "_Sun").replace(" s^-1", "/s")
+            .replace("m s^-1", "m/s"))  # fmt: skip
+
+
+@dataclass(frozen=True)
+class ParameterRow:
+    """One estimate for the tables."""
+
+    object: str
+    key: str
+    symbol: str
+    estimate: dict
+    unit: str  # LaTeX
+    unit_plain: str
+
+
+def parameter_rows(results) -> list[ParameterRow]:
+    """Every companion's elements and derived quantities, every instrument's offset and
+    jitter, and the trend terms, in the order the tables show them."""
+    rows = []
+    for L in results.labels:
+        for key, col, unit, sym in PLANET_COLUMNS:
+            if f"{L}.{col}" in results.posterior:
+                est = results.estimate(f"{L}.{col}")
+                rows.append(ParameterRow(L, key, sym, est, unit, plain_unit(unit)))
+    for name in results.instrument_names:
+        for key, col, sym in (("offset_mps", "offset", r"$\gamma$ (offset)"),
+                              ("jitter_mps", "jitter", r"$\sigma_\mathrm{jit}$")):  # fmt: skip
+            est = results.estimate(f"{col}.{name}")
+            rows.append(ParameterRow(name, key, sym, est, "m s$^{-1}$", "m/s"))
+    degree = results.trend_degree
+    if degree >= 1:
+        rows.append(ParameterRow("trend", "slope_mps_per_yr", r"$\dot\gamma$",
+                                 results.estimate("trend.slope"), "m s$^{-1}$ yr$^{-1}$",
+                                 "m/s/yr"))  # fmt: skip
+    if degree >= 2:
+        rows.append(ParameterRow("trend", "curvature_mps_per_yr2", r"$\ddot\gamma$",
+                                 results.estimate("trend.curvature"), "m s$^{-1}$ yr$^{-2}$",
+                                 "m/s/yr^2"))  # fmt: skip
+    return rows
