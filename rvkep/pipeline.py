@@ -418,15 +418,11 @@ def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: floa
     return results
 
 
-def _trend_curve(params: dict, t: np.ndarray, epoch: float) -> np.ndarray:
-    x = (np.asarray(t, float) - epoch) / 365.25
-    return params.get("trend.slope", 0.0) * x + params.get("trend.curvature", 0.0) * x * x
-
-
 def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
-    """The time series, phase curves, periodograms and corner plots of a result."""
+    """Save the time series, phase curves, periodograms and corner plots of a result
+    (the curves come from :mod:`rvkep.curves`, the drawing from :mod:`rvkep.plots`)."""
     from rvkep import __version__
-    from rvkep.likelihood import keplerian_velocity
+    from rvkep.curves import phase_curves, timeseries_curves
     from rvkep.outputs import save_figure as _save
     from rvkep.plots import plot_corner, plot_periodograms, plot_phase, plot_timeseries
 
@@ -440,52 +436,16 @@ def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
         key = "Subject" if str(path).endswith(".pdf") else "Description"
         return _save(fig, path, metadata={key: footer})
 
-    data = results.data
-    fit = results.fit
-    model = fit.model
-    p = fit.params
-    epoch = data.epoch
     written = []
-    offsets = {i.name: p[f"offset.{i.name}"] for i in model.instruments}
-    off = np.array([offsets[n] for n in data.instrument]) + _trend_curve(p, data.time, epoch)
-    span = data.time[-1] - data.time[0]
-    ct = np.linspace(data.time[0] - 0.03 * span, data.time[-1] + 0.03 * span, 3000)
-    best_phys = model.to_physical(fit.theta[None, :])
-    curve = keplerian_velocity(model, best_phys, t=ct - epoch)[0]
-    theta = getattr(results.posterior, "theta", None)
-    band = None
-    if theta is not None and model.companions:
-        rng = np.random.default_rng(0)
-        idx = rng.choice(len(theta), size=min(300, len(theta)), replace=False)
-        phys = model.to_physical(theta[idx])
-        curves = keplerian_velocity(model, phys, t=ct - epoch)
-        band = np.percentile(curves, [15.87, 84.13], axis=0)
-    shown = RVData(data.time, data.rv - off + np.array([offsets[n] for n in data.instrument]),
-                   data.err, data.instrument, epoch=epoch)  # fmt: skip
-    fig = plot_timeseries(shown, ct, curve, band, fit.residuals, offsets)
+    ts = timeseries_curves(results)
+    fig = plot_timeseries(ts["data"], ts["time"], ts["curve"], ts["band"], ts["residuals"],
+                          ts["offsets"])  # fmt: skip
     written.append(save_figure(fig, out / f"timeseries.{fmt}"))
-    kep_all = keplerian_velocity(model, best_phys)[0]
-    for c in model.companions:
+    for c in results.fit.model.companions:
         L = c.label
-        single = model.with_companions([c])
-        own = keplerian_velocity(single, best_phys)[0]
-        velocity = data.rv - off - (kep_all - own)
-        P, tc = p[f"{L}.period"], p[f"{L}.tc"]
-        phase = np.mod((data.time - tc) / P, 1.0)
-        grid = np.linspace(0, 1, 400)
-        curve_p = keplerian_velocity(single, best_phys, t=tc - epoch + grid * P)[0]
-        band_p = None
-        if theta is not None:
-            # each sample's own phase grid, anchored at its own tc (phys: the
-            # samples of the time-series band above)
-            tcs = phys[f"{L}.tc"]
-            curves = np.array([
-                keplerian_velocity(single, {k: v[j : j + 1] for k, v in phys.items()},
-                                   t=tcs[j] + grid * phys[f"{L}.period"][j])[0]
-                for j in range(len(tcs))
-            ])  # fmt: skip
-            band_p = np.percentile(curves, [15.87, 84.13], axis=0)
-        fig = plot_phase(data, phase, velocity, grid, curve_p, f"companion {L}", P, band_p)
+        ph = phase_curves(results, L)
+        fig = plot_phase(results.data, ph["phase"], ph["velocity"], ph["grid"], ph["curve"],
+                         f"companion {L}", ph["period"], ph["band"])  # fmt: skip
         written.append(save_figure(fig, out / f"phase_{L}.{fmt}"))
         post = results.posterior
         names = [f"{L}.period", f"{L}.K", f"{L}.ecc", f"{L}.omega_deg", f"{L}.msini_mjup"]

@@ -1,0 +1,88 @@
+"""The model curves the figures draw, as arrays (for a notebook or a report too).
+
+:func:`timeseries_curves` gives the best-fit velocity curve over the data's span, its
+68% posterior band (from up to 300 posterior draws, one kernel call), the data with
+offsets and trend removed and the residuals; :func:`phase_curves` gives one companion's
+phase-folded points (the other companions, offsets and trend removed), its best-fit
+curve over one period from conjunction, and its band, each posterior draw folded on its
+own period and conjunction (one broadcast kernel call over draws and phases).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from rvkep.data import RVData
+from rvkep.likelihood import keplerian_velocity
+from rvkep.orbit import radial_velocity
+
+__all__ = ["timeseries_curves", "phase_curves", "trend_curve"]
+
+_BAND = [15.87, 84.13]
+
+
+def trend_curve(params: dict, t: np.ndarray, epoch: float) -> np.ndarray:
+    """The fitted trend at times ``t`` (years from the epoch, as in the model)."""
+    x = (np.asarray(t, float) - epoch) / 365.25
+    return params.get("trend.slope", 0.0) * x + params.get("trend.curvature", 0.0) * x * x
+
+
+def _draws(results, n: int, rng):
+    theta = getattr(results.posterior, "theta", None)
+    if theta is None or not results.fit.model.companions:
+        return None
+    idx = np.random.default_rng(rng).choice(len(theta), size=min(n, len(theta)), replace=False)
+    return results.fit.model.to_physical(theta[idx])
+
+
+def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) -> dict:
+    """Keys: ``time`` (grid), ``curve`` (best fit), ``band`` ((low, high) or None),
+    ``data`` (RVData, the offsets and trend removed but each instrument's offset added
+    back for display), ``offsets`` (by instrument), ``residuals``."""
+    data, fit = results.data, results.fit
+    model, p, epoch = fit.model, fit.params, data.epoch
+    offsets = {i.name: p[f"offset.{i.name}"] for i in model.instruments}
+    own = np.array([offsets[n] for n in data.instrument])
+    off = own + trend_curve(p, data.time, epoch)
+    span = data.time[-1] - data.time[0]
+    ct = np.linspace(data.time[0] - 0.03 * span, data.time[-1] + 0.03 * span, n_grid)
+    best = model.to_physical(fit.theta[None, :])
+    curve = keplerian_velocity(model, best, t=ct - epoch)[0]
+    band = None
+    phys = _draws(results, n_draws, rng)
+    if phys is not None:
+        curves = keplerian_velocity(model, phys, t=ct - epoch)
+        band = np.percentile(curves, _BAND, axis=0)
+    shown = RVData(data.time, data.rv - off + own, data.err, data.instrument, epoch=epoch)
+    return {"time": ct, "curve": curve, "band": band, "data": shown, "offsets": offsets,
+            "residuals": fit.residuals}  # fmt: skip
+
+
+def phase_curves(results, label: str, n_grid: int = 400, n_draws: int = 300, rng=0) -> dict:
+    """Keys: ``phase`` and ``velocity`` of the points (phase 0 at conjunction),
+    ``grid`` and ``curve`` (best fit over one period), ``band`` ((low, high) or None),
+    ``period``."""
+    data, fit = results.data, results.fit
+    model, p, epoch = fit.model, fit.params, data.epoch
+    comp = next(c for c in model.companions if c.label == label)
+    single = model.with_companions([comp])
+    best = model.to_physical(fit.theta[None, :])
+    offsets = np.array([p[f"offset.{data.instrument[i]}"] for i in range(len(data))])
+    off = offsets + trend_curve(p, data.time, epoch)
+    others = keplerian_velocity(model, best)[0] - keplerian_velocity(single, best)[0]
+    velocity = data.rv - off - others
+    P, tc = p[f"{label}.period"], p[f"{label}.tc"]
+    phase = np.mod((data.time - tc) / P, 1.0)
+    grid = np.linspace(0, 1, n_grid)
+    curve = keplerian_velocity(single, best, t=tc - epoch + grid * P)[0]
+    band = None
+    phys = _draws(results, n_draws, rng)
+    if phys is not None:
+        col = {
+            k: phys[f"{label}.{k}"][:, None] for k in ("period", "tc", "tp", "ecc", "omega", "K")
+        }
+        t = col["tc"] + grid[None, :] * col["period"]  # each draw on its own period
+        curves = radial_velocity(t, col["period"], col["tp"], col["ecc"], col["omega"], col["K"])
+        band = np.percentile(curves, _BAND, axis=0)
+    return {"phase": phase, "velocity": velocity, "grid": grid, "curve": curve, "band": band,
+            "period": P}  # fmt: skip
