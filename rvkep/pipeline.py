@@ -292,7 +292,9 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
     ``opts.out``). Raises RvkepError subclasses for bad input before writing anything.
 
     The options come as an :class:`AnalyzeOptions` or as its fields by keyword:
-    ``analyze(files, star_mass=0.92, star_mass_err=0.04, out="veyla")``."""
+    ``analyze(files, star_mass=0.92, star_mass_err=0.04, out="veyla")``. The job is
+    the sequence of public stages :func:`read_data`, :func:`star_properties`,
+    :func:`choose_model`, :func:`sample_posterior` and :func:`write_outputs`."""
     if options:
         if opts is not None:
             raise TypeError("give the options as AnalyzeOptions or as keywords, not both")
@@ -303,20 +305,49 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
     t_start = time.perf_counter()
     validate_options(opts)
     spec = read_model_file(opts.model_file) if opts.model_file else None
+    data, data_notes = read_data(files, opts, spec)
+    star = star_properties(opts, spec)
+    out = Path(opts.out)
+    out.mkdir(parents=True, exist_ok=True)
+    with folder_lock(out):  # one run per output folder
+        clean_temporaries(out)  # left by a run that was killed
+        _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
+                   f"{', '.join(data.instruments)}")  # fmt: skip
+        chosen = choose_model(data, opts, spec)
+        sampled, sample_notes, seed = sample_posterior(chosen.fit, opts, spec, out / "chain.h5")
+        results = _build_results(data, chosen, sampled, star, opts, seed,
+                                 data_notes + chosen.notes + sample_notes)  # fmt: skip
+        paths = write_outputs(results, out, opts)
+    _say(opts, str(results))
+    _say(opts, f"done in {time.perf_counter() - t_start:.1f} s; results in {out}/ "
+               f"({paths['json'].name}, {paths['summary'].name}, {paths['latex'].name}, "
+               "figures)")  # fmt: skip
+    return results
+
+
+def read_data(files, opts: AnalyzeOptions, spec=None) -> tuple[RVData, list[str]]:
+    """Stage 1: the data (command-line files, else the model file's), binned if asked,
+    within the size limit; and the notes about them (unit warnings, binning)."""
     files = list(files or (spec.files if spec else []))
     if not files:
         raise OptionError("no data files given (on the command line or in the model file)")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", DataWarning)
         data = load_rv(files, kms=opts.kms or (spec.kms if spec else False))
-    data_notes = [f"data: {w.message}" for w in caught if issubclass(w.category, DataWarning)]
-    for note in data_notes:  # printed now, and kept in results.json and the summary
+    notes = [f"data: {w.message}" for w in caught if issubclass(w.category, DataWarning)]
+    for note in notes:  # printed now, and kept in results.json and the summary
         _say(opts, f"warning: {note.removeprefix('data: ')}")
     if opts.bin_days is not None:
         data, note = bin_data(data, opts.bin_days)
-        data_notes.append(note)
+        notes.append(note)
         _say(opts, note)
     check_size(data)
+    return data, notes
+
+
+def star_properties(opts: AnalyzeOptions, spec=None) -> StarProperties | None:
+    """Stage 2: the star from the options over the model file's ``[star]`` (None when
+    neither gives a mass: 1 M_sun is then assumed, and said)."""
     star = spec.star if spec and spec.star else None
     if opts.star_mass is not None:
         if not opts.star_mass > 0 or opts.star_mass_err < 0:
@@ -336,25 +367,26 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
         star = replace(star, **{name: value, f"{name}_err": err})
     if star is not None and star.teff is not None and star.radius is None:
         raise OptionError("--star-teff needs --star-radius as well")
-    out = Path(opts.out)
-    out.mkdir(parents=True, exist_ok=True)
-    with folder_lock(out):  # one run per output folder
-        clean_temporaries(out)  # left by a run that was killed
-        return _analyze_in(out, data, spec, star, opts, t_start, data_notes)
+    return star
 
 
-def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: float,
-                data_notes: list[str]):  # fmt: skip
-    """The part of :func:`analyze` that runs while the output folder is locked."""
-    from rvkep.likelihood import LogPosterior
+@dataclass
+class ModelChoice:
+    """What :func:`choose_model` decided: the search, the chosen fit, the
+    companion-number and trend comparison tables, and the notes to report."""
+
+    search: object
+    fit: object
+    comparison: list[dict]
+    trend_rows: list[dict]
+    notes: list[str]
+
+
+def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
+    """Stage 3: the trend degree(s) to try, the search and the number of companions for
+    each, and the choice between them (see the module text)."""
     from rvkep.model import SystemModel
-    from rvkep.posterior import PosteriorSamples
-    from rvkep.results import Results
-    from rvkep.samplers import get_sampler
-    from rvkep.sampling import CheckpointNotice, SamplerOptions, UnconvergedWarning
 
-    _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
-               f"{', '.join(data.instruments)}")  # fmt: skip
     base = spec.base_model(data) if spec else SystemModel(data, [])
     if spec is not None and spec.trend is not None:
         degrees = [spec.trend]  # the model file fixes it
@@ -373,49 +405,69 @@ def _analyze_in(out: Path, data, spec, star, opts: AnalyzeOptions, t_start: floa
     notes = _selection_notes(search_result, fit, comparison)
     for note in notes:
         _say(opts, f"note: {note}")
-    notes = data_notes + notes
-    # sampling, resumable through a checkpoint in the output folder
+    return ModelChoice(search_result, fit, comparison, trend_rows, notes)
+
+
+def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | None = None):
+    """Stage 4: sample the chosen model's posterior (resumable through ``checkpoint``).
+
+    Returns (sample set, notes, seed): the notes say what was not a plain fresh run
+    (a checkpoint that could not be resumed)."""
+    from rvkep.likelihood import LogPosterior
+    from rvkep.samplers import get_sampler
+    from rvkep.sampling import CheckpointNotice, SamplerOptions, UnconvergedWarning
+
     sampling_spec = spec.sampling if spec else {}
     seed = opts.seed if opts.seed is not None else sampling_spec.get("seed", 0)
-    walkers = sampling_spec.get("walkers") or max(32, 4 * fit.model.ndim)
-    walkers += walkers % 2
     max_steps = opts.max_steps or sampling_spec.get("max_steps") or (1500 if opts.quick else 40000)
-    chain_path = out / "chain.h5"  # keyed on the whole model and settings (sampling.py)
     if fit.model.ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")
-    _say(opts, f"sampling {fit.model.ndim} parameters with {walkers} walkers"
-               + (" (QUICK MODE: short chains, preview only)" if opts.quick else ""))  # fmt: skip
-    sopts = SamplerOptions(walkers=walkers, max_steps=max_steps, seed=seed,
-                           progress=None if not opts.quiet else False, checkpoint=chain_path,
+    sopts = SamplerOptions(walkers=sampling_spec.get("walkers"), max_steps=max_steps, seed=seed,
+                           progress=None if not opts.quiet else False, checkpoint=checkpoint,
                            check_every=250 if opts.quick else 500)  # fmt: skip
+    quick = " (QUICK MODE: short chains, preview only)" if opts.quick else ""
+    _say(opts, f"sampling {fit.model.ndim} parameters with {sopts.n_walkers(fit.model.ndim)} "
+               f"walkers{quick}")  # fmt: skip
+    notes = []
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", UnconvergedWarning)
         warnings.simplefilter("always", CheckpointNotice)
         # the posterior is built once and handed to the sampler (rvkep.samplers)
-        sampling = get_sampler("emcee").run(LogPosterior(fit.model), fit.theta, sopts)
+        sampled = get_sampler("emcee").run(LogPosterior(fit.model), fit.theta, sopts)
     for w in caught:
         if issubclass(w.category, UnconvergedWarning):
             _say(opts, f"WARNING: {w.message}")
         elif issubclass(w.category, CheckpointNotice):
             _say(opts, f"note: {w.message}")
             notes.append(str(w.message))  # kept in results.json: it says what ran
-    theta, log_prob = sampling.equal_weight(rng=seed)  # as they are for MCMC
+    return sampled, notes, seed
+
+
+def _build_results(data, chosen: ModelChoice, sampled, star, opts, seed: int, notes: list[str]):
+    from rvkep.posterior import PosteriorSamples
+    from rvkep.results import Results
+
+    fit = chosen.fit
+    theta, log_prob = sampled.equal_weight(rng=seed)  # as they are for MCMC
     posterior = PosteriorSamples.from_chain(fit.model, theta, log_prob, rng=seed)
     results = Results.build(
-        data, fit, sampling, posterior, star, rng=seed + 1, search=search_result,
-        comparison=comparison, quick=opts.quick, seed=seed, trend_comparison=trend_rows,
+        data, fit, sampled, posterior, star, rng=seed + 1, search=chosen.search,
+        comparison=chosen.comparison, quick=opts.quick, seed=seed,
+        trend_comparison=chosen.trend_rows,
     )  # fmt: skip
     results.notes.extend(notes)
     if opts.quick:
         results.notes.append("quick mode: short chains for a preview, not for publication")
+    return results
+
+
+def write_outputs(results, out: Path, opts: AnalyzeOptions) -> dict[str, Path]:
+    """Stage 5: results.json, the summary, the tables, the samples, data.csv and (unless
+    ``opts.figures`` is false) the figures."""
     paths = results.write(out)
     if opts.figures:
         write_figures(results, out, opts.fig_format)
-    elapsed = time.perf_counter() - t_start
-    _say(opts, str(results))
-    _say(opts, f"done in {elapsed:.1f} s; results in {out}/ ({paths['json'].name}, "
-               f"{paths['summary'].name}, {paths['latex'].name}, figures)")  # fmt: skip
-    return results
+    return paths
 
 
 def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:

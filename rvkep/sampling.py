@@ -107,6 +107,13 @@ class SamplerOptions:
     checkpoint: str | Path | None = None
     resume: bool = True
 
+    def n_walkers(self, ndim: int) -> int:
+        """The number of walkers for ``ndim`` parameters: ``walkers`` if given, else
+        max(32, 4 ndim); always even (emcee's stretch and DE moves split the ensemble
+        in two halves)."""
+        n = self.walkers or max(32, 4 * ndim)
+        return n + n % 2
+
 
 _BACKEND_CLASS = None
 
@@ -561,8 +568,7 @@ def run_sampler(
     ndim = model.ndim
     if ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")
-    nwalkers = opts.walkers or max(32, 4 * ndim)
-    nwalkers += nwalkers % 2
+    nwalkers = opts.n_walkers(ndim)
     rng = np.random.default_rng(opts.seed)
     backend = None
     resumed_steps = 0
