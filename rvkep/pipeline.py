@@ -472,11 +472,10 @@ def write_outputs(results, out: Path, opts: AnalyzeOptions) -> dict[str, Path]:
 
 def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
     """Save the time series, phase curves, periodograms and corner plots of a result
-    (the curves come from :mod:`rvkep.curves`, the drawing from :mod:`rvkep.plots`)."""
+    (drawn by the figure functions of :mod:`rvkep.plots` from the Results)."""
     from rvkep import __version__
-    from rvkep.curves import phase_curves, timeseries_curves
     from rvkep.outputs import save_figure as _save
-    from rvkep.plots import plot_corner, plot_periodograms, plot_phase, plot_timeseries
+    from rvkep.plots import corner_figure, phase_figure, plot_periodograms, timeseries_figure
 
     out = Path(out)
     footer = f"rvkep {__version__} | {results.run_label()}"
@@ -488,24 +487,10 @@ def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
         key = "Subject" if str(path).endswith(".pdf") else "Description"
         return _save(fig, path, metadata={key: footer})
 
-    written = []
-    ts = timeseries_curves(results)
-    fig = plot_timeseries(ts["data"], ts["time"], ts["curve"], ts["band"], ts["residuals"],
-                          ts["offsets"])  # fmt: skip
-    written.append(save_figure(fig, out / f"timeseries.{fmt}"))
-    for c in results.fit.model.companions:
-        L = c.label
-        ph = phase_curves(results, L)
-        fig = plot_phase(results.data, ph["phase"], ph["velocity"], ph["grid"], ph["curve"],
-                         f"companion {L}", ph["period"], ph["band"])  # fmt: skip
-        written.append(save_figure(fig, out / f"phase_{L}.{fmt}"))
-        post = results.posterior
-        names = [f"{L}.period", f"{L}.K", f"{L}.ecc", f"{L}.omega_deg", f"{L}.msini_mjup"]
-        names = [n for n in names if n in post]
-        labels = ["P [d]", "K [m/s]", "e", "omega [deg]", "m sin i [M_Jup]"][: len(names)]
-        fig = plot_corner(post.columns, names, labels)
-        fig.suptitle(f"companion {L}", fontsize=11)
-        written.append(save_figure(fig, out / f"corner_{L}.{fmt}"))
+    written = [save_figure(timeseries_figure(results), out / f"timeseries.{fmt}")]
+    for L in results.labels:
+        written.append(save_figure(phase_figure(results, L), out / f"phase_{L}.{fmt}"))
+        written.append(save_figure(corner_figure(results, L), out / f"corner_{L}.{fmt}"))
     if results.search is not None:
         written.append(save_figure(plot_periodograms(results.search), out / f"periodogram.{fmt}"))
     return written

@@ -12,6 +12,9 @@ import math
 import numpy as np
 
 __all__ = [
+    "timeseries_figure",
+    "phase_figure",
+    "corner_figure",
     "INSTRUMENT_COLOURS",
     "INSTRUMENT_MARKERS",
     "instrument_style",
@@ -233,4 +236,42 @@ def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None,
         axes[i, i].set_title(f"{label} = {text_value(med, med - lo, hi - med)}", fontsize=8)
     if fixed_text:
         fig.text(0.99, 0.99, fixed_text, ha="right", va="top", fontsize=8)
+    return fig
+
+
+# -- figures of a Results -----------------------------------------------------------
+# Each takes a Results (and, like the functions above, an optional figure or axes to
+# draw into) and returns the figure; the curves come from rvkep.curves.
+
+
+def timeseries_figure(results, fig=None):
+    """The time series of a :class:`rvkep.results.Results`: data, model, 68% band and
+    residuals (:func:`rvkep.curves.timeseries_curves`, :func:`plot_timeseries`)."""
+    from rvkep.curves import timeseries_curves
+
+    ts = timeseries_curves(results)
+    return plot_timeseries(ts["data"], ts["time"], ts["curve"], ts["band"], ts["residuals"],
+                           ts["offsets"], fig=fig)  # fmt: skip
+
+
+def phase_figure(results, label: str, fig=None, ax=None):
+    """One companion's phase-folded curve from a Results (:func:`plot_phase`)."""
+    from rvkep.curves import phase_curves
+
+    ph = phase_curves(results, label)
+    return plot_phase(results.data, ph["phase"], ph["velocity"], ph["grid"], ph["curve"],
+                      f"companion {label}", ph["period"], ph["band"], fig=fig, ax=ax)  # fmt: skip
+
+
+#: The columns of a companion's corner plot and their axis labels.
+CORNER_COLUMNS = [("period", "P [d]"), ("K", "K [m/s]"), ("ecc", "e"),
+                  ("omega_deg", "omega [deg]"), ("msini_mjup", "m sin i [M_Jup]")]  # fmt: skip
+
+
+def corner_figure(results, label: str, fig=None):
+    """One companion's posterior (P, K, e, omega, m sin i) from a Results."""
+    post = results.posterior
+    chosen = [(f"{label}.{c}", text) for c, text in CORNER_COLUMNS if f"{label}.{c}" in post]
+    fig = plot_corner(post.columns, [n for n, _ in chosen], [t for _, t in chosen], fig=fig)
+    fig.suptitle(f"companion {label}", fontsize=11)
     return fig

@@ -36,3 +36,25 @@ def test_phase_band_equals_draw_by_draw_curves():
     # the folded points sit on the best-fit curve within the noise (errors 2 m/s)
     model_at_points = np.interp(ph["phase"], ph["grid"], ph["curve"])
     assert np.std(ph["velocity"] - model_at_points) < 4.0
+
+
+def test_figures_are_drawn_from_a_results_into_a_given_figure():
+    import matplotlib.pyplot as plt
+
+    from rvkep.plots import corner_figure, phase_figure, timeseries_figure
+
+    data = one_planet()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        run = rvkep.fit(data, [9.4]).sample(seed=3, max_steps=300, progress=False)
+    res = rvkep.Results.from_sampling(run)
+    fig = timeseries_figure(res)
+    assert len(fig.axes) == 2  # velocities and residuals
+    own, ax = plt.subplots()
+    ax.plot([0, 1], [0, 1], label="drawn before")
+    assert phase_figure(res, "b", fig=own, ax=ax) is own
+    labels = [line.get_label() for line in ax.get_lines()]
+    assert "drawn before" in labels and len(ax.get_lines()) > 1  # drawn over, not cleared
+    corner = corner_figure(res, "b")
+    assert corner._suptitle.get_text() == "companion b" and len(corner.axes) == 25  # 5 x 5
+    plt.close("all")
