@@ -94,3 +94,38 @@ def test_a_finished_run_reads_back_and_predicts_its_own_data(tmp_path):
     assert inside.mean() > 0.85  # about 95% expected
     with pytest.raises(DataError, match="no results.json"):
         Results.load(tmp_path)
+    # the command line: the same numbers as a CSV with the documented columns
+    csv_path = tmp_path / "pred.csv"
+    args = ["predict", str(out), "--from", "2460400", "--to", "2460402", "--step", "0.5",
+            "--instrument", "osprey", "--draws", "300", "--out", str(csv_path)]  # fmt: skip
+    assert main(args) == 0
+    lines = csv_path.read_text().splitlines()
+    assert lines[0].startswith("# rvkep predict:") and "QUICK MODE" in lines[0]
+    header = lines[1].split(",")
+    five = ["median", "lo68", "hi68", "lo95", "hi95"]
+    assert header == (["time"] + [f"total_{q}" for q in five] + [f"b_{q}" for q in five]
+                      + [f"c_{q}" for q in five] + [f"measured_{q}" for q in five])  # fmt: skip
+    assert len(lines) == 2 + 5
+    direct = res.predict(np.arange(2460400, 2460402.01, 0.5), instrument="osprey", draws=300)
+    first = dict(zip(header, map(float, lines[2].split(",")), strict=True))
+    assert first["total_median"] == pytest.approx(direct.rows()[0]["total_median"], rel=1e-9)
+    assert first["measured_hi95"] == pytest.approx(direct.rows()[0]["measured_hi95"], rel=1e-9)
+
+
+def test_predict_command_refuses_bad_requests_in_one_line(tmp_path, capsys):
+    from rvkep.cli import main
+
+    times = tmp_path / "t.txt"
+    times.write_text("2460400.5\n2026-12-03\n")
+    for args, message in (
+        ([str(tmp_path)], "either --times FILE or --from"),
+        ([str(tmp_path), "--from", "5", "--to", "4"], "T(to) > T(from)"),
+        ([str(tmp_path), "--from", "0", "--to", "1e7", "--step", "1"], "raise --step"),
+        ([str(tmp_path), "--times", str(times)], "t.txt, line 2: '2026-12-03' is not a time"),
+    ):
+        assert main(["predict", *args]) == 2
+        err = capsys.readouterr().err.strip()
+        assert len(err.splitlines()) == 1 and message in err, err
+    # times are checked before the run is read; a folder without a run says so
+    assert main(["predict", str(tmp_path), "--from", "1", "--to", "2"]) == 2
+    assert "no results.json" in capsys.readouterr().err
