@@ -289,13 +289,14 @@ class RVData:
         start = float(np.floor(self.time.min()))
         b = np.floor((self.time - start) / days).astype(np.int64)
         codes = self.instrument_index.astype(np.int64)
-        keys = codes * (int(b.max()) + 1) + b
+        per_instrument = int(b.max()) + 1  # bins per instrument in the combined key
+        keys = codes * per_instrument + b
         uniq, inv = np.unique(keys, return_inverse=True)
         w = 1.0 / self.err**2
         sw = np.bincount(inv, w)
         time = start + np.bincount(inv, w * (self.time - start)) / sw
         rv = np.bincount(inv, w * self.rv) / sw
-        names = np.asarray(self.instruments)[uniq // (int(b.max()) + 1)]
+        names = np.asarray(self.instruments)[uniq // per_instrument]
         extra = {}
         for k, v in self.extra.items():
             ok = np.isfinite(v)
@@ -349,11 +350,13 @@ def _is_comment(line: str) -> bool:
     return not s or s.startswith(_COMMENT_CHARS)
 
 
-def _split(line: str, delimiter: str | None) -> list[str]:
+def _split(line: str, delimiter: str | None, quotes: str = "\"'") -> list[str]:
+    """The cells of a line (a ``#`` comment cut off), ``quotes`` stripped around
+    delimited cells."""
     line = line.split("#", 1)[0]
     if delimiter is None:
         return line.split()
-    return [c.strip().strip("\"'") for c in line.split(delimiter)]
+    return [c.strip().strip(quotes) for c in line.split(delimiter)]
 
 
 def _looks_numeric(token: str) -> bool:
@@ -513,20 +516,12 @@ def _locate_bad_row(path: Path, lines: list[str], layout: _Layout) -> str:
             return (
                 f"{path}, line {i + 1}: {len(cells)} columns where the table has {layout.n_columns}"
             )
-        raw_cells = _raw_cells(line, layout.delimiter)
+        raw_cells = _split(line, layout.delimiter, quotes='"')  # as numpy's reader sees them
         for j in numeric:
             if not _parses(raw_cells[j]):
                 name = layout.roles[j].removeprefix("extra:")
                 return f"{path}, line {i + 1}: non-numeric value {raw_cells[j]!r} in column {name}"
     return f"{path}: unreadable table"
-
-
-def _raw_cells(line: str, delimiter: str | None) -> list[str]:
-    """Cells as numpy's reader sees them (only double quotes are quotes)."""
-    line = line.split("#", 1)[0]
-    if delimiter is None:
-        return line.split()
-    return [c.strip().strip('"') for c in line.split(delimiter)]
 
 
 def _parses(cell: str) -> bool:
@@ -730,14 +725,14 @@ def _check_ranges(path: Path, line_numbers: np.ndarray, time, rv, err, scale: fl
 def _check_time_system(path: Path, line_numbers: np.ndarray, time: np.ndarray) -> None:
     """All times of one file in one system (full JD, JD - 2400000 or MJD, a smaller
     offset): a mixture spans millions of days and no fit can make sense of it."""
-    classes = np.digitize(time, (30_000.0, 2_000_000.0))
+    classes = _time_class(time)
     if classes.size and np.any(classes != classes[0]):
         common = np.bincount(classes).argmax()
         k = int(np.argmax(classes != common))
         raise DataError(
             f"{path}, line {line_numbers[k]}: time {float(time[k])!r} is in another time system "
-            f"({_time_system(time[k : k + 1])}) than most of this file "
-            f"({_time_system(time[classes == common])}); give all times in one system"
+            f"({_TIME_NAMES[classes[k]]}) than most of this file "
+            f"({_TIME_NAMES[common]}); give all times in one system"
         )
 
 
@@ -786,13 +781,24 @@ def _check_duplicates(path: Path, line_numbers: np.ndarray, time, names) -> None
 # ---------------------------------------------------------------------------
 
 
+#: The time systems rvkep tells apart: the upper bounds (days, inclusive) of the first
+#: two, and the name of each.
+_TIME_BOUNDS = (30_000.0, 2_000_000.0)
+_TIME_NAMES = (
+    "JD - 2450000 or another offset (below 3e4)",
+    "JD - 2400000 or MJD (about 5e4-6e4)",
+    "full JD/BJD (about 2.4e6)",
+)
+
+
+def _time_class(time) -> np.ndarray:
+    """The index in :data:`_TIME_NAMES` of each time's system."""
+    return np.digitize(time, _TIME_BOUNDS, right=True)
+
+
 def _time_system(time: np.ndarray) -> str:
-    mid = float(np.median(time))
-    if mid > 2_000_000:
-        return "full JD/BJD (about 2.4e6)"
-    if mid > 30_000:
-        return "JD - 2400000 or MJD (about 5e4-6e4)"
-    return "JD - 2450000 or another offset (below 3e4)"
+    """The name of the system the times' median lies in."""
+    return _TIME_NAMES[int(_time_class(np.median(time)))]
 
 
 def load_rv(
