@@ -403,8 +403,10 @@ def checkpoint_key(model: SystemModel, options: SamplerOptions, walkers: int) ->
 
 
 def _open_checkpoint(path: Path, key: str, post, nwalkers: int, ndim: int):
-    """The checkpoint at ``path`` if it holds a sound chain of this model and settings;
-    otherwise an empty one (with a :class:`CheckpointNotice` saying why).
+    """(backend, stored): the checkpoint at ``path`` if it holds a sound chain of this
+    model and settings, with ``stored`` = (chain, log_prob, last state) as read while
+    checking it (None when it holds no step yet); otherwise an empty backend (with a
+    :class:`CheckpointNotice` saying why) and None.
 
     A file that cannot be read, has the wrong shape, or whose last step's stored
     log-posterior differs from the model's value there is damaged: it is kept as
@@ -413,7 +415,7 @@ def _open_checkpoint(path: Path, key: str, post, nwalkers: int, ndim: int):
     import time
 
     if not path.exists():
-        return BufferedHDFBackend(path)
+        return BufferedHDFBackend(path), None
     try:
         backend = BufferedHDFBackend(path)
         if not backend.initialized:
@@ -427,18 +429,19 @@ def _open_checkpoint(path: Path, key: str, post, nwalkers: int, ndim: int):
                 stacklevel=3,
             )
             path.unlink()
-            return BufferedHDFBackend(path)
+            return BufferedHDFBackend(path), None
         it = backend.iteration
-        if it > 0:
-            last = backend.get_last_sample()
-            if last.coords.shape != (nwalkers, ndim) or last.random_state is None:
-                raise ValueError("the stored chain has another shape")
-            chain, logp = backend.get_chain(), backend.get_log_prob()
-            if chain.shape != (it, nwalkers, ndim) or logp.shape != (it, nwalkers):
-                raise ValueError(f"{it} steps announced, {chain.shape[0]} stored")
-            if not np.allclose(post(last.coords), last.log_prob, rtol=1e-9, atol=1e-9):
-                raise ValueError("the last stored step does not match the model")
-        return backend
+        if it == 0:
+            return backend, None
+        last = backend.get_last_sample()
+        if last.coords.shape != (nwalkers, ndim) or last.random_state is None:
+            raise ValueError("the stored chain has another shape")
+        chain, logp = backend.get_chain(), backend.get_log_prob()
+        if chain.shape != (it, nwalkers, ndim) or logp.shape != (it, nwalkers):
+            raise ValueError(f"{it} steps announced, {chain.shape[0]} stored")
+        if not np.allclose(post(last.coords), last.log_prob, rtol=1e-9, atol=1e-9):
+            raise ValueError("the last stored step does not match the model")
+        return backend, (chain, logp, last)
     except Exception as exc:  # noqa: BLE001 - anything a damaged file raises
         kept = path.with_name(f"{path.name}.damaged-{time.strftime('%Y%m%d-%H%M%S')}")
         path.replace(kept)
@@ -448,7 +451,7 @@ def _open_checkpoint(path: Path, key: str, post, nwalkers: int, ndim: int):
             CheckpointNotice,
             stacklevel=3,
         )
-        return BufferedHDFBackend(path)
+        return BufferedHDFBackend(path), None
 
 
 def _stored_key(backend) -> str | None:
@@ -570,31 +573,28 @@ def run_sampler(
         raise RvkepError("nothing to sample: every parameter is fixed")
     nwalkers = opts.n_walkers(ndim)
     rng = np.random.default_rng(opts.seed)
-    backend = None
-    resumed_steps = 0
+    backend = stored = None
     if opts.checkpoint is not None:
         path = Path(opts.checkpoint)
         path.parent.mkdir(parents=True, exist_ok=True)
         if path.exists() and not opts.resume:
             path.unlink()
         key, key_text = checkpoint_key(model, opts, nwalkers)
-        backend = _open_checkpoint(path, key, post, nwalkers, ndim)
-        if backend.initialized:
-            resumed_steps = backend.iteration
-        else:
+        backend, stored = _open_checkpoint(path, key, post, nwalkers, ndim)
+        if not backend.initialized:
             backend.reset(nwalkers, ndim)
             _store_key(backend, key, key_text)
     sampler = emcee.EnsembleSampler(
         nwalkers, ndim, post, vectorize=True, moves=_moves(opts.moves), backend=backend
     )
-    if resumed_steps == 0:
+    if stored is None:
         state = initial_ball(post, start, nwalkers, rng)
         sampler.random_state = np.random.RandomState(rng.integers(2**31)).get_state()
-    else:
-        state = sampler.get_last_sample()  # the file's last step and random state
-    chains = [] if resumed_steps == 0 else [sampler.get_chain()]
-    logps = [] if resumed_steps == 0 else [sampler.get_log_prob()]
-    steps = resumed_steps
+        chains, logps = [], []
+    else:  # the file's steps, last state and random state, read once while checked
+        chain, logp, state = stored
+        chains, logps = [chain], [logp]
+    steps = chains[0].shape[0] if chains else 0
     tau_prev = None
     history = []
     converged = False
