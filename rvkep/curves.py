@@ -27,6 +27,15 @@ def trend_curve(params: dict, t: np.ndarray, epoch: float) -> np.ndarray:
     return params.get("trend.slope", 0.0) * x + params.get("trend.curvature", 0.0) * x * x
 
 
+def _zero_points(results) -> tuple[dict, np.ndarray, np.ndarray]:
+    """The best fit's offsets by instrument, each point's own offset, and each point's
+    offset plus the trend (what is removed from the data before drawing)."""
+    data, p = results.data, results.fit.params
+    offsets = {i.name: p[f"offset.{i.name}"] for i in results.fit.model.instruments}
+    own = np.array([offsets[n] for n in data.instrument])
+    return offsets, own, own + trend_curve(p, data.time, data.epoch)
+
+
 def _draws(results, n: int, rng):
     theta = getattr(results.posterior, "theta", None)
     if theta is None or not results.fit.model.companions:
@@ -40,10 +49,8 @@ def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) ->
     ``data`` (RVData, the offsets and trend removed but each instrument's offset added
     back for display), ``offsets`` (by instrument), ``residuals``."""
     data, fit = results.data, results.fit
-    model, p, epoch = fit.model, fit.params, data.epoch
-    offsets = {i.name: p[f"offset.{i.name}"] for i in model.instruments}
-    own = np.array([offsets[n] for n in data.instrument])
-    off = own + trend_curve(p, data.time, epoch)
+    model, epoch = fit.model, data.epoch
+    offsets, own, off = _zero_points(results)
     span = data.time[-1] - data.time[0]
     ct = np.linspace(data.time[0] - 0.03 * span, data.time[-1] + 0.03 * span, n_grid)
     best = model.to_physical(fit.theta[None, :])
@@ -67,8 +74,7 @@ def phase_curves(results, label: str, n_grid: int = 400, n_draws: int = 300, rng
     comp = next(c for c in model.companions if c.label == label)
     single = model.with_companions([comp])
     best = model.to_physical(fit.theta[None, :])
-    offsets = np.array([p[f"offset.{data.instrument[i]}"] for i in range(len(data))])
-    off = offsets + trend_curve(p, data.time, epoch)
+    off = _zero_points(results)[2]
     others = keplerian_velocity(model, best)[0] - keplerian_velocity(single, best)[0]
     velocity = data.rv - off - others
     P, tc = p[f"{label}.period"], p[f"{label}.tc"]
