@@ -195,10 +195,12 @@ def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Targe
             files.extend(matches or [full])
     kw = {}
     if rec.get("trend"):
-        value = rec["trend"].strip()
-        if value not in ("auto", "0", "1", "2"):
-            raise DataError(f"trend must be auto, 0, 1 or 2, got {value!r}")
-        kw["trend"] = value if value == "auto" else int(value)
+        from rvkep.defaults import parse_trend
+
+        try:
+            kw["trend"] = parse_trend(rec["trend"])
+        except ValueError as exc:
+            raise DataError(f"trend {exc}") from None
     for key in ("max_planets", "planets"):
         if rec.get(key):
             try:

@@ -172,11 +172,12 @@ def _add_search_args(p: argparse.ArgumentParser) -> None:
 
 
 def _trend_value(text: str):
-    if text == "auto":
-        return "auto"
-    if text in ("0", "1", "2"):
-        return int(text)
-    raise argparse.ArgumentTypeError(f"must be auto, 0, 1 or 2, not {text!r}")
+    from rvkep.defaults import parse_trend
+
+    try:
+        return parse_trend(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def _add_trend_arg(p: argparse.ArgumentParser, auto: bool) -> None:

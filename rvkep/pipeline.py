@@ -24,6 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from rvkep.data import DataWarning, RVData, check_size, load_rv
+from rvkep.defaults import TREND_DEGREES, parse_trend
 from rvkep.errors import OptionError, RvkepError
 from rvkep.outputs import clean_temporaries, folder_lock
 from rvkep.physics import StarProperties
@@ -388,14 +389,14 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
     from rvkep.model import SystemModel
 
     base = spec.base_model(data) if spec else SystemModel(data, [])
+    try:
+        trend = parse_trend(opts.trend)
+    except ValueError as exc:
+        raise OptionError(f"--trend {exc}") from None
     if spec is not None and spec.trend is not None:
         degrees = [spec.trend]  # the model file fixes it
-    elif opts.trend == "auto":
-        degrees = [0, 1, 2]
-    elif opts.trend in (0, 1, 2):
-        degrees = [int(opts.trend)]
     else:
-        raise OptionError(f"--trend must be auto, 0, 1 or 2, got {opts.trend!r}")
+        degrees = list(TREND_DEGREES) if trend == "auto" else [trend]
     outcomes = [select_companions(data, replace(base, trend=d), opts, spec) for d in degrees]
     chosen, trend_rows = choose_trend(outcomes)
     search_result, fit, comparison, message = outcomes[chosen]

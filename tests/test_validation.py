@@ -139,3 +139,19 @@ def test_period_prior_away_from_the_data_range_runs_or_refuses_in_one_line(tmp_p
                  "--quiet"])  # fmt: skip
     printed = capsys.readouterr()
     assert code == 0 and "Traceback" not in printed.err, printed.err
+
+
+def test_one_trend_rule_for_command_line_target_lists_and_the_api(tmp_path, capsys):
+    from rvkep.batch import read_targets
+    from rvkep.defaults import parse_trend
+
+    assert [parse_trend(v) for v in ("auto", " 2 ", 1, 0.0)] == ["auto", 2, 1, 0]
+    for bad in ("3", True, "linear", None):
+        with pytest.raises(ValueError, match="must be auto, 0, 1 or 2"):
+            parse_trend(bad)
+    targets = tmp_path / "t.csv"
+    targets.write_text(f"name,data,star_mass,star_mass_err,trend\nveyla,{DATA[0]},0.92,0.04,3\n")
+    assert "line 2: trend must be auto, 0, 1 or 2, got '3'" in read_targets(targets)[0].problem
+    with pytest.raises(SystemExit) as stop:  # argparse's own exit, status 2
+        main(["analyze", DATA[0], "--out", str(tmp_path / "o"), "--trend", "3"])
+    assert stop.value.code == 2 and "must be auto, 0, 1 or 2" in capsys.readouterr().err
