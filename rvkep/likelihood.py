@@ -92,12 +92,17 @@ class LogPosterior:
         self.noise = noise or model.noise_model
         self.include_prior = include_prior
 
-    def __call__(self, theta: np.ndarray) -> np.ndarray:
+    def _prepare(self, theta: np.ndarray):
+        """(theta as rows, orbit arrays, log prior) of a call."""
         theta = np.atleast_2d(np.asarray(theta, dtype=float))
-        model = self.model
         with np.errstate(all="ignore"):
-            arr = model.orbit_arrays(theta)
-            lp = model.log_prior(theta, arr)
+            arr = self.model.orbit_arrays(theta)
+            lp = self.model.log_prior(theta, arr)
+        return theta, arr, lp
+
+    def __call__(self, theta: np.ndarray) -> np.ndarray:
+        theta, arr, lp = self._prepare(theta)
+        model = self.model
         ok = lp > -np.inf
         if ok.all():
             rows = slice(None)
@@ -107,7 +112,7 @@ class LogPosterior:
                 return lp
         logL = self.noise.fast_loglike(model, arr, rows, self.linear)
         if logL is None:  # no compiled shortcut: the noise model's general path
-            return self.evaluate(theta)[0]
+            return self._general(theta, arr, lp)[0]
         value = logL + (lp[rows] if self.include_prior else 0.0)
         value[~np.isfinite(value)] = -np.inf
         out = np.full(theta.shape[0], -np.inf)
@@ -117,12 +122,12 @@ class LogPosterior:
     def evaluate(self, theta: np.ndarray):
         """(values, details) where details holds residuals, weights and the linear fit
         for the valid rows (used by the best fit and the posterior of the offsets)."""
-        theta = np.atleast_2d(np.asarray(theta, dtype=float))
+        return self._general(*self._prepare(theta))
+
+    def _general(self, theta: np.ndarray, arr: dict, lp: np.ndarray):
+        """:meth:`evaluate` from the prepared orbit arrays and log prior."""
         model = self.model
-        with np.errstate(all="ignore"):
-            arr = model.orbit_arrays(theta)
-            lp = model.log_prior(theta, arr)
-            phys = model.as_dict(arr)
+        phys = model.as_dict(arr)
         out = np.full(theta.shape[0], -np.inf)
         rows = np.flatnonzero(np.isfinite(lp))
         details = {"rows": rows, "phys": phys}
