@@ -6,7 +6,7 @@ import math
 
 import numpy as np
 
-__all__ = ["format_uncertain", "latex_value", "text_value"]
+__all__ = ["format_uncertain", "latex_value", "text_value", "text_estimate"]
 
 
 def _sig_round(x: float, sig: int = 2) -> int:
@@ -43,3 +43,8 @@ def text_value(value: float, minus: float, plus: float) -> str:
     """``v +- e`` or ``v +p -m`` for plain text."""
     v, m, p = format_uncertain(value, minus, plus)
     return f"{v} +- {m}" if m == p else f"{v} +{p} -{m}"
+
+
+def text_estimate(estimate: dict) -> str:
+    """:func:`text_value` of an estimate ``{"median", "minus", "plus"}``."""
+    return text_value(estimate["median"], estimate["minus"], estimate["plus"])

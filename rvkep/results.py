@@ -23,13 +23,12 @@ from pathlib import Path
 import numpy as np
 
 from rvkep import __version__
-from rvkep.formatting import format_uncertain, latex_value, text_value
+from rvkep.formatting import format_uncertain, latex_value, text_estimate
 from rvkep.physics import StarProperties, derive_companion, draw_positive
 from rvkep.posterior import PosteriorSamples, circular_percentiles, percentiles
+from rvkep.report.rows import PLANET_COLUMNS as _PLANET_COLUMNS
 
 __all__ = ["Results", "format_uncertain", "latex_value"]
-
-from rvkep.report.rows import PLANET_COLUMNS as _PLANET_COLUMNS  # noqa: E402
 
 
 @dataclass
@@ -343,13 +342,13 @@ class Results:
         ]
         for p in d["planets"]:
             lines.append(
-                f"  {p['label']}: P = {_md(p['period_d'])} d, K = {_md(p['K_mps'])} m/s, "
-                f"e = {_md(p['ecc'])}, m sin i = {_md(p['msini_mjup'])} M_Jup "
-                f"({_md(p['msini_mearth'])} M_Earth), a = {_md(p['a_au'])} au"
+                f"  {p['label']}: P = {text_estimate(p['period_d'])} d, K = {text_estimate(p['K_mps'])} m/s, "
+                f"e = {text_estimate(p['ecc'])}, m sin i = {text_estimate(p['msini_mjup'])} M_Jup "
+                f"({text_estimate(p['msini_mearth'])} M_Earth), a = {text_estimate(p['a_au'])} au"
             )
         for i in d["instruments"]:
             lines.append(
-                f"  {i['name']}: offset = {_md(i['offset_mps'])} m/s, jitter = {_md(i['jitter_mps'])} m/s"
+                f"  {i['name']}: offset = {text_estimate(i['offset_mps'])} m/s, jitter = {text_estimate(i['jitter_mps'])} m/s"
             )
         if not d["sampler"]["converged"]:
             lines.append("  WARNING: the chain did not converge; results are preliminary")
@@ -410,10 +409,6 @@ def _read_data_csv(path: Path, epoch: float):
     extra = {k: v for k, v in num.items() if k not in ("time", "rv", "err")}
     return RVData(num["time"], num["rv"], num["err"], np.array(cols[header.index("instrument")]),
                   extra, [str(path)], epoch)  # fmt: skip
-
-
-def _md(e: dict) -> str:
-    return text_value(e["median"], e["minus"], e["plus"])
 
 
 def _clean(x):

@@ -3,15 +3,11 @@ search, companion-number and trend comparisons, sampler and priors."""
 
 from __future__ import annotations
 
-from rvkep.formatting import text_value
+from rvkep.formatting import text_estimate
 
 __all__ = ["render"]
 
 SUFFIX = ".md"
-
-
-def _md(e: dict) -> str:
-    return text_value(e["median"], e["minus"], e["plus"])
 
 
 def render(results) -> str:
@@ -39,7 +35,7 @@ def render(results) -> str:
                   "| | P [d] | K [m/s] | e | omega [deg] | tc | m sin i [M_Jup] | m sin i [M_Earth] | a [au] |",
                   "|---|---|---|---|---|---|---|---|---|"]  # fmt: skip
         for p in d["planets"]:
-            cells = [_md(p[k]) for k in ("period_d", "K_mps", "ecc", "omega_deg", "tc_bjd",
+            cells = [text_estimate(p[k]) for k in ("period_d", "K_mps", "ecc", "omega_deg", "tc_bjd",
                                            "msini_mjup", "msini_mearth", "a_au")]  # fmt: skip
             lines.append(f"| {p['label']} | " + " | ".join(cells) + " |")
         lines.append("")
@@ -53,11 +49,11 @@ def render(results) -> str:
     ]
     for i in d["instruments"]:
         lines.append(
-            f"| {i['name']} | {i['n_points']} | {_md(i['offset_mps'])} | {_md(i['jitter_mps'])} | {i['rms_residual_mps']:.2f} |"
+            f"| {i['name']} | {i['n_points']} | {text_estimate(i['offset_mps'])} | {text_estimate(i['jitter_mps'])} | {i['rms_residual_mps']:.2f} |"
         )
     lines.append("")
     if d["trend"]["degree"]:
-        lines += [f"Trend: {_md(d['trend']['slope_mps_per_yr'])} m/s/yr", ""]
+        lines += [f"Trend: {text_estimate(d['trend']['slope_mps_per_yr'])} m/s/yr", ""]
     if d["search"]:
         lines += [
             "## Signal search",
