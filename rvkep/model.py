@@ -19,6 +19,8 @@ coordinate                     physical parameter and implied prior
                                orbit is circular (e fixed at 0)
 ``<label>.K``                  semi-amplitude K (m/s), prior as stated
 ``jitter.<instrument>``        extra white noise (m/s) added in quadrature
+``noise.<name>``               a parameter the noise model owns (none for white
+                               noise; see :mod:`rvkep.noise`), prior as stated
 =============================  =================================================
 
 Offsets (one per instrument) and the trend coefficients (slope in m/s/yr, curvature in
@@ -130,6 +132,9 @@ class SystemModel:
     star : StarProperties, optional
     noise : str
         The noise model's name (:mod:`rvkep.noise`; default ``"white"``).
+    noise_parameters : list of NoiseParameter, optional
+        The noise model's own parameters with their priors and starts (its defaults
+        for the data when omitted).
     """
 
     data: RVData
@@ -138,8 +143,22 @@ class SystemModel:
     trend: int = 0
     star: StarProperties | None = None
     noise: str = "white"  # a name in rvkep.noise.NOISE_MODELS
+    noise_parameters: list | None = None  # of rvkep.noise.NoiseParameter
 
     def __post_init__(self) -> None:
+        own = self.noise_model.parameters(self.data)
+        if self.noise_parameters is None:
+            self.noise_parameters = own
+        else:
+            want = [p.name for p in own]
+            given = [p.name for p in self.noise_parameters]
+            if sorted(given) != sorted(want):
+                raise ValueError(
+                    f"noise model {self.noise!r} has parameters {', '.join(want) or 'none'}, "
+                    f"got {', '.join(given) or 'none'}"
+                )
+            by_name = {p.name: p for p in self.noise_parameters}
+            self.noise_parameters = [by_name[n] for n in want]
         names = self.data.instruments
         if self.instruments is None:
             self.instruments = [default_instrument(self.data, n) for n in names]
@@ -193,6 +212,10 @@ class SystemModel:
             if not inst.jitter.is_fixed:
                 names.append(f"jitter.{inst.name}")
                 slots.append(("instrument", ii, "jitter"))
+        for ni, par in enumerate(self.noise_parameters):
+            if not par.prior.is_fixed:
+                names.append(f"noise.{par.name}")
+                slots.append(("noise", ni, par.name))
         self.names = names
         self._slots = slots
         self._index = {(kind, i, f): j for j, (kind, i, f) in enumerate(slots)}
@@ -226,11 +249,18 @@ class SystemModel:
             [i.jitter.value if i.jitter.is_fixed else np.nan for i in self.instruments]
         )
         self._plan = None  # the prior plan, built on first use by log_prior
-        self._jit_gather = (
-            np.array(
-                [j for j, (kind, _, _) in enumerate(slots) if kind == "instrument"], dtype=np.intp
-            ),
-            np.array([i for kind, i, _ in slots if kind == "instrument"], dtype=np.intp),
+        self._jit_gather = self._owned("instrument")
+        self._noise_fill = np.array(
+            [p.prior.value if p.prior.is_fixed else np.nan for p in self.noise_parameters]
+        )
+        self._noise_gather = self._owned("noise")
+
+    def _owned(self, kind: str) -> tuple[np.ndarray, np.ndarray]:
+        """(theta columns, owner indices) of the slots of one kind."""
+        slots = self._slots
+        return (
+            np.array([j for j, (k, _, _) in enumerate(slots) if k == kind], dtype=np.intp),
+            np.array([i for k, i, _ in slots if k == kind], dtype=np.intp),
         )
 
     @property
@@ -275,6 +305,11 @@ class SystemModel:
             "instruments": [i.canonical() for i in self.instruments],
             "trend": self.trend,
             "noise": self.noise,
+            **(
+                {"noise_parameters": [p.canonical() for p in self.noise_parameters]}
+                if self.noise_parameters
+                else {}
+            ),
             "linear": "marginalized, flat",
             "data_sha256": h.hexdigest(),
         }
@@ -290,8 +325,10 @@ class SystemModel:
 
     def orbit_arrays(self, theta: np.ndarray) -> dict[str, np.ndarray]:
         """Physical parameters as matrices: ``period``, ``tc``, ``tp`` (minus the
-        epoch), ``ecc``, ``omega``, ``K`` of shape (n_sets, n_companions) and ``jitter``
-        of shape (n_sets, n_instruments), in the order of the model's lists."""
+        epoch), ``ecc``, ``omega``, ``K`` of shape (n_sets, n_companions), ``jitter``
+        of shape (n_sets, n_instruments) and ``noise`` (the noise model's own
+        parameters) of shape (n_sets, n_noise_parameters), in the order of the model's
+        lists."""
         theta = np.atleast_2d(np.asarray(theta, float))
         h = self._matrix(theta, "h")
         k = self._matrix(theta, "k")
@@ -304,14 +341,18 @@ class SystemModel:
         jit = np.empty((theta.shape[0], len(self.instruments)))
         jit[:] = self._jit_fill
         jit[:, self._jit_gather[1]] = theta[:, self._jit_gather[0]]
+        noise = np.empty((theta.shape[0], len(self.noise_parameters)))
+        noise[:] = self._noise_fill
+        noise[:, self._noise_gather[1]] = theta[:, self._noise_gather[0]]
         return {"period": P, "tc": tc, "tp": tp, "ecc": e, "omega": omega,
-                "K": self._matrix(theta, "K"), "jitter": jit}  # fmt: skip
+                "K": self._matrix(theta, "K"), "jitter": jit, "noise": noise}  # fmt: skip
 
     def to_physical(self, theta: np.ndarray) -> dict[str, np.ndarray]:
         """Physical parameters of each row of ``theta`` (shape (n_sets, ndim)).
 
         Keys: ``<label>.period``, ``.tc``, ``.tp`` (both minus the epoch), ``.ecc``,
-        ``.omega`` (radians, [0, 2 pi)), ``.K``, and ``jitter.<instrument>``. Rows with
+        ``.omega`` (radians, [0, 2 pi)), ``.K``, ``jitter.<instrument>`` and
+        ``noise.<name>``. Rows with
         e >= 1 give e >= 1 here; :meth:`log_prior` marks them invalid.
         """
         return self.as_dict(self.orbit_arrays(theta))
@@ -324,6 +365,8 @@ class SystemModel:
                 out[f"{c.label}.{f}"] = arr[f][:, ci]
         for ii, inst in enumerate(self.instruments):
             out[f"jitter.{inst.name}"] = arr["jitter"][:, ii]
+        for ni, par in enumerate(self.noise_parameters):
+            out[f"noise.{par.name}"] = arr["noise"][:, ni]
         return out
 
     def from_physical(self, values: dict[str, float | np.ndarray]) -> np.ndarray:
@@ -334,6 +377,9 @@ class SystemModel:
         for j, (kind, i, f) in enumerate(self._slots):
             if kind == "instrument":
                 theta[:, j] = values[f"jitter.{self.instruments[i].name}"]
+                continue
+            if kind == "noise":
+                theta[:, j] = values[f"noise.{f}"]
                 continue
             L = self.companions[i].label
             e = np.asarray(values.get(f"{L}.ecc", 0.0), float)
@@ -357,7 +403,8 @@ class SystemModel:
         ``u`` has shape (n_sets, ndim) or (ndim,). Period: P = ppf(u), coordinate ln P;
         tc: ppf(u) minus the epoch; the pair (sqrt(e) cos omega, sqrt(e) sin omega) from
         two cube coordinates, e = ppf of the eccentricity prior and omega = 2 pi u
-        (uniform, as in :meth:`log_prior`); K and jitter: ppf(u). Uniform points give
+        (uniform, as in :meth:`log_prior`); K, jitter and the noise model's own
+        parameters: ppf(u). Uniform points give
         draws of the prior that :meth:`log_prior` states.
         """
         u = np.asarray(u, dtype=float)
@@ -369,6 +416,9 @@ class SystemModel:
         for j, (kind, i, f) in enumerate(self._slots):
             if kind == "instrument":
                 theta[:, j] = self.instruments[i].jitter.ppf(u[:, j])
+                continue
+            if kind == "noise":
+                theta[:, j] = self.noise_parameters[i].prior.ppf(u[:, j])
                 continue
             c = self.companions[i]
             if f == "ln_period":
@@ -400,6 +450,9 @@ class SystemModel:
         for inst in self.instruments:
             value = inst.jitter.value if inst.jitter.is_fixed else inst.start_jitter
             out[f"jitter.{inst.name}"] = float(value)
+        for par in self.noise_parameters:
+            value = par.prior.value if par.prior.is_fixed else par.start
+            out[f"noise.{par.name}"] = float(value)
         return out
 
     def start_theta(self) -> np.ndarray:
@@ -411,9 +464,10 @@ class SystemModel:
     def _prior_plan(self):
         """Group the priors by kind so each kind is evaluated in one numpy pass.
 
-        Values are the columns of V = [period | tc (data time) | ecc | K | jitter]
-        (companions, then instruments); returns (kinds, jacobian columns) where kinds
-        maps a kind to its column indices and parameters.
+        Values are the columns of V = [period | tc (data time) | ecc | K | jitter |
+        noise] (companions, instruments, the noise model's parameters); returns
+        (kinds, jacobian columns) where kinds maps a kind to its column indices and
+        parameters.
         """
         nc = len(self.companions)
         entries = []  # (column in V, prior)
@@ -429,6 +483,10 @@ class SystemModel:
         for ii, inst in enumerate(self.instruments):
             if not inst.jitter.is_fixed:
                 entries.append((4 * nc + ii, inst.jitter))
+        ni = len(self.instruments)
+        for pi, par in enumerate(self.noise_parameters):
+            if not par.prior.is_fixed:
+                entries.append((4 * nc + ni + pi, par.prior))
         groups: dict[str, list] = {"uniform": [], "loguniform": [], "normal": [], "other": []}
         for col, prior in entries:
             kind = prior.kind if prior.kind in groups else "other"
@@ -473,7 +531,14 @@ class SystemModel:
             self._plan = self._prior_plan()
         plan, jac = self._plan
         V = np.concatenate(
-            [arr["period"], arr["tc"] + self.data.epoch, arr["ecc"], arr["K"], arr["jitter"]],
+            [
+                arr["period"],
+                arr["tc"] + self.data.epoch,
+                arr["ecc"],
+                arr["K"],
+                arr["jitter"],
+                arr["noise"],
+            ],
             axis=1,
         )
         n = V.shape[0]
@@ -523,6 +588,10 @@ class SystemModel:
                 (f"{c.label}.K [m/s]", c.K.describe()),
             ]
         rows += [(f"jitter.{i.name} [m/s]", i.jitter.describe()) for i in self.instruments]
+        rows += [
+            (f"noise.{p.name}" + (f" [{p.unit}]" if p.unit else ""), p.prior.describe())
+            for p in self.noise_parameters
+        ]
         rows += [(n, "flat (marginalized analytically)") for n in self.linear_names]
         return rows
 

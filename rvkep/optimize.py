@@ -127,6 +127,10 @@ def _bounds(model: SystemModel) -> list[tuple[float, float]]:
             lo, hi = model.instruments[i].jitter.bounds
             out.append((max(lo, 0.0), hi if np.isfinite(hi) else None))
             continue
+        if kind == "noise":
+            lo, hi = model.noise_parameters[i].prior.bounds
+            out.append((lo if np.isfinite(lo) else None, hi if np.isfinite(hi) else None))
+            continue
         c = model.companions[i]
         if f == "ln_period":
             lo, hi = c.period.bounds
@@ -532,6 +536,7 @@ def _rivals(period: float, logl: float, trials) -> list[dict]:
 
 def _phys_keys(model: SystemModel) -> set[str]:
     keys = {f"jitter.{i.name}" for i in model.instruments}
+    keys |= {f"noise.{p.name}" for p in model.noise_parameters}
     for c in model.companions:
         keys |= {f"{c.label}.{f}" for f in ("period", "tc", "ecc", "omega", "K")}
     return keys
@@ -574,7 +579,10 @@ def _recentre(result: FitResult, label: str | None) -> FitResult:
     instruments = [
         replace(i, start_jitter=max(p[f"jitter.{i.name}"], 1e-3)) for i in model.instruments
     ]
-    new_model = replace(model.with_companions(comps), instruments=instruments)
+    noise = [replace(q, start=p[f"noise.{q.name}"]) for q in model.noise_parameters]
+    new_model = replace(
+        model.with_companions(comps), instruments=instruments, noise_parameters=noise
+    )
     theta = new_model.from_physical(
         {
             **{k: v for k, v in p.items()},

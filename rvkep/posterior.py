@@ -31,7 +31,8 @@ class PosteriorSamples:
     """Named columns of posterior samples (one row per sample).
 
     Columns: ``<label>.period`` [d], ``.K`` [m/s], ``.ecc``, ``.omega_deg``, ``.tp``,
-    ``.tc`` [data time], ``jitter.<inst>``, ``offset.<inst>`` [m/s], ``trend.slope``
+    ``.tc`` [data time], ``jitter.<inst>``, ``noise.<name>`` (the noise model's own
+    parameters), ``offset.<inst>`` [m/s], ``trend.slope``
     [m/s/yr], ``trend.curvature`` [m/s/yr^2], ``log_posterior``; plus any derived
     columns added later.
     """
@@ -67,6 +68,8 @@ class PosteriorSamples:
             cols[f"{L}.tc"] = phys[f"{L}.tc"] + epoch
         for inst in model.instruments:
             cols[f"jitter.{inst.name}"] = phys[f"jitter.{inst.name}"]
+        for par in model.noise_parameters:
+            cols[f"noise.{par.name}"] = phys[f"noise.{par.name}"]
         lin = LogPosterior(model).linear_parameters(flat, rng=rng)
         for j, name in enumerate(model.linear_names):
             cols[name] = lin[:, j]

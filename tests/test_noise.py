@@ -79,3 +79,61 @@ def test_a_new_noise_model_is_one_class_and_one_registration(monkeypatch):
     _, d_white = white.evaluate(fit.theta[None, :])
     expected = white(fit.theta[None, :])[0] + 0.75 * 0.5 * d_white["chi2"][0] - 0.5 * n * np.log(4)
     assert doubled(fit.theta[None, :])[0] == pytest.approx(expected, rel=1e-12)
+
+
+class ScaledNoise(WhiteNoise):
+    """A model that owns one parameter: every variance times scale^2."""
+
+    name = "scaled"
+
+    def parameters(self, data):
+        from rvkep.noise import NoiseParameter
+        from rvkep.priors import Uniform
+
+        return [NoiseParameter("scale", Uniform(0.5, 4.0), 1.0, "", "error scale")]
+
+    def effective_variance(self, model, phys, rows):
+        s = np.asarray(phys["noise.scale"])[rows]
+        return s[:, None] ** 2 * super().effective_variance(model, phys, rows)
+
+    def fast_loglike(self, model, arrays, rows, linear):
+        return None
+
+
+def test_a_noise_model_owns_parameters_like_any_other(monkeypatch):
+    """Its parameter joins the sampled vector with its prior, bounds, start value, unit
+    cube map and posterior column; nothing outside its own file names it."""
+    from dataclasses import replace
+
+    from rvkep.data import RVData
+    from rvkep.model import default_instrument
+    from rvkep.optimize import fit as best_fit
+    from rvkep.posterior import PosteriorSamples
+    from rvkep.priors import Fixed
+
+    monkeypatch.setitem(noise.NOISE_MODELS, "scaled", "test_noise:ScaledNoise")
+    d = one_planet()
+    # the file's errors are a third of the scatter: the fitted scale must find 3
+    small = RVData(d.time, d.rv, d.err / 3.0, d.instrument)
+    base = planet_model(d).model
+    inst = [replace(default_instrument(small, i.name), jitter=Fixed(0.0)) for i in base.instruments]
+    model = replace(base, data=small, noise="scaled", noise_parameters=None, instruments=inst)
+    assert model.names[-1] == "noise.scale" and model.ndim == base.ndim  # jitter out, scale in
+    assert "noise_parameters" in model.canonical()
+    assert ("noise.scale", "uniform(0.5, 4)") in model.describe_priors()
+    theta = model.start_theta()
+    assert theta[-1] == 1.0
+    post = LogPosterior(model)
+    lp = model.log_prior(np.vstack([theta, theta]))
+    bad = theta.copy()
+    bad[-1] = 5.0  # outside its prior
+    assert np.isneginf(post(bad[None, :])[0]) and np.isfinite(lp).all()
+    unit = np.full((3, model.ndim), 0.5)
+    unit[:, -1] = [0.0, 0.5, 1.0]
+    assert model.prior_transform(unit)[:, -1] == pytest.approx([0.5, 2.25, 4.0])
+    best = best_fit(model, [theta])
+    assert best.params["noise.scale"] == pytest.approx(3.0, rel=0.3)
+    samples = PosteriorSamples.from_chain(model, np.vstack([best.theta] * 4))
+    assert np.all(samples["noise.scale"] == best.params["noise.scale"])
+    with pytest.raises(ValueError, match="noise model 'scaled' has parameters scale, got none"):
+        replace(model, noise_parameters=[])

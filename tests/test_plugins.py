@@ -25,8 +25,13 @@ def test_noise_model_contract(name, fit):
 
     noise = get_noise_model(name)
     assert noise.name == name
-    model = replace(fit.model, noise=name)
-    phys = model.to_physical(fit.theta[None, :])
+    model = replace(fit.model, noise=name, noise_parameters=None)  # its own parameters
+    start = {**fit.model.to_physical(fit.theta[None, :]),
+             **{f"noise.{p.name}": p.start for p in model.noise_parameters}}  # fmt: skip
+    theta = model.from_physical(start)
+    assert model.ndim == fit.model.ndim + len(model.noise_parameters)
+    assert np.isfinite(model.log_prior(theta)[0])  # the start values lie inside the priors
+    phys = model.to_physical(theta)
     rows = np.array([0])
     var = noise.effective_variance(model, phys, rows)
     assert var.shape == (1, model.t.size) and np.all(var > 0)
@@ -39,9 +44,9 @@ def test_noise_model_contract(name, fit):
         assert det["beta"].shape == (1, model.n_linear) and det["chol"].shape[1:] == (
             model.n_linear, model.n_linear)  # fmt: skip
         values[linear] = logL[0]
-        fast = noise.fast_loglike(model, model.orbit_arrays(fit.theta[None, :]), rows, linear)
+        fast = noise.fast_loglike(model, model.orbit_arrays(theta), rows, linear)
         if fast is not None:  # the compiled path scores the orbits' residuals the same
-            general = LogPosterior(model, linear, include_prior=False).evaluate(fit.theta)[0]
+            general = LogPosterior(model, linear, include_prior=False).evaluate(theta)[0]
             assert fast[0] == pytest.approx(general[0], rel=1e-10)
     assert values["marginalize"] != values["profile"]
 

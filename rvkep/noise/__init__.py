@@ -11,9 +11,15 @@ from __future__ import annotations
 
 import importlib
 
-from rvkep.noise.base import NoiseModel
+from rvkep.noise.base import NoiseModel, NoiseParameter
 
-__all__ = ["NoiseModel", "NOISE_MODELS", "get_noise_model", "available_noise_models"]
+__all__ = [
+    "NoiseModel",
+    "NoiseParameter",
+    "NOISE_MODELS",
+    "get_noise_model",
+    "available_noise_models",
+]
 
 #: name -> "module:class"
 NOISE_MODELS = {

@@ -11,16 +11,41 @@ through its own covariance C:
     ln L_prof = -1/2 [r^T C^-1 r - b^T A^-1 b] - 1/2 ln|C| - n/2 ln(2 pi),
     ln L_marg = ln L_prof - 1/2 ln|A| + m/2 ln(2 pi)
 
-(common practice, no source; Bayesian linear regression). Its parameters (today the
-per-instrument jitters, which the instruments' priors describe) are read from the
-physical parameter columns by name.
+(common practice, no source; Bayesian linear regression).
+
+Parameters: every noise model reads the per-instrument jitters (``jitter.<instrument>``,
+which the instruments' priors describe) and may own parameters of its own
+(:meth:`NoiseModel.parameters`: names, default priors and start values, e.g. a
+Gaussian process's amplitude and timescales). The system model puts those in the
+sampled vector as ``noise.<name>``, applies their priors, bounds and start values like
+any other parameter, and hands them back in the physical columns and, as a matrix
+(n_sets, n_parameters) in the order of :meth:`parameters`, in ``arrays["noise"]``.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
-__all__ = ["NoiseModel"]
+from rvkep.priors import Prior
+
+__all__ = ["NoiseModel", "NoiseParameter"]
+
+
+@dataclass(frozen=True)
+class NoiseParameter:
+    """One parameter a noise model owns: its short ``name`` (the column is
+    ``noise.<name>``), prior, start value, unit and a few words of meaning."""
+
+    name: str
+    prior: Prior
+    start: float
+    unit: str = ""
+    meaning: str = ""
+
+    def canonical(self) -> dict:
+        return {"name": self.name, "prior": self.prior.to_dict()}
 
 
 class NoiseModel:
@@ -29,9 +54,16 @@ class NoiseModel:
     #: The name a model file, the registry and checkpoint keys use.
     name = "base"
 
+    def parameters(self, data) -> list[NoiseParameter]:
+        """The parameters this noise model owns, with default priors and start values
+        for ``data`` (an :class:`~rvkep.data.RVData`); none by default."""
+        return []
+
     def parameter_names(self, model) -> list[str]:
-        """Names of the physical parameters this noise model reads."""
-        raise NotImplementedError
+        """Names of the physical parameters this noise model reads: the jitters and
+        its own ``noise.<name>`` parameters."""
+        own = [f"noise.{p.name}" for p in model.noise_parameters]
+        return [f"jitter.{i.name}" for i in model.instruments] + own
 
     def effective_variance(self, model, phys: dict, rows: np.ndarray) -> np.ndarray:
         """Each point's variance, (n_rows, n_points): the diagonal of the covariance

@@ -63,9 +63,6 @@ class WhiteNoise(NoiseModel):
 
     name = "white"
 
-    def parameter_names(self, model) -> list[str]:
-        return [f"jitter.{i.name}" for i in model.instruments]
-
     def effective_variance(self, model, phys: dict, rows: np.ndarray) -> np.ndarray:
         jit = np.stack([np.asarray(phys[f"jitter.{i.name}"])[rows] for i in model.instruments],
                        axis=1)  # fmt: skip
