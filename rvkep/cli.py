@@ -194,6 +194,15 @@ def _add_trend_arg(p: argparse.ArgumentParser, auto: bool) -> None:
         )  # fmt: skip
 
 
+def _add_noise_arg(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--noise", default=None, metavar="white|gp",
+        help="noise model: white (independent errors plus a jitter per instrument; the "
+        "default) or gp (stellar activity as a quasi-periodic Gaussian process shared by "
+        "the instruments, beside their jitters); default: the model file's [noise], else white",
+    )  # fmt: skip
+
+
 def _analyze_options(args: argparse.Namespace, out: str):
     from rvkep.pipeline import AnalyzeOptions
 
@@ -219,6 +228,7 @@ def _analyze_options(args: argparse.Namespace, out: str):
         fig_format=args.format,
         max_steps=args.max_steps,
         bin_days=getattr(args, "bin", None),
+        noise=getattr(args, "noise", None),
     )
 
 
@@ -281,6 +291,7 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
     )
     _add_search_args(p)
     _add_trend_arg(p, auto=True)
+    _add_noise_arg(p)
     p.add_argument("--max-steps", type=int, default=None, help="cap on sampler steps")
 
 
@@ -374,6 +385,7 @@ def _add_sample(sub) -> None:
     p.add_argument("--out", required=True, metavar="DIR")
     p.add_argument("--seed", type=int, default=None, help="default: the model file's, else 0")
     p.add_argument("--max-steps", type=int, default=None, help="default: the model file's")
+    _add_noise_arg(p)
     p.add_argument("--quiet", action="store_true")
     p.add_argument("--format", default="png", choices=("png", "pdf"))
     p.set_defaults(run=_run_sample)

@@ -22,8 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from rvkep.kepler import rv_rows
-from rvkep.model import SystemModel
+from rvkep.model import SystemModel, keplerian_velocity
 from rvkep.noise.base import NoiseModel
 from rvkep.noise.white import WhiteNoise, linear_solve
 
@@ -33,34 +32,6 @@ __all__ = [
     "LogPosterior",
     "linear_solve",
 ]
-
-
-def keplerian_velocity(
-    model: SystemModel, phys: dict, rows: np.ndarray | None = None, t: np.ndarray | None = None
-) -> np.ndarray:
-    """Sum of the companions' Keplerian curves, (n_rows, n_times).
-
-    At the data times by default, or at ``t`` (minus the reference epoch, like
-    ``model.t``).
-    """
-    if rows is None:
-        rows = np.arange(next(iter(phys.values())).shape[0]) if phys else np.arange(1)
-    t = model.t if t is None else np.asarray(t, float)
-    out = np.zeros((rows.size, t.size))
-    for c in model.companions:
-        L = c.label
-        P = phys[f"{L}.period"][rows]
-        w = phys[f"{L}.omega"][rows]
-        out += rv_rows(
-            t,
-            phys[f"{L}.tp"][rows],
-            2.0 * np.pi / P,
-            phys[f"{L}.ecc"][rows],
-            np.cos(w),
-            np.sin(w),
-            phys[f"{L}.K"][rows],
-        )
-    return out
 
 
 class LogPosterior:

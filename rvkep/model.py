@@ -53,6 +53,7 @@ import numpy as np
 from rvkep import defaults
 from rvkep.data import RVData
 from rvkep.defaults import DEFAULT_MAX_ECC
+from rvkep.kepler import rv_rows
 from rvkep.orbit import conjunction_mean_anomaly
 from rvkep.physics import StarProperties
 from rvkep.priors import Fixed, Prior, Uniform
@@ -65,6 +66,7 @@ __all__ = [
     "DEFAULT_MAX_ECC",
     "default_companion",
     "default_instrument",
+    "keplerian_velocity",
 ]
 
 LABELS = "bcdefghijklmnopqrstuvwxyz"
@@ -254,6 +256,10 @@ class SystemModel:
             [p.prior.value if p.prior.is_fixed else np.nan for p in self.noise_parameters]
         )
         self._noise_gather = self._owned("noise")
+        self._noise_domain = (
+            np.array([p.domain[0] for p in self.noise_parameters], dtype=float),
+            np.array([p.domain[1] for p in self.noise_parameters], dtype=float),
+        )
 
     def _owned(self, kind: str) -> tuple[np.ndarray, np.ndarray]:
         """(theta columns, owner indices) of the slots of one kind."""
@@ -522,9 +528,9 @@ class SystemModel:
         """Log prior density in the sampled coordinates, (n_sets,); -inf when invalid.
 
         Includes the Jacobian of ln P; the sqrt(e) coordinates have a constant
-        Jacobian (dropped). Rows with e >= 1, K < 0 or a negative jitter are invalid
-        whatever the priors say. ``arrays`` (from :meth:`orbit_arrays`) saves
-        recomputing them.
+        Jacobian (dropped). Rows with e >= 1, K < 0, a negative jitter or a noise
+        parameter outside its domain are invalid whatever the priors say. ``arrays``
+        (from :meth:`orbit_arrays`) saves recomputing them.
         """
         arr = self.orbit_arrays(theta) if arrays is None else arrays
         if self._plan is None:
@@ -546,6 +552,9 @@ class SystemModel:
             (arr["ecc"] < 1.0).all(axis=1)
             & (arr["K"] >= 0).all(axis=1)
             & (arr["jitter"] >= 0).all(axis=1)
+            & (
+                (arr["noise"] >= self._noise_domain[0]) & (arr["noise"] <= self._noise_domain[1])
+            ).all(axis=1)
         )
         lp = np.zeros(n)
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
@@ -594,6 +603,34 @@ class SystemModel:
         ]
         rows += [(n, "flat (marginalized analytically)") for n in self.linear_names]
         return rows
+
+
+def keplerian_velocity(
+    model: SystemModel, phys: dict, rows: np.ndarray | None = None, t: np.ndarray | None = None
+) -> np.ndarray:
+    """Sum of the companions' Keplerian curves, (n_rows, n_times).
+
+    At the data times by default, or at ``t`` (minus the reference epoch, like
+    ``model.t``).
+    """
+    if rows is None:
+        rows = np.arange(next(iter(phys.values())).shape[0]) if phys else np.arange(1)
+    t = model.t if t is None else np.asarray(t, float)
+    out = np.zeros((rows.size, t.size))
+    for c in model.companions:
+        L = c.label
+        P = phys[f"{L}.period"][rows]
+        w = phys[f"{L}.omega"][rows]
+        out += rv_rows(
+            t,
+            phys[f"{L}.tp"][rows],
+            2.0 * np.pi / P,
+            phys[f"{L}.ecc"][rows],
+            np.cos(w),
+            np.sin(w),
+            phys[f"{L}.K"][rows],
+        )
+    return out
 
 
 _E_CAP = 1.0 - 1e-12  # e >= 1 rows are refused by the prior; keep their tp finite

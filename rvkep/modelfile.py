@@ -28,6 +28,10 @@ It is data, read with :mod:`tomllib`, never executed. Every key is optional exce
     omega_deg = 50         # start only; the prior on omega is uniform
     # circular = true      # e fixed at 0
 
+    [noise]                # optional: correlated stellar activity (default white)
+    kind = "gp"
+    rotation_period = { start = 24, prior = "normal", mean = 24, sd = 3 }   # days
+
     [sampling]
     walkers = 32
     max_steps = 20000
@@ -37,7 +41,9 @@ A parameter is a number (a start value with the default prior) or a table with
 ``start`` and a prior: ``prior`` is one of ``uniform`` / ``loguniform`` (``min``,
 ``max``), ``normal`` (``mean``, ``sd``), ``truncnormal`` (``mean``, ``sd``, optional
 ``min``, ``max``), ``beta`` (``a``, ``b``) or ``fixed`` (``value``). Times are in the
-data's time system. Errors name the file, the key and the problem.
+data's time system. ``[noise]`` names the noise model (``kind``: ``white`` or ``gp``,
+see :mod:`rvkep.noise`) and takes that model's own parameters with the same syntax.
+Errors name the file, the key and the problem.
 """
 
 from __future__ import annotations
@@ -61,7 +67,7 @@ else:  # pragma: no cover
 
 __all__ = ["ModelSpec", "CompanionSpec", "read_model_file", "parse_model"]
 
-_TOP = {"star", "data", "trend", "instruments", "companions", "sampling"}
+_TOP = {"star", "data", "trend", "instruments", "companions", "noise", "sampling"}
 _STAR = {"name", "mass", "mass_err", "radius", "radius_err", "teff", "teff_err"}
 _DATA = {"files", "kms"}
 _TREND = {"degree"}
@@ -109,6 +115,8 @@ class ModelSpec:
     jitter: dict[str, Prior] = field(default_factory=dict)
     companions: list[CompanionSpec] = field(default_factory=list)
     sampling: dict = field(default_factory=dict)
+    noise: str | None = None  # None: not given (white unless the command line says)
+    noise_parameters: dict[str, tuple] = field(default_factory=dict)  # name: (prior, start)
 
     def instruments_for(self, data: RVData) -> list[Instrument]:
         unknown = sorted(set(self.jitter) - set(data.instruments))
@@ -119,10 +127,45 @@ class ModelSpec:
             )
         return [default_instrument(data, name, self.jitter.get(name)) for name in data.instruments]
 
-    def base_model(self, data: RVData) -> SystemModel:
-        """The model without companions (instruments, trend, star)."""
+    def noise_parameters_for(self, data: RVData, kind: str) -> list:
+        """The noise model's parameters for ``data`` with this file's priors and starts
+        in place of the defaults."""
+        from dataclasses import replace
+
+        from rvkep.noise import get_noise_model
+
+        if self.noise_parameters and kind != (self.noise or "white"):
+            raise ModelFileError(f"{self.path}: noise: sets parameters of the {self.noise} "
+                                 f"noise model, but the {kind} model was asked for")  # fmt: skip
+        out = []
+        for par in get_noise_model(kind).parameters(data):
+            prior, start = self.noise_parameters.get(par.name, (None, None))
+            if prior is None and start is not None:
+                prior = par.prior
+            if prior is not None:
+                lo, hi = prior.bounds
+                d_lo, d_hi = par.domain
+                if lo < d_lo or hi > d_hi:
+                    raise ModelFileError(
+                        f"{self.path}: noise.{par.name}: the prior {prior.describe()} reaches "
+                        f"outside [{d_lo:g}, {d_hi:g}]"
+                    )
+                start = start if start is not None else par.start
+                if prior.is_fixed:
+                    start = prior.value
+                elif not lo <= start <= hi:
+                    start = float(prior.ppf(0.5))
+                par = replace(par, prior=prior, start=float(start))
+            out.append(par)
+        return out
+
+    def base_model(self, data: RVData, noise: str | None = None) -> SystemModel:
+        """The model without companions (instruments, trend, star, noise model;
+        ``noise`` overrides the file's kind)."""
         trend = self.trend if self.trend is not None else 0
-        return SystemModel(data, [], self.instruments_for(data), trend, self.star)
+        kind = noise or self.noise or "white"
+        return SystemModel(data, [], self.instruments_for(data), trend, self.star, noise=kind,
+                           noise_parameters=self.noise_parameters_for(data, kind))  # fmt: skip
 
 
 def _where(path, *keys):
@@ -279,6 +322,7 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
         if "ecc" in c.start and not 0 <= c.start["ecc"] < 1:
             raise ModelFileError(f"{where}.ecc: start must be in [0, 1), got {c.start['ecc']:g}")
         spec.companions.append(c)
+    _read_noise(doc.get("noise", {}), spec, path)
     sampling = doc.get("sampling", {})
     _check_keys(sampling, _SAMPLING, _where(path, "sampling"))
     for key, value in sampling.items():
@@ -294,6 +338,27 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
             )
         spec.sampling[key] = v
     return spec
+
+
+def _read_noise(table, spec: ModelSpec, path: str) -> None:
+    """The ``[noise]`` table: ``kind`` and the noise model's own parameters."""
+    from rvkep.noise import NOISE_MODELS, get_noise_model
+
+    if not isinstance(table, dict):
+        raise ModelFileError(f"{_where(path, 'noise')}: must be a table")
+    if not table:
+        return
+    kind = table.get("kind", "white")
+    if kind not in NOISE_MODELS:
+        raise ModelFileError(f"{_where(path, 'noise', 'kind')}: must be one of "
+                             f"{', '.join(NOISE_MODELS)}, got {kind!r}")  # fmt: skip
+    names = list(get_noise_model(kind).parameter_keys)
+    _check_keys(table, {"kind", *names}, _where(path, "noise"))
+    spec.noise = kind
+    for name in names:
+        if name in table:
+            # a bare number is a start value with the default prior
+            spec.noise_parameters[name] = _parameter(table[name], _where(path, "noise", name))
 
 
 def read_model_file(path: str | Path) -> ModelSpec:

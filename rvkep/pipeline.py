@@ -60,6 +60,7 @@ class AnalyzeOptions:
     max_steps: int | None = None
     figures: bool = True
     bin_days: float | None = None  # average each instrument's points in bins this wide
+    noise: str | None = None  # noise model (rvkep.noise); None: the model file's, else white
 
 
 def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
@@ -133,12 +134,10 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
         return search_result, fit, comparison, f"model file: {len(spec.companions)} companion(s)"
     if opts.planets is not None:
         fits = list(search_result.fits)
-        from rvkep.periodogram import periodogram
-        from rvkep.search import candidate_periods, residual_velocities
+        from rvkep.search import candidate_periods, residual_periodogram
 
         while len(fits) <= opts.planets:  # the search stopped early: add the best peaks
-            resid, dy = residual_velocities(fits[-1])
-            pg = periodogram(data.time, resid, dy, data.instrument, search_result.frequency)
+            pg = residual_periodogram(fits[-1], search_result.frequency, "residuals")
             fits.append(fit_companions(data, [candidate_periods(pg, data.time, period_range)],
                                        base=base, period_range=period_range,
                                        previous=fits[-1]))  # fmt: skip
@@ -267,6 +266,13 @@ def validate_options(opts: AnalyzeOptions) -> None:
     if not (isinstance(opts.fap, (int, float)) and 0 < opts.fap < 1):
         raise OptionError(f"--fap must lie between 0 and 1, got {opts.fap!r}")
     finite("--bin", opts.bin_days, positive=True)
+    if opts.noise is not None:
+        from rvkep.noise import NOISE_MODELS
+
+        if opts.noise not in NOISE_MODELS:
+            raise OptionError(
+                f"--noise must be one of {', '.join(NOISE_MODELS)}, got {opts.noise!r}"
+            )
     finite("--min-period", opts.min_period, positive=True)
     finite("--max-period", opts.max_period, positive=True)
     for name in ("min_period", "max_period"):
@@ -388,7 +394,16 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
     each, and the choice between them (see the module text)."""
     from rvkep.model import SystemModel
 
-    base = spec.base_model(data) if spec else SystemModel(data, [])
+    base = (
+        spec.base_model(data, opts.noise)
+        if spec
+        else SystemModel(data, [], noise=opts.noise or "white")
+    )
+    base = base.noise_model.initial(base)  # start values of its own parameters
+    if base.noise_parameters:
+        _say(
+            opts, f"noise model: {base.noise} ({', '.join(p.name for p in base.noise_parameters)})"
+        )
     try:
         trend = parse_trend(opts.trend)
     except ValueError as exc:

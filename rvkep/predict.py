@@ -12,7 +12,10 @@ kinds of curve are returned:
 * ``measured`` (when an instrument is named): ``total`` plus that instrument's
   offset, plus a Gaussian draw with variance jitter^2 + err^2 (the instrument's jitter
   of that posterior draw and its typical error, by default the median error of its
-  points): the posterior predictive distribution of a new measurement.
+  points): the posterior predictive distribution of a new measurement. With a
+  correlated-noise model (stellar activity, :mod:`rvkep.noise.gp`) its amplitude
+  ``noise.amplitude`` is folded in too: the activity at a new time is not predicted
+  from the data here, its whole variance is added (an interval on the safe side).
 
 The trend is a polynomial in years from the data's reference epoch, as in the model.
 Times are in the data's own time system.
@@ -151,6 +154,9 @@ def predict(
             raise ValueError(f"unknown instrument {instrument!r}; known: {', '.join(known)}")
         offset = np.asarray(columns[f"offset.{instrument}"], float)[idx, None]
         jitter = np.asarray(columns.get(f"jitter.{instrument}", np.zeros(n_all)), float)[idx, None]
-        sd = np.sqrt(jitter**2 + float(typical_error) ** 2)
+        var = jitter**2 + float(typical_error) ** 2
+        if "noise.amplitude" in columns:  # a correlated-noise model's signal, unpredicted
+            var = var + np.asarray(columns["noise.amplitude"], float)[idx, None] ** 2
+        sd = np.sqrt(var)
         curves["measured"] = total + offset + sd * rng.standard_normal(total.shape)
     return Prediction(t, curves, instrument)

@@ -101,6 +101,19 @@ class Results:
         return [i.name for i in self.fit.model.instruments]
 
     @property
+    def noise_kind(self) -> str:
+        """The noise model's name (``white`` for runs saved before it was recorded)."""
+        if self.fit is None and self.saved is not None:
+            return str(self.saved.get("noise", {}).get("kind", "white"))
+        return str(self.fit.model.noise)
+
+    @property
+    def noise_names(self) -> list[str]:
+        """The noise model's own parameters (columns ``noise.<name>``)."""
+        prefix = "noise."
+        return [k.removeprefix(prefix) for k in self.posterior.names if k.startswith(prefix)]
+
+    @property
     def trend_degree(self) -> int:
         if self.fit is None and self.saved is not None:
             return int(self.saved["trend"]["degree"])
@@ -284,6 +297,10 @@ class Results:
             "planets": planets,
             "instruments": instruments,
             "trend": trend,
+            "noise": {
+                "kind": model.noise,
+                **{name: self.estimate(f"noise.{name}") for name in self.noise_names},
+            },
             "search": search,
             "sampler": sampler,
             "star": {
@@ -350,6 +367,9 @@ class Results:
             lines.append(
                 f"  {i['name']}: offset = {text_estimate(i['offset_mps'])} m/s, jitter = {text_estimate(i['jitter_mps'])} m/s"
             )
+        if self.noise_names:
+            lines.append(f"  noise: {self.noise_kind}; " + ", ".join(
+                f"{k} = {text_estimate(d['noise'][k])}" for k in self.noise_names))  # fmt: skip
         if not d["sampler"]["converged"]:
             lines.append("  WARNING: the chain did not converge; results are preliminary")
         return "\n".join(lines)

@@ -2,7 +2,9 @@
 
 At each step the residuals of the current joint best fit (all companions found so far,
 per-instrument offsets and jitters, trend) are searched with a generalized Lomb-Scargle
-periodogram weighted by err^2 + jitter^2. If the highest peak's Baluev false-alarm
+periodogram weighted by err^2 + jitter^2 (with a correlated-noise model, the power is
+measured through its covariance, so activity the noise model explains is not proposed
+as a companion: :func:`residual_periodogram`). If the highest peak's Baluev false-alarm
 probability is below the threshold (default 0.1%), the top few peaks, the highest
 peak's alias family (+- the window's daily and yearly peaks) and its harmonic family
 (2P, 3P, P/2) are tried as the next companion's period in a joint Keplerian best fit
@@ -36,7 +38,14 @@ from rvkep.periodogram import (
     spectral_window,
 )
 
-__all__ = ["Candidate", "SearchResult", "search", "residual_velocities", "candidate_periods"]
+__all__ = [
+    "Candidate",
+    "SearchResult",
+    "search",
+    "residual_velocities",
+    "residual_periodogram",
+    "candidate_periods",
+]
 
 
 @dataclass
@@ -175,6 +184,23 @@ def residual_velocities(fit_result: FitResult) -> tuple[np.ndarray, np.ndarray]:
     return fit_result.residuals, dy
 
 
+def residual_periodogram(fit_result: FitResult, frequency: np.ndarray, label: str) -> Periodogram:
+    """The periodogram of a fit's residuals on ``frequency``: the generalized
+    Lomb-Scargle periodogram weighted by the effective errors, or, for a noise model
+    with correlated noise, the power measured through its covariance (the noise
+    model's ``periodogram_power``; Baluev false-alarm levels over the same grid)."""
+    data = fit_result.model.data
+    resid, dy = residual_velocities(fit_result)
+    pg = periodogram(data.time, resid, dy, data.instrument, frequency, label=label)
+    model = fit_result.model
+    phys = model.to_physical(np.asarray(fit_result.theta, float)[None, :])
+    power = model.noise_model.periodogram_power(model, phys, resid, frequency)
+    if power is not None:
+        pg.power = np.asarray(power, float)
+        pg.label = f"{label} (through the {model.noise} noise model)"
+    return pg
+
+
 def search(
     data: RVData,
     min_period: float | None = None,
@@ -208,7 +234,7 @@ def search(
     period_range = (1.0 / freq[-1], 1.0 / freq[0])
     window = spectral_window(data.time, freq)
     base = base if base is not None else SystemModel(data, [], trend=trend)
-    current = fit(base.with_companions([]))
+    current = fit(base.noise_model.initial(base.with_companions([])))
     fits = [current]
     candidates: list[Candidate] = []
     periodograms: list[Periodogram] = []
@@ -218,9 +244,8 @@ def search(
         if np.all(np.isfinite(col)) and np.ptp(col) > 0
     }
     for _ in range(max_signals + 1):
-        resid, dy = residual_velocities(current)
         label = "velocities" if not candidates else f"residuals after {len(candidates)} signal(s)"
-        pg = periodogram(data.time, resid, dy, data.instrument, freq, label=label)
+        pg = residual_periodogram(current, freq, label)
         periodograms.append(pg)
         period, power, fap = pg.best()
         significant = fap < fap_threshold and len(candidates) < max_signals

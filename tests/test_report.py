@@ -7,11 +7,14 @@ from rvkep.report.rows import parameter_rows
 
 
 class Stub:
-    """The part of a Results the renderers read: one companion, two instruments and a
-    quadratic trend (every estimate 1 +- 0.1)."""
+    """The part of a Results the renderers read: one companion, two instruments, a
+    correlated-noise model with two parameters and a quadratic trend (every estimate
+    1 +- 0.1)."""
 
     labels = ["b"]
     instrument_names = ["north", "south"]
+    noise_kind = "gp"
+    noise_names = ["amplitude", "rotation_period"]
     trend_degree = 2
     posterior = {"b.period", "b.K", "b.ecc"}
 
@@ -31,6 +34,7 @@ def test_every_table_shows_every_row():
     assert keys == [("b", "period_d"), ("b", "K_mps"), ("b", "ecc"),
                     ("north", "offset_mps"), ("north", "jitter_mps"),
                     ("south", "offset_mps"), ("south", "jitter_mps"),
+                    ("noise (gp)", "amplitude"), ("noise (gp)", "rotation_period"),
                     ("trend", "slope_mps_per_yr"), ("trend", "curvature_mps_per_yr2")]  # fmt: skip
     csv_lines = render(Stub(), "csv").strip().splitlines()[2:]
     latex_lines = [ln for ln in render(Stub(), "latex").splitlines() if ln.endswith("\\\\")][1:]

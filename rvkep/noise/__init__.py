@@ -24,6 +24,7 @@ __all__ = [
 #: name -> "module:class"
 NOISE_MODELS = {
     "white": "rvkep.noise.white:WhiteNoise",
+    "gp": "rvkep.noise.gp:QuasiPeriodicGP",
 }
 
 _INSTANCES: dict[str, NoiseModel] = {}

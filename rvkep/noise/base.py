@@ -43,6 +43,9 @@ class NoiseParameter:
     start: float
     unit: str = ""
     meaning: str = ""
+    #: the values that make sense at all (a prior reaching outside is refused, and a
+    #: value outside is invalid whatever the prior says)
+    domain: tuple[float, float] = (-np.inf, np.inf)
 
     def canonical(self) -> dict:
         return {"name": self.name, "prior": self.prior.to_dict()}
@@ -53,6 +56,9 @@ class NoiseModel:
 
     #: The name a model file, the registry and checkpoint keys use.
     name = "base"
+    #: The names of the parameters it owns, in the order of :meth:`parameters` (a
+    #: model file's ``[noise]`` table is checked against them before any data is read).
+    parameter_keys: tuple[str, ...] = ()
 
     def parameters(self, data) -> list[NoiseParameter]:
         """The parameters this noise model owns, with default priors and start values
@@ -80,4 +86,22 @@ class NoiseModel:
     def fast_loglike(self, model, arrays: dict, rows, linear: str) -> np.ndarray | None:
         """ln L of the given rows in one compiled pass, or None where there is none
         (the caller then uses :meth:`loglike`)."""
+        return None
+
+    def initial(self, model):
+        """The model with start values of this noise model's parameters chosen from the
+        data (called once before the first fit); unchanged by default."""
+        return model
+
+    def periodogram_power(self, model, phys: dict, resid: np.ndarray, frequency: np.ndarray):
+        """Power of a sinusoid added to the residuals ``resid`` (n,) of one parameter
+        set, measured through this model's covariance, on ``frequency``; None where
+        the generalized Lomb-Scargle periodogram of the residuals with the effective
+        errors is the right measure (diagonal covariance)."""
+        return None
+
+    def conditional_mean(self, model, phys: dict, resid: np.ndarray, t=None):
+        """(mean, standard deviation) of a correlated signal given the residuals of one
+        parameter set, at ``t`` (minus the epoch; default the data times); None when
+        the model has no correlated part."""
         return None

@@ -52,6 +52,16 @@ def render(results) -> str:
             f"| {i['name']} | {i['n_points']} | {text_estimate(i['offset_mps'])} | {text_estimate(i['jitter_mps'])} | {i['rms_residual_mps']:.2f} |"
         )
     lines.append("")
+    noise = d.get("noise", {"kind": "white"})
+    if noise["kind"] == "white":
+        lines += ["Noise: white (each point's error and its instrument's jitter, independent).",
+                  ""]  # fmt: skip
+    else:
+        lines += [f"Noise: {noise['kind']} (a correlated stellar-activity signal shared by the "
+                  "instruments, beside their jitters).", "",
+                  "| noise parameter | estimate |", "|---|---|"]  # fmt: skip
+        lines += [f"| {k} | {text_estimate(v)} |" for k, v in noise.items() if k != "kind"]
+        lines.append("")
     if d["trend"]["degree"]:
         lines += [f"Trend: {text_estimate(d['trend']['slope_mps_per_yr'])} m/s/yr", ""]
     if d["search"]:

@@ -50,9 +50,19 @@ class ParameterRow:
     unit_plain: str
 
 
+#: units (LaTeX) and symbols of the noise models' own parameters in the tables
+_NOISE_UNITS = {
+    "amplitude": ("m s$^{-1}$", r"$A_\mathrm{act}$ (activity amplitude)"),
+    "rotation_period": ("d", r"$P_\mathrm{rot}$ (rotation period)"),
+    "evolution_time": ("d", r"$\ell$ (evolution time)"),
+    "harmonic_fraction": ("", r"$f$ (harmonic fraction)"),
+}
+
+
 def parameter_rows(results) -> list[ParameterRow]:
     """Every companion's elements and derived quantities, every instrument's offset and
-    jitter, and the trend terms, in the order the tables show them."""
+    jitter, the noise model's own parameters and the trend terms, in the order the
+    tables show them."""
     rows = []
     for L in results.labels:
         for key, col, unit, sym in PLANET_COLUMNS:
@@ -64,6 +74,11 @@ def parameter_rows(results) -> list[ParameterRow]:
                               ("jitter_mps", "jitter", r"$\sigma_\mathrm{jit}$")):  # fmt: skip
             est = results.estimate(f"{col}.{name}")
             rows.append(ParameterRow(name, key, sym, est, "m s$^{-1}$", "m/s"))
+    for name in results.noise_names:
+        unit, symbol = _NOISE_UNITS.get(name, ("", name.replace("_", " ")))
+        est = results.estimate(f"noise.{name}")
+        rows.append(ParameterRow(f"noise ({results.noise_kind})", name, symbol, est, unit,
+                                 plain_unit(unit)))  # fmt: skip
     degree = results.trend_degree
     if degree >= 1:
         rows.append(ParameterRow("trend", "slope_mps_per_yr", r"$\dot\gamma$",
