@@ -145,6 +145,9 @@ class ModelSpec:
             if prior is not None:
                 lo, hi = prior.bounds
                 d_lo, d_hi = par.domain
+                # all but a negligible part (1e-9 each side) of the prior must make sense
+                if not prior.is_fixed:
+                    lo, hi = float(prior.ppf(1e-9)), float(prior.ppf(1.0 - 1e-9))
                 if lo < d_lo or hi > d_hi:
                     raise ModelFileError(
                         f"{self.path}: noise.{par.name}: the prior {prior.describe()} reaches "

@@ -470,6 +470,9 @@ def _grid_by_period(data, resid, weights, design, periods, n_starts, keep):
 
 def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitResult:
     model = current.model
+    # a noise model's own parameters (a Gaussian process's timescales) are held at the
+    # current fit's values while the candidates are screened, then freed for the winner
+    screen = _hold_noise(model, current.params)
     label = LABELS[len(model.companions)]
     # residuals of the current fit (linear part free again), weights from its jitters
     phys = model.to_physical(current.theta[None, :])
@@ -496,7 +499,7 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
             starts.append(user)
         for s in starts:
             new = _new_companion(data, label, P, s, period_range, spec)
-            trial = model.with_companions([*model.companions, new])
+            trial = screen.with_companions([*model.companions, new])
             start = current.params.copy()
             for c in model.companions:  # previous companions: their best values
                 start[f"{c.label}.tc"] -= data.epoch
@@ -511,12 +514,35 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
             # periods through the one-period-wide tc prior (a factor 1/P)
             if best is None or result.log_likelihood > best.log_likelihood:
                 best = result
+    if screen is not model:
+        free = replace(best.model, noise_parameters=model.noise_parameters)
+        best = fit(free, [free.from_physical(_relative_tc(best.model, best.params))[0]])
     # re-centre a default tc prior on the result (one phase mode around the best fit)
     out = _recentre(best, label if spec is None else None)
     out.extra["period_trials"] = trials
     out.extra["ambiguous_with"] = _rivals(out.params[f"{label}.period"], out.log_likelihood,
                                           trials)  # fmt: skip
     return out
+
+
+def _hold_noise(model: SystemModel, params: dict) -> SystemModel:
+    """``model`` with its noise model's own parameters fixed at ``params`` (the same
+    object when it owns none)."""
+    from rvkep.priors import Fixed
+
+    if not any(not p.prior.is_fixed for p in model.noise_parameters):
+        return model
+    held = [replace(p, prior=Fixed(float(params[f"noise.{p.name}"])))
+            for p in model.noise_parameters]  # fmt: skip
+    return replace(model, noise_parameters=held)
+
+
+def _relative_tc(model: SystemModel, params: dict) -> dict:
+    """Physical values with each companion's tc minus the epoch (as the model's
+    coordinates take them) from a fit's ``params`` (absolute tc)."""
+    epoch = model.data.epoch
+    return {**params, **{f"{c.label}.tc": params[f"{c.label}.tc"] - epoch
+                         for c in model.companions}}  # fmt: skip
 
 
 def _rivals(period: float, logl: float, trials) -> list[dict]:
@@ -583,10 +609,5 @@ def _recentre(result: FitResult, label: str | None) -> FitResult:
     new_model = replace(
         model.with_companions(comps), instruments=instruments, noise_parameters=noise
     )
-    theta = new_model.from_physical(
-        {
-            **{k: v for k, v in p.items()},
-            **{f"{c.label}.tc": p[f"{c.label}.tc"] - model.data.epoch for c in comps},
-        }
-    )[0]
+    theta = new_model.from_physical(_relative_tc(new_model, p))[0]
     return _result(new_model, theta, result.success, result.message)

@@ -51,7 +51,7 @@ from rvkep import defaults
 from rvkep.noise.base import NoiseModel, NoiseParameter
 from rvkep.priors import LogUniform, Uniform
 
-__all__ = ["QuasiPeriodicGP", "kernel_terms", "covariance"]
+__all__ = ["QuasiPeriodicGP", "covariance"]
 
 _LOG_2PI = float(np.log(2.0 * np.pi))
 #: rotation periods tried for the start value, per decade
@@ -60,39 +60,46 @@ _GRID_PER_DECADE = 12
 _FREQ_BLOCK = 2048
 
 
-def _celerite():
+def _driver():
     try:
-        import celerite2
-        from celerite2 import terms
+        from celerite2 import driver
     except ImportError:  # pragma: no cover - celerite2 is a dependency
         from rvkep.errors import OptionError
 
         raise OptionError(
             "the Gaussian-process noise model needs celerite2: pip install celerite2"
         ) from None
-    return celerite2, terms
+    return driver
 
 
-def _oscillator(n: int, amplitude2: float, period: float, evolution: float):
-    """(sigma, w0, Q) of the oscillator at the n-th multiple of the rotation frequency."""
-    x = 2.0 * np.pi * n * evolution / period
-    Q = 0.5 * np.sqrt(1.0 + x * x)
-    w0 = 2.0 * np.pi * n / (period * np.sqrt(1.0 - 1.0 / (4.0 * Q * Q)))
-    return np.sqrt(max(amplitude2, 0.0)), w0, Q
+class _Factor:
+    """The celerite factorization of C = activity + diag(white) at times ``t`` (sorted),
+    through celerite2's compiled driver (Foreman-Mackey et al. 2017, sec. 5): the two
+    oscillators of the module text as celerite coefficients
+    k(tau) = sum_n exp(-c_n tau) [a_n cos(d_n tau) + b_n sin(d_n tau)] with
+    a_n = A^2 share_n, c_n = 1 / L, d_n = 2 pi n / P, b_n = a_n / (d_n L)."""
 
+    def __init__(self, t, amplitude, rotation_period, evolution_time, harmonic_fraction, white):
+        drv = _driver()
+        f = min(max(harmonic_fraction, 0.0), 1.0)
+        a = amplitude * amplitude * np.array([1.0 - f, f])
+        d = 2.0 * np.pi * np.array([1.0, 2.0]) / rotation_period
+        b = a / (d * evolution_time)
+        c = np.full(2, 1.0 / evolution_time)
+        n = t.size
+        diag, U, V = drv.get_celerite_matrices(np.empty(0), a, b, d, t, white, np.empty(n),
+                                               np.empty((n, 4)), np.empty((n, 4)))  # fmt: skip
+        self.t, self.c, self.U = t, np.repeat(c, 2), U
+        self.d, self.W = drv.factor(t, self.c, diag, U, V, diag, V.copy())
+        self.log_det = float(np.sum(np.log(self.d)))
+        self._drv = drv
 
-def kernel_terms(amplitude: float, rotation_period: float, evolution_time: float,
-                 harmonic_fraction: float):  # fmt: skip
-    """The celerite2 kernel of the module text (a sum of two oscillator terms)."""
-    _, terms = _celerite()
-    a2 = amplitude * amplitude
-    f = min(max(harmonic_fraction, 0.0), 1.0)
-    out = None
-    for n, share in ((1, 1.0 - f), (2, f)):
-        sigma, w0, Q = _oscillator(n, a2 * share, rotation_period, evolution_time)
-        term = terms.SHOTerm(sigma=sigma, w0=w0, Q=Q)
-        out = term if out is None else out + term
-    return out
+    def solve(self, Y: np.ndarray) -> np.ndarray:
+        """C^-1 Y for Y of shape (n, k)."""
+        z = np.array(Y, dtype=np.float64, order="C", copy=True)
+        z = self._drv.solve_lower(self.t, self.c, self.U, self.W, z, z)
+        z /= self.d[:, None]
+        return self._drv.solve_upper(self.t, self.c, self.U, self.W, z, z)
 
 
 def covariance(tau: np.ndarray, amplitude: float, rotation_period: float,
@@ -172,20 +179,12 @@ class QuasiPeriodicGP(NoiseModel):
 
     # -- covariance -----------------------------------------------------------
 
-    def _row(self, model, phys: dict, row: int):
-        """(kernel, white variance per point) of one parameter set."""
-        g = {k: float(np.asarray(phys[f"noise.{k}"])[row]) for k in
-             ("amplitude", "rotation_period", "evolution_time", "harmonic_fraction")}  # fmt: skip
+    def _factor(self, model, phys: dict, row: int) -> _Factor:
+        """The factorized covariance of one parameter set."""
+        g = {k: float(np.asarray(phys[f"noise.{k}"])[row]) for k in self.parameter_keys}
         jit = np.array([float(np.asarray(phys[f"jitter.{i.name}"])[row])
                         for i in model.instruments])  # fmt: skip
-        return kernel_terms(**g), model.err2 + (jit * jit)[model.inst_index], g
-
-    def _process(self, model, phys: dict, row: int):
-        celerite2, _ = _celerite()
-        kernel, white, g = self._row(model, phys, row)
-        gp = celerite2.GaussianProcess(kernel, mean=0.0)
-        gp.compute(model.t, diag=white, check_sorted=False)
-        return gp, white, g
+        return _Factor(model.t, **g, white=model.err2 + (jit * jit)[model.inst_index])
 
     def effective_variance(self, model, phys: dict, rows: np.ndarray) -> np.ndarray:
         """The diagonal of C: err^2 + jitter^2 + amplitude^2."""
@@ -201,14 +200,13 @@ class QuasiPeriodicGP(NoiseModel):
         beta = np.full((rows.size, m), np.nan)
         chol = np.tile(np.eye(m), (rows.size, 1, 1))
         chi2 = np.full(rows.size, np.inf)
-        zeros = np.zeros(n)
         for i, row in enumerate(rows):
             try:
-                gp, _, _ = self._process(model, phys, int(row))
-                logdet_C = -2.0 * gp.log_likelihood(zeros) - n * _LOG_2PI
-                Z = gp.apply_inverse(np.column_stack([resid[i], X]))
+                C = self._factor(model, phys, int(row))
+                Z = C.solve(np.column_stack([resid[i], X]))
             except (np.linalg.LinAlgError, ValueError, FloatingPointError):
                 continue
+            logdet_C = C.log_det
             b = X.T @ Z[:, 0]
             A = X.T @ Z[:, 1:]
             try:
@@ -233,10 +231,10 @@ class QuasiPeriodicGP(NoiseModel):
         it removes, so the activity the process explains is not proposed again as a
         companion. The generalized Lomb-Scargle power (Zechmeister & Kuerster 2009)
         is the special case of a diagonal C."""
-        gp, _, _ = self._process(model, phys, 0)
+        C = self._factor(model, phys, 0)
         X = model.design
         r = np.asarray(resid, float)
-        Z = gp.apply_inverse(np.column_stack([r, X]))
+        Z = C.solve(np.column_stack([r, X]))
         A = X.T @ Z[:, 1:]
         A_inv = np.linalg.inv(0.5 * (A + A.T))
         b = X.T @ Z[:, 0]
@@ -248,7 +246,7 @@ class QuasiPeriodicGP(NoiseModel):
             arg = 2.0 * np.pi * np.outer(t, f)
             B = np.empty((t.size, 2 * f.size))
             B[:, 0::2], B[:, 1::2] = np.cos(arg), np.sin(arg)
-            W = gp.apply_inverse(B).reshape(t.size, f.size, 2)
+            W = C.solve(B).reshape(t.size, f.size, 2)
             Bk = B.reshape(t.size, f.size, 2)
             G = np.einsum("nfi,nfj->fij", Bk, W)
             h = np.einsum("nfi,n->fi", W, r)
@@ -267,8 +265,15 @@ class QuasiPeriodicGP(NoiseModel):
                          t: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:  # fmt: skip
         """(mean, standard deviation) of the activity signal given the residuals of
         one parameter set (offsets and trend already removed), at ``t`` (minus the
-        epoch; default the data times)."""
-        gp, _, _ = self._process(model, phys, 0)
-        mu, var = gp.predict(np.asarray(resid, float), t=None if t is None else np.asarray(t),
-                             return_var=True)  # fmt: skip
-        return mu, np.sqrt(np.maximum(var, 0.0))
+        epoch; default the data times): k*^T C^-1 r and k(0) - k*^T C^-1 k*."""
+        C = self._factor(model, phys, 0)
+        g = {k: float(np.asarray(phys[f"noise.{k}"])[0]) for k in self.parameter_keys}
+        t_out = model.t if t is None else np.asarray(t, float)
+        out = []
+        for s in range(0, t_out.size, _FREQ_BLOCK):  # blocks bound the (n, block) arrays
+            K = covariance(model.t[:, None] - t_out[None, s : s + _FREQ_BLOCK], **g)
+            CK = C.solve(K)
+            mean = CK.T @ np.asarray(resid, float)
+            var = g["amplitude"] ** 2 - np.einsum("nk,nk->k", K, CK)
+            out.append((mean, np.sqrt(np.maximum(var, 0.0))))
+        return np.concatenate([m for m, _ in out]), np.concatenate([v for _, v in out])
