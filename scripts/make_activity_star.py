@@ -41,8 +41,9 @@ def quasi_periodic(tau, amplitude, period, decay, w):
     )
 
 
-def make(seed: int = SEED) -> dict:
-    """(times, velocities, errors, instruments) and the truth, from ``seed``."""
+def make(seed: int = SEED, activity_scale: float = 1.0, planet_scale: float = 1.0) -> dict:
+    """(times, velocities, errors, instruments) and the truth, from ``seed``; the
+    activity and the planet scaled by the given factors (0: none)."""
     rng = np.random.default_rng(seed)
     n = sum(i["n_points"] for i in INSTRUMENTS)
     nights = np.sort(rng.choice(np.arange(0.0, 240.0), size=n, replace=False))
@@ -57,20 +58,21 @@ def make(seed: int = SEED) -> dict:
     p = PLANET
     planet = radial_velocity(t, p["period_d"], p["tp_bjd"], p["ecc"], np.radians(p["omega_deg"]),
                              p["K_mps"])  # fmt: skip
-    rv = planet + activity
+    rv = planet_scale * planet + activity_scale * activity
     err = np.empty(n)
     for i in INSTRUMENTS:
         m = inst == i["name"]
         err[m] = i["err_mps"] * rng.uniform(0.8, 1.2, m.sum())
         rv[m] += i["offset_mps"] + rng.normal(0, np.hypot(err[m], i["jitter_mps"]))
     truth = {"star": STAR, "planet": PLANET, "activity": ACTIVITY, "instruments": INSTRUMENTS,
-             "seed": seed, "made_by": "scripts/make_activity_star.py"}  # fmt: skip
+             "seed": seed, "activity_scale": activity_scale, "planet_scale": planet_scale,
+             "made_by": "scripts/make_activity_star.py"}  # fmt: skip
     return {"time": t, "rv": rv, "err": err, "instrument": inst, "truth": truth}
 
 
-def write(out: Path, seed: int = SEED) -> list[Path]:
+def write(out: Path, seed: int = SEED, **scales) -> list[Path]:
     """Write one file per spectrograph and truth.json into ``out``."""
-    star = make(seed)
+    star = make(seed, **scales)
     out.mkdir(parents=True, exist_ok=True)
     files = []
     for i in INSTRUMENTS:
@@ -90,6 +92,9 @@ if __name__ == "__main__":
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("out")
     ap.add_argument("--seed", type=int, default=SEED)
+    ap.add_argument("--activity", type=float, default=1.0, help="activity scale (0: none)")
+    ap.add_argument("--planet", type=float, default=1.0, help="planet scale (0: none)")
     args = ap.parse_args()
-    for f in write(Path(args.out), args.seed):
+    for f in write(Path(args.out), args.seed, activity_scale=args.activity,
+                   planet_scale=args.planet):  # fmt: skip
         print(f)
