@@ -203,6 +203,22 @@ def _add_noise_arg(p: argparse.ArgumentParser) -> None:
     )  # fmt: skip
 
 
+def _columns(text: str) -> tuple[str, ...]:
+    names = tuple(c.strip() for c in text.split(","))
+    if not all(names):
+        raise argparse.ArgumentTypeError(f"need column names separated by commas, got {text!r}")
+    return names
+
+
+def _add_decorrelate_arg(p: argparse.ArgumentParser) -> None:
+    p.add_argument(
+        "--decorrelate", type=_columns, default=(), metavar="COL[,COL...]",
+        help="decorrelate the velocities against these extra data columns (activity "
+        "indicators such as fwhm,bis): one linear coefficient per column and instrument, "
+        "marginalized like the offsets",
+    )  # fmt: skip
+
+
 def _analyze_options(args: argparse.Namespace, out: str):
     from rvkep.pipeline import AnalyzeOptions
 
@@ -229,6 +245,7 @@ def _analyze_options(args: argparse.Namespace, out: str):
         max_steps=args.max_steps,
         bin_days=getattr(args, "bin", None),
         noise=getattr(args, "noise", None),
+        decorrelate=getattr(args, "decorrelate", ()),
     )
 
 
@@ -292,6 +309,7 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
     _add_search_args(p)
     _add_trend_arg(p, auto=True)
     _add_noise_arg(p)
+    _add_decorrelate_arg(p)
     p.add_argument("--max-steps", type=int, default=None, help="cap on sampler steps")
 
 
@@ -386,6 +404,7 @@ def _add_sample(sub) -> None:
     p.add_argument("--seed", type=int, default=None, help="default: the model file's, else 0")
     p.add_argument("--max-steps", type=int, default=None, help="default: the model file's")
     _add_noise_arg(p)
+    _add_decorrelate_arg(p)
     p.add_argument("--quiet", action="store_true")
     p.add_argument("--format", default="png", choices=("png", "pdf"))
     p.set_defaults(run=_run_sample)

@@ -29,11 +29,12 @@ def trend_curve(params: dict, t: np.ndarray, epoch: float) -> np.ndarray:
 
 def _zero_points(results) -> tuple[dict, np.ndarray, np.ndarray]:
     """The best fit's offsets by instrument, each point's own offset, and each point's
-    offset plus the trend (what is removed from the data before drawing)."""
+    offset plus the trend and any decorrelation terms (what is removed from the data
+    before drawing)."""
     data, p = results.data, results.fit.params
     offsets = {i.name: p[f"offset.{i.name}"] for i in results.fit.model.instruments}
     own = np.array([offsets[n] for n in data.instrument])
-    return offsets, own, own + trend_curve(p, data.time, data.epoch)
+    return offsets, own, results.fit.model.linear_part(p)
 
 
 def _draws(results, n: int, rng):

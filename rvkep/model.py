@@ -23,8 +23,11 @@ coordinate                     physical parameter and implied prior
                                noise; see :mod:`rvkep.noise`), prior as stated
 =============================  =================================================
 
-Offsets (one per instrument) and the trend coefficients (slope in m/s/yr, curvature in
-m/s/yr^2, about the reference epoch) are linear parameters with flat priors; the
+Offsets (one per instrument), the trend coefficients (slope in m/s/yr, curvature in
+m/s/yr^2, about the reference epoch) and, when asked, one decorrelation coefficient per
+activity indicator and instrument (``decorr.<indicator>.<instrument>``, m/s per unit
+of the indicator, about the instrument's median indicator value) are linear parameters
+with flat priors; the
 likelihood marginalizes (or, for best fits, solves for) them analytically, so they are
 not in the sampled vector. Their posterior is drawn afterwards from the conditional
 Gaussian of each sample.
@@ -137,6 +140,11 @@ class SystemModel:
     noise_parameters : list of NoiseParameter, optional
         The noise model's own parameters with their priors and starts (its defaults
         for the data when omitted).
+    decorrelate : tuple of str
+        Extra data columns (activity indicators such as ``fwhm``) the velocities are
+        decorrelated against: a linear coefficient per indicator and instrument,
+        handled like the offsets. An instrument whose points all lack the column gets
+        no coefficient.
     """
 
     data: RVData
@@ -146,6 +154,7 @@ class SystemModel:
     star: StarProperties | None = None
     noise: str = "white"  # a name in rvkep.noise.NOISE_MODELS
     noise_parameters: list | None = None  # of rvkep.noise.NoiseParameter
+    decorrelate: tuple[str, ...] = ()
 
     def __post_init__(self) -> None:
         own = self.noise_model.parameters(self.data)
@@ -177,6 +186,7 @@ class SystemModel:
         self.instruments = sorted(self.instruments, key=lambda i: order[i.name])
         if self.trend not in (0, 1, 2):
             raise ValueError(f"trend degree must be 0, 1 or 2, got {self.trend!r}")
+        self.decorrelate = tuple(self.decorrelate)
         self._build()
 
     # -- layout ---------------------------------------------------------------
@@ -194,6 +204,8 @@ class SystemModel:
         self.err2 = d.err**2
         cols = [(self.inst_index == k).astype(float) for k in range(n_inst)]
         cols += [(self.t / YEAR) ** p for p in range(1, self.trend + 1)]
+        self._decorr = self._decorrelation_columns()
+        cols += [c for _, _, c in self._decorr]
         self.design = np.column_stack(cols)
         names: list[str] = []
         slots: list[tuple[str, int, str]] = []  # (kind, owner index, field)
@@ -261,6 +273,37 @@ class SystemModel:
             np.array([p.domain[1] for p in self.noise_parameters], dtype=float),
         )
 
+    def _decorrelation_columns(self) -> list[tuple[str, str, np.ndarray]]:
+        """(indicator, instrument, design column) for each decorrelation coefficient:
+        the indicator minus its median over the instrument's points, zero elsewhere."""
+        d = self.data
+        out = []
+        for name in self.decorrelate:
+            if name not in d.extra:
+                have = ", ".join(d.extra) or "none"
+                raise ValueError(f"cannot decorrelate against {name!r}: no such column in "
+                                 f"the data (extra columns: {have})")  # fmt: skip
+            x = d.extra[name]
+            for k, inst in enumerate(self.instruments):
+                m = self.inst_index == k
+                finite = np.isfinite(x[m])
+                if not finite.any():
+                    continue  # this instrument does not measure it
+                if not finite.all():
+                    lack = int((~finite).sum())
+                    raise ValueError(f"cannot decorrelate against {name!r}: {lack} of "
+                                     f"{int(m.sum())} points of {inst.name} lack it")  # fmt: skip
+                if np.ptp(x[m]) == 0:
+                    raise ValueError(f"cannot decorrelate against {name!r}: it is constant over "
+                                     f"the points of {inst.name}")  # fmt: skip
+                col = np.zeros(self.t.size)
+                col[m] = x[m] - np.median(x[m])
+                out.append((name, inst.name, col))
+        if self.decorrelate and not out:
+            raise ValueError(f"cannot decorrelate against {', '.join(self.decorrelate)}: no "
+                             "instrument measures it")  # fmt: skip
+        return out
+
     def _owned(self, kind: str) -> tuple[np.ndarray, np.ndarray]:
         """(theta columns, owner indices) of the slots of one kind."""
         slots = self._slots
@@ -288,7 +331,15 @@ class SystemModel:
     @property
     def linear_names(self) -> list[str]:
         out = [f"offset.{i.name}" for i in self.instruments]
-        return out + ["trend.slope", "trend.curvature"][: self.trend]
+        out += ["trend.slope", "trend.curvature"][: self.trend]
+        return out + [f"decorr.{name}.{inst}" for name, inst, _ in self._decorr]
+
+    def linear_part(self, values: dict) -> np.ndarray:
+        """Each data point's offset, trend and decorrelation terms (m/s, the data's
+        scale) from named linear values (``offset.<instrument>`` ... as
+        :attr:`linear_names`; missing trend or decorrelation terms count as zero)."""
+        beta = np.array([float(values.get(n, 0.0)) for n in self.linear_names])
+        return self.design @ beta
 
     def labels(self) -> list[str]:
         return [c.label for c in self.companions]
@@ -311,6 +362,7 @@ class SystemModel:
             "instruments": [i.canonical() for i in self.instruments],
             "trend": self.trend,
             "noise": self.noise,
+            **({"decorrelate": list(self.decorrelate)} if self.decorrelate else {}),
             **(
                 {"noise_parameters": [p.canonical() for p in self.noise_parameters]}
                 if self.noise_parameters

@@ -13,6 +13,7 @@ It is data, read with :mod:`tomllib`, never executed. Every key is optional exce
     [data]
     files = ["kestrel.txt", "osprey.csv"]   # relative to this file
     kms = false
+    decorrelate = ["fwhm"]   # optional: indicator columns to decorrelate against
 
     [trend]
     degree = 1             # 0 none, 1 linear, 2 quadratic
@@ -69,7 +70,7 @@ __all__ = ["ModelSpec", "CompanionSpec", "read_model_file", "parse_model"]
 
 _TOP = {"star", "data", "trend", "instruments", "companions", "noise", "sampling"}
 _STAR = {"name", "mass", "mass_err", "radius", "radius_err", "teff", "teff_err"}
-_DATA = {"files", "kms"}
+_DATA = {"files", "kms", "decorrelate"}
 _TREND = {"degree"}
 _INSTRUMENT = {"jitter"}
 _COMPANION = {"period", "tc", "K", "ecc", "omega_deg", "circular"}
@@ -116,6 +117,7 @@ class ModelSpec:
     companions: list[CompanionSpec] = field(default_factory=list)
     sampling: dict = field(default_factory=dict)
     noise: str | None = None  # None: not given (white unless the command line says)
+    decorrelate: tuple[str, ...] = ()  # indicator columns (the command line's add to them)
     noise_parameters: dict[str, tuple] = field(default_factory=dict)  # name: (prior, start)
 
     def instruments_for(self, data: RVData) -> list[Instrument]:
@@ -251,6 +253,11 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
     if not isinstance(kms, bool):
         raise ModelFileError(f"{_where(path, 'data', 'kms')}: must be true or false")
     spec.kms = kms
+    decorr = data.get("decorrelate", [])
+    if not isinstance(decorr, list) or not all(isinstance(c, str) and c for c in decorr):
+        raise ModelFileError(f"{_where(path, 'data', 'decorrelate')}: must be a list of "
+                             "column names")  # fmt: skip
+    spec.decorrelate = tuple(decorr)
     trend = doc.get("trend", {})
     _check_keys(trend, _TREND, _where(path, "trend"))
     if "degree" in trend:

@@ -61,6 +61,7 @@ class AnalyzeOptions:
     figures: bool = True
     bin_days: float | None = None  # average each instrument's points in bins this wide
     noise: str | None = None  # noise model (rvkep.noise); None: the model file's, else white
+    decorrelate: tuple[str, ...] = ()  # indicator columns: a linear coefficient each
 
 
 def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
@@ -394,11 +395,18 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
     each, and the choice between them (see the module text)."""
     from rvkep.model import SystemModel
 
-    base = (
-        spec.base_model(data, opts.noise)
-        if spec
-        else SystemModel(data, [], noise=opts.noise or "white")
-    )
+    columns = tuple(dict.fromkeys([*(spec.decorrelate if spec else ()), *opts.decorrelate]))
+    try:
+        if spec:
+            base = spec.base_model(data, opts.noise)
+        else:
+            base = SystemModel(data, [], noise=opts.noise or "white")
+        base = replace(base, decorrelate=columns)
+    except ValueError as exc:
+        raise OptionError(str(exc)) from None
+    if columns:
+        n_terms = len(base.linear_names) - len(base.instruments) - base.trend
+        _say(opts, f"decorrelating against {', '.join(columns)} ({n_terms} coefficient(s))")
     base = base.noise_model.initial(base)  # start values of its own parameters
     if base.noise_parameters:
         _say(

@@ -114,6 +114,16 @@ class Results:
         return [k.removeprefix(prefix) for k in self.posterior.names if k.startswith(prefix)]
 
     @property
+    def decorrelation_terms(self) -> list[tuple[str, str]]:
+        """(indicator, instrument) of each decorrelation coefficient (``decorr.*``)."""
+        out = []
+        for k in self.posterior.names:
+            if k.startswith("decorr."):
+                ind, inst = k.removeprefix("decorr.").split(".", 1)
+                out.append((ind, inst))
+        return out
+
+    @property
     def trend_degree(self) -> int:
         if self.fit is None and self.saved is not None:
             return int(self.saved["trend"]["degree"])
@@ -297,6 +307,14 @@ class Results:
             "planets": planets,
             "instruments": instruments,
             "trend": trend,
+            "decorrelation": [
+                {
+                    "indicator": ind,
+                    "instrument": inst,
+                    "coefficient": self.estimate(f"decorr.{ind}.{inst}"),
+                }
+                for ind, inst in self.decorrelation_terms
+            ],  # fmt: skip
             "noise": {
                 "kind": model.noise,
                 **{name: self.estimate(f"noise.{name}") for name in self.noise_names},

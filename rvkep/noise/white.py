@@ -34,7 +34,7 @@ def linear_solve(model, resid: np.ndarray, w: np.ndarray):
     chol : (n_rows, m, m) lower Cholesky factor of A
     """
     X = model.design
-    if model.trend == 0:
+    if X.shape[1] == len(model.instruments):
         # offsets only: A is diagonal (one indicator column per instrument)
         A_diag = w @ X
         b = (w * resid) @ X

@@ -52,6 +52,12 @@ def render(results) -> str:
             f"| {i['name']} | {i['n_points']} | {text_estimate(i['offset_mps'])} | {text_estimate(i['jitter_mps'])} | {i['rms_residual_mps']:.2f} |"
         )
     lines.append("")
+    if d.get("decorrelation"):
+        lines += ["Decorrelation against activity indicators (m/s per unit of the indicator):",
+                  "", "| indicator | instrument | coefficient |", "|---|---|---|"]  # fmt: skip
+        lines += [f"| {c['indicator']} | {c['instrument']} | {text_estimate(c['coefficient'])} |"
+                  for c in d["decorrelation"]]  # fmt: skip
+        lines.append("")
     noise = d.get("noise", {"kind": "white"})
     if noise["kind"] == "white":
         lines += ["Noise: white (each point's error and its instrument's jitter, independent).",

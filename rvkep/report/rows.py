@@ -74,6 +74,11 @@ def parameter_rows(results) -> list[ParameterRow]:
                               ("jitter_mps", "jitter", r"$\sigma_\mathrm{jit}$")):  # fmt: skip
             est = results.estimate(f"{col}.{name}")
             rows.append(ParameterRow(name, key, sym, est, "m s$^{-1}$", "m/s"))
+    for ind, inst in getattr(results, "decorrelation_terms", []):
+        est = results.estimate(f"decorr.{ind}.{inst}")
+        symbol = rf"$\partial v / \partial$ {ind}"
+        rows.append(ParameterRow(inst, f"decorr_{ind}", symbol, est, f"m s$^{{-1}}$ per {ind} unit",
+                                 f"m/s per {ind} unit"))  # fmt: skip
     for name in results.noise_names:
         unit, symbol = _NOISE_UNITS.get(name, ("", name.replace("_", " ")))
         est = results.estimate(f"noise.{name}")
