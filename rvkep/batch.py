@@ -7,7 +7,8 @@ The target list is a CSV file with the columns
   by ``;``);
 * ``star_mass``, ``star_mass_err``: solar masses;
 * optional: ``max_planets``, ``planets``, ``model`` (a model file), ``kms`` (true/false),
-  ``trend`` (auto, 0, 1, 2; default auto).
+  ``trend`` (auto, 0, 1, 2; default auto), ``noise`` (white or gp; default the model
+  file's, else white), ``decorrelate`` (indicator columns separated by ``;``).
 
 Each target runs :func:`rvkep.pipeline.analyze` into its own folder with its own log
 file (``log.txt``); a failure (bad file, failed fit) is recorded as one line in
@@ -47,7 +48,7 @@ from rvkep.outputs import clean_temporaries, write_text
 __all__ = ["Target", "read_targets", "run_target", "run_batch", "write_summary", "SUMMARY_FIELDS"]
 
 _REQUIRED = ("name", "data", "star_mass", "star_mass_err")
-_OPTIONAL = ("max_planets", "planets", "model", "kms", "trend")
+_OPTIONAL = ("max_planets", "planets", "model", "kms", "trend", "noise", "decorrelate")
 SUMMARY_FIELDS = [
     "row", "name", "status", "n_planets", "seconds", "error", "run_kind", "converged",
     "quick", "star_mass_assumed", "label",
@@ -69,6 +70,8 @@ class Target:
     model: str | None = None
     kms: bool = False
     trend: int | str = "auto"
+    noise: str | None = None
+    decorrelate: tuple[str, ...] = ()
     line: int = 0
     problem: str = ""  # why this target cannot run (it fails alone; see read_targets)
 
@@ -209,6 +212,17 @@ def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Targe
                 raise DataError(f"{key} must be a whole number") from None
             if kw[key] < 0:
                 raise DataError(f"{key} must be 0 or more")
+    if rec.get("noise"):
+        from rvkep.noise import NOISE_MODELS
+
+        if rec["noise"] not in NOISE_MODELS:
+            raise DataError(f"noise must be one of {', '.join(NOISE_MODELS)}, got {rec['noise']!r}")
+        kw["noise"] = rec["noise"]
+    if rec.get("decorrelate"):
+        columns = tuple(c.strip() for c in rec["decorrelate"].split(";"))
+        if not all(columns):
+            raise DataError("decorrelate: column names separated by ';'")
+        kw["decorrelate"] = columns
     if rec.get("model"):
         kw["model"] = str(base / rec["model"])
     if "kms" in rec:
@@ -256,7 +270,7 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
                 star_mass=target.star_mass, star_mass_err=target.star_mass_err, kms=target.kms,
                 planets=target.planets, max_planets=target.max_planets, model_file=target.model,
                 out=str(folder), seed=_target_seed(seed, target.name), quiet=False, quick=quick,
-                trend=target.trend,
+                trend=target.trend, noise=target.noise, decorrelate=target.decorrelate,
             )  # fmt: skip
             analyze(list(target.files), opts)
         except KeyboardInterrupt:

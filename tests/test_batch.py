@@ -144,3 +144,29 @@ def test_unreachable_scheduler(tmp_path, capsys):
     )
     assert code == 2
     assert "Dask scheduler" in capsys.readouterr().err
+
+
+def test_target_list_noise_and_decorrelation_columns(tmp_path):
+    p = tmp_path / "t.csv"
+    p.write_text("name,data,star_mass,star_mass_err,noise,decorrelate\n"
+                 "x,a.txt,1,0.1,gp,fwhm;bis\ny,b.txt,1,0.1,,\nz,c.txt,1,0.1,red,\n")  # fmt: skip
+    x, y, z = read_targets(p)
+    assert (x.noise, x.decorrelate) == ("gp", ("fwhm", "bis")) and not x.problem
+    assert (y.noise, y.decorrelate) == (None, ())
+    assert "line 4: noise must be one of white, gp, got 'red'" in z.problem
+
+
+@pytest.mark.integration
+def test_batch_target_with_the_gp_noise_model(tmp_path):
+    from rvkep.batch import run_target
+
+    path = make_targets(tmp_path / "in", 1)
+    text = path.read_text().replace("max_planets\n", "max_planets,noise\n")
+    path.write_text(text.replace("star0.txt,1.0,0.05,1\n", "star0.txt,1.0,0.05,1,gp\n")
+                    .replace("broken.txt,1.0,0.05,1\n", "broken.txt,1.0,0.05,1,\n"))  # fmt: skip
+    target = read_targets(path)[0]
+    assert target.noise == "gp"
+    info = run_target(target, str(tmp_path / "out"), quick=True)
+    assert info["status"] == "done", info
+    d = json.loads((tmp_path / "out" / "star0" / "results.json").read_text())
+    assert d["noise"]["kind"] == "gp" and "rotation_period" in d["noise"]
