@@ -196,6 +196,12 @@ def _selection_notes(search_result, fit, comparison) -> list[str]:
                              for a in cand.ambiguous_with)  # fmt: skip
             notes.append(f"period of {label} is AMBIGUOUS: {cand.period:.6g} d fits best, "
                          f"but {alts} fit(s) nearly as well")  # fmt: skip
+    for label, cand in by_label.items():
+        if cand.activity and fit.model.noise == "white" and not fit.model.decorrelate:
+            cols = ",".join(cand.activity)
+            notes.append(f"the period of {label} ({cand.period:.6g} d) also peaks in {cols}: it "
+                         f"may be stellar activity; --noise gp (a correlated-noise model) or "
+                         f"--decorrelate {cols} can tell")  # fmt: skip
     chosen = next((r for r in comparison if r.get("chosen")), None)
     if chosen is not None:
         for r in comparison:
@@ -204,10 +210,27 @@ def _selection_notes(search_result, fit, comparison) -> list[str]:
                 notes.append(
                     f"a model with {r['n_companions']} companions has a BIC lower by "
                     f"{chosen['bic'] - r['bic']:.1f} but was not chosen (its last periodogram "
-                    "peak was not significant); inspect it before trusting the number"
+                    "peak was not significant)"
+                    + _near_rotation(fit, r["periods_d"])
+                    + "; inspect it before trusting the number"
                 )
                 break
     return notes
+
+
+def _near_rotation(fit, periods) -> str:
+    """', and its period X d lies near the activity's rotation period' when a noise
+    model with a rotation period has one within 10% of a period (or of half of it)."""
+    p = fit.params.get("noise.rotation_period")
+    if p is None:
+        return ""
+    for P in periods:
+        for share, what in ((1.0, "rotation period"), (0.5, "half rotation period")):
+            if abs(P / (share * p) - 1.0) < 0.1:
+                return (
+                    f", and its period {P:.4g} d lies near the activity's {what} {share * p:.4g} d"
+                )
+    return ""
 
 
 def _comparison_rows(fits, chosen: int, search_result) -> list[dict]:

@@ -99,3 +99,21 @@ def test_analyze_with_decorrelation_end_to_end(tmp_path):
     assert "decorr_fwhm" in (out / "parameters.csv").read_text()
     # a column the data lack: one line, exit 2
     assert main(["analyze", *files, "--decorrelate", "bis", "--out", str(tmp_path / "x")]) == 2
+
+
+def test_white_noise_run_names_the_remedies_when_an_indicator_flags_a_signal():
+    from rvkep.pipeline import AnalyzeOptions, choose_model
+
+    rng = np.random.default_rng(5)
+    n = 80
+    t = np.sort(rng.uniform(2459000, 2459200, n))
+    spot = np.sin(2 * np.pi * t / 13.0)  # rotation: in the velocities and in the FWHM
+    data = RVData(t, 12 * spot + rng.normal(0, 1.5, n), np.full(n, 1.5), np.full(n, "north"),
+                  extra={"fwhm": 7000 + 30 * spot + rng.normal(0, 3, n)})  # fmt: skip
+    chosen = choose_model(data, AnalyzeOptions(quiet=True, trend=0, max_planets=1))
+    assert chosen.search.significant and chosen.search.significant[0].activity == ["fwhm"]
+    assert any("also peaks in fwhm" in note and "--noise gp" in note and "--decorrelate fwhm"
+               in note for note in chosen.notes), chosen.notes  # fmt: skip
+    quiet = choose_model(data, AnalyzeOptions(quiet=True, trend=0, max_planets=1,
+                                              decorrelate=("fwhm",)))  # fmt: skip
+    assert not any("also peaks" in note for note in quiet.notes)
