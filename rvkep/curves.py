@@ -3,7 +3,8 @@
 :func:`timeseries_curves` gives the best-fit velocity curve over the data's span, its
 68% posterior band (from up to 300 posterior draws, one kernel call), the data with
 offsets and trend removed and the residuals; :func:`phase_curves` gives one companion's
-phase-folded points (the other companions, offsets and trend removed), its best-fit
+phase-folded points (the other companions, offsets, trend and any correlated activity
+signal's conditional mean removed), its best-fit
 curve over one period from conjunction, and its band, each posterior draw folded on its
 own period and conjunction (one broadcast kernel call over draws and phases).
 """
@@ -37,6 +38,24 @@ def _zero_points(results) -> tuple[dict, np.ndarray, np.ndarray]:
     return offsets, own, results.fit.model.linear_part(p)
 
 
+def _activity(results, t_grid=None):
+    """The correlated-noise model's conditional mean (and standard deviation) given the
+    best fit's residuals, at the data times and, with ``t_grid``, on that grid; None
+    when the noise model has no correlated part (white noise)."""
+    fit, data = results.fit, results.data
+    model = fit.model
+    best = model.to_physical(fit.theta[None, :])
+    resid = data.rv - model.linear_part(fit.params) - keplerian_velocity(model, best)[0]
+    at_data = model.noise_model.conditional_mean(model, best, resid)
+    if at_data is None:
+        return None
+    out = {"at_data": at_data[0], "data": resid}
+    if t_grid is not None:
+        mean, sd = model.noise_model.conditional_mean(model, best, resid, t_grid - data.epoch)
+        out.update(time=t_grid, mean=mean, band=(mean - sd, mean + sd))
+    return out
+
+
 def _draws(results, n: int, rng):
     theta = getattr(results.posterior, "theta", None)
     if theta is None or not results.fit.model.companions:
@@ -48,7 +67,11 @@ def _draws(results, n: int, rng):
 def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) -> dict:
     """Keys: ``time`` (grid), ``curve`` (best fit), ``band`` ((low, high) or None),
     ``data`` (RVData, the offsets and trend removed but each instrument's offset added
-    back for display), ``offsets`` (by instrument), ``residuals``."""
+    back for display), ``offsets`` (by instrument), ``residuals`` (minus the activity's
+    conditional mean when there is one), ``activity`` (None for white noise; else the
+    correlated signal given the best fit: ``time``, ``mean``, ``band`` (mean +- one
+    standard deviation) on the grid, ``at_data`` and ``data``: the velocities minus
+    offsets, trend and companions)."""
     data, fit = results.data, results.fit
     model, epoch = fit.model, data.epoch
     offsets, own, off = _zero_points(results)
@@ -62,8 +85,10 @@ def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) ->
         curves = keplerian_velocity(model, phys, t=ct - epoch)
         band = np.percentile(curves, _BAND, axis=0)
     shown = RVData(data.time, data.rv - off + own, data.err, data.instrument, epoch=epoch)
+    activity = _activity(results, ct)
+    residuals = fit.residuals if activity is None else fit.residuals - activity["at_data"]
     return {"time": ct, "curve": curve, "band": band, "data": shown, "offsets": offsets,
-            "residuals": fit.residuals}  # fmt: skip
+            "residuals": residuals, "activity": activity}  # fmt: skip
 
 
 def phase_curves(results, label: str, n_grid: int = 400, n_draws: int = 300, rng=0) -> dict:
@@ -78,6 +103,9 @@ def phase_curves(results, label: str, n_grid: int = 400, n_draws: int = 300, rng
     off = _zero_points(results)[2]
     others = keplerian_velocity(model, best)[0] - keplerian_velocity(single, best)[0]
     velocity = data.rv - off - others
+    activity = _activity(results)
+    if activity is not None:  # the correlated signal's conditional mean removed too
+        velocity = velocity - activity["at_data"]
     P, tc = p[f"{label}.period"], p[f"{label}.tc"]
     phase = np.mod((data.time - tc) / P, 1.0)
     grid = np.linspace(0, 1, n_grid)

@@ -32,6 +32,7 @@ INSTRUMENT_COLOURS = (
 INSTRUMENT_MARKERS = ("o", "s", "^", "D", "v", "P", "X", "h")
 MODEL_COLOUR = "#222222"
 BAND_COLOUR = "#999999"
+ACTIVITY_COLOUR = "#E69F00"  # Okabe & Ito orange: the stellar-activity signal
 
 
 def instrument_style(index: int) -> dict:
@@ -102,7 +103,8 @@ def _time_offset(t):
     return 0.0
 
 
-def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=None, fig=None):
+def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=None, fig=None,
+                    activity=None):  # fmt: skip
     """Velocities per instrument with the model and its posterior band; residuals below.
 
     Parameters
@@ -116,37 +118,48 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
         Data minus model at the data times.
     offsets : dict, optional
         Offset per instrument, subtracted from its velocities.
+    activity : dict, optional
+        A correlated signal apart from the companions (``time``, ``mean``, ``band``,
+        and ``data``, the data minus offsets, trend and companions;
+        :func:`rvkep.curves.timeseries_curves`): drawn in a panel of its own.
     """
-    fig, axes = _figure(
-        fig,
-        2 if residuals is not None else 1,
-        height_ratios=[3, 1] if residuals is not None else None,
-        figsize=(9, 5.5),
-    )
+    panels = [3] + ([1.6] if activity is not None else []) + ([1] if residuals is not None else [])
+    fig, axes = _figure(fig, len(panels), height_ratios=panels if len(panels) > 1 else None,
+                        figsize=(9, 5.5 + 1.6 * (activity is not None)))  # fmt: skip
     t0 = _time_offset(data.time)
     ax = axes[0]
     if band is not None:
         ax.fill_between(curve_t - t0, band[0], band[1], color=BAND_COLOUR, alpha=0.4, lw=0,
                         label="68% posterior band")  # fmt: skip
-    ax.plot(curve_t - t0, curve, color=MODEL_COLOUR, lw=0.8, label="model")
+    ax.plot(curve_t - t0, curve, color=MODEL_COLOUR, lw=0.8,
+            label="model" if activity is None else "companions' model")  # fmt: skip
     for k, name in enumerate(data.instruments):
         m = data.instrument == name
         off = offsets.get(name, 0.0) if offsets else 0.0
         st = instrument_style(k)
         ax.errorbar(data.time[m] - t0, data.rv[m] - off, data.err[m], ls="none", ms=4,
                     mec="white", mew=0.4, elinewidth=0.8, label=name, **st)  # fmt: skip
+        if activity is not None:
+            axes[1].errorbar(data.time[m] - t0, activity["data"][m], data.err[m], ls="none",
+                             ms=4, mec="white", mew=0.4, elinewidth=0.8, **st)  # fmt: skip
         if residuals is not None:
-            axes[1].errorbar(data.time[m] - t0, residuals[m], data.err[m], ls="none", ms=4,
-                             mec="white", mew=0.4, elinewidth=0.8, **st)  # fmt: skip
+            axes[-1].errorbar(data.time[m] - t0, residuals[m], data.err[m], ls="none", ms=4,
+                              mec="white", mew=0.4, elinewidth=0.8, **st)  # fmt: skip
     ax.set_ylabel("radial velocity [m/s]")
     ax.legend(fontsize=8, frameon=False, ncol=4, loc="upper left")
     xlabel = f"time - {t0:.0f} [d]" if t0 else "time [d]"
+    if activity is not None:
+        a_ax = axes[1]
+        lo, hi = activity["band"]
+        a_ax.fill_between(activity["time"] - t0, lo, hi, color=ACTIVITY_COLOUR, alpha=0.25, lw=0)
+        a_ax.plot(activity["time"] - t0, activity["mean"], color=ACTIVITY_COLOUR, lw=0.9,
+                  label="activity (Gaussian process) given the data, +-1 sigma")  # fmt: skip
+        a_ax.set_ylabel("minus companions [m/s]")
+        a_ax.legend(fontsize=8, frameon=False, loc="upper left")
     if residuals is not None:
-        axes[1].axhline(0, color=MODEL_COLOUR, lw=0.8)
-        axes[1].set_ylabel("O - C [m/s]")
-        axes[1].set_xlabel(xlabel)
-    else:
-        ax.set_xlabel(xlabel)
+        axes[-1].axhline(0, color=MODEL_COLOUR, lw=0.8)
+        axes[-1].set_ylabel("O - C [m/s]")
+    axes[-1].set_xlabel(xlabel)
     return fig
 
 
@@ -251,7 +264,7 @@ def timeseries_figure(results, fig=None):
 
     ts = timeseries_curves(results)
     return plot_timeseries(ts["data"], ts["time"], ts["curve"], ts["band"], ts["residuals"],
-                           ts["offsets"], fig=fig)  # fmt: skip
+                           ts["offsets"], fig=fig, activity=ts["activity"])  # fmt: skip
 
 
 def phase_figure(results, label: str, fig=None, ax=None):

@@ -471,23 +471,31 @@ def initial_ball(
     """n starting points near ``center``, all with finite log-posterior.
 
     Offsets along each coordinate are 0.1 x its curvature scale (the local posterior
-    width), redrawn until every walker is inside the prior.
+    width), reflected into the coordinate's bounds (a best fit on a bound, such as a
+    noise amplitude of zero, starts its walkers on the inside), redrawn until every
+    walker is inside the prior.
     """
-    if scale is None:
-        from rvkep.optimize import _bounds, _curvature_scales
+    from rvkep.optimize import _bounds, _curvature_scales
 
-        b = _bounds(post.model)
-        lo = np.array([x[0] if x[0] is not None else -np.inf for x in b])
-        hi = np.array([x[1] if x[1] is not None else np.inf for x in b])
+    b = _bounds(post.model)
+    lo = np.array([x[0] if x[0] is not None else -np.inf for x in b])
+    hi = np.array([x[1] if x[1] is not None else np.inf for x in b])
+    if scale is None:
         scale = _curvature_scales(post, center, lo, hi)
     if not np.isfinite(post(center[None, :])[0]):
         raise RvkepError("the sampler's starting point is outside the prior")
-    out = center + 0.1 * scale * rng.standard_normal((n, center.size))
+
+    def draw(k: int) -> np.ndarray:
+        x = center + 0.1 * scale * rng.standard_normal((k, center.size))
+        x = np.where(x < lo, 2 * lo - x, x)
+        return np.where(x > hi, 2 * hi - x, x)
+
+    out = draw(n)
     for _ in range(100):
         bad = ~np.isfinite(post(out))
         if not bad.any():
             return out
-        out[bad] = center + 0.1 * scale * rng.standard_normal((int(bad.sum()), center.size))
+        out[bad] = draw(int(bad.sum()))
     raise RvkepError("could not place the walkers inside the prior around the best fit")
 
 

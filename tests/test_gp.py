@@ -176,3 +176,34 @@ def test_command_line_refuses_an_unknown_noise_model(tmp_path, capsys):
     assert main(["analyze", str(f), "--noise", "red", "--out", str(tmp_path / "o")]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert err == ["rvkep analyze: error: --noise must be one of white, gp, got 'red'"]
+
+
+def test_figures_draw_the_activity_apart_and_remove_it_from_the_phase_plot():
+    import warnings
+
+    from rvkep.curves import phase_curves, timeseries_curves
+    from rvkep.model import SystemModel
+    from rvkep.optimize import fit_companions
+    from rvkep.plots import timeseries_figure
+    from rvkep.results import Results
+    from rvkep.sampling import UnconvergedWarning
+
+    data = one_planet()
+    base = SystemModel(data, [], noise="gp")
+    fit = fit_companions(data, [[9.4]], base=base.noise_model.initial(base))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        res = Results.from_sampling(fit.sample(seed=1, max_steps=200, check_every=100,
+                                               progress=False), quick=True)  # fmt: skip
+    ts = timeseries_curves(res, n_grid=50, n_draws=20)
+    act = ts["activity"]
+    model = fit.model
+    best = model.to_physical(fit.theta[None, :])
+    mean, _ = model.noise_model.conditional_mean(model, best, act["data"])
+    assert act["at_data"] == pytest.approx(mean) and act["mean"].shape == (50,)
+    assert ts["residuals"] == pytest.approx(fit.residuals - act["at_data"])
+    white = phase_curves(res, "b", n_draws=20)["velocity"]
+    # the phase plot's points: data minus offsets minus the activity's conditional mean
+    assert white + act["at_data"] == pytest.approx(data.rv - model.linear_part(fit.params))
+    fig = timeseries_figure(res)
+    assert len(fig.axes) == 3 and "activity" in fig.axes[1].get_legend().texts[0].get_text()

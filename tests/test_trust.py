@@ -337,9 +337,10 @@ def test_ambiguity_notes_follow_the_companion_at_that_period():
 
     from rvkep.pipeline import _selection_notes
 
-    fit = NS(model=NS(companions=[NS(label="b"), NS(label="c")]),
+    fit = NS(model=NS(companions=[NS(label="b"), NS(label="c")], noise="white", decorrelate=()),
              params={"b.period": 11.87, "c.period": 143.4})  # fmt: skip
-    found = [NS(period=143.3, ambiguous_with=[{"period_d": 1.004, "delta_ln_l": 1.7}]),
-             NS(period=11.871, ambiguous_with=[])]  # fmt: skip
+    found = [NS(period=143.3, ambiguous_with=[{"period_d": 1.004, "delta_ln_l": 1.7}],
+                activity=[]),
+             NS(period=11.871, ambiguous_with=[], activity=[])]  # fmt: skip
     notes = _selection_notes(NS(significant=found), fit, [])
     assert len(notes) == 1 and notes[0].startswith("period of c is AMBIGUOUS")
