@@ -62,6 +62,15 @@ def test_gp_recovers_the_planet_and_proposes_no_rotation_companion(active):
     assert abs(est["median"] - rot) < 3 * max(est["minus"], est["plus"]), est
     assert "gp" in (folder / "gp" / "summary.md").read_text()
     assert res.noise_kind == "gp"
+    # reloaded, it knows its noise model, and a new measurement's interval holds the
+    # activity's amplitude (unpredicted at a new time) beside jitter and error
+    from rvkep.results import Results
+
+    back = Results.load(folder / "gp")
+    assert back.noise_kind == "gp" and back.noise_names == res.noise_names
+    pred = back.predict([2460400.0], instrument="kestrel", draws=2000, rng=1).summary()
+    width = pred["measured"]["hi68"][0] - pred["measured"]["lo68"][0]
+    assert width > 2 * 0.9 * noise["amplitude"]["median"]
 
 
 def test_white_noise_takes_the_rotation_for_a_companion(active):
