@@ -51,7 +51,7 @@ def _activity(results, t_grid=None):
         return None
     out = {"at_data": at_data[0], "data": resid}
     if t_grid is not None:
-        mean, sd = model.noise_model.conditional_mean(model, best, resid, t_grid - data.epoch)
+        mean, sd = model.noise_model.conditional_mean(model, best, resid, t_grid)
         out.update(time=t_grid, mean=mean, band=(mean - sd, mean + sd))
     return out
 
@@ -78,11 +78,11 @@ def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) ->
     span = data.time[-1] - data.time[0]
     ct = np.linspace(data.time[0] - 0.03 * span, data.time[-1] + 0.03 * span, n_grid)
     best = model.to_physical(fit.theta[None, :])
-    curve = keplerian_velocity(model, best, t=ct - epoch)[0]
+    curve = keplerian_velocity(model, best, t=ct)[0]
     band = None
     phys = _draws(results, n_draws, rng)
     if phys is not None:
-        curves = keplerian_velocity(model, phys, t=ct - epoch)
+        curves = keplerian_velocity(model, phys, t=ct)
         band = np.percentile(curves, _BAND, axis=0)
     shown = RVData(data.time, data.rv - off + own, data.err, data.instrument, epoch=epoch)
     activity = _activity(results, ct)
@@ -96,7 +96,7 @@ def phase_curves(results, label: str, n_grid: int = 400, n_draws: int = 300, rng
     ``grid`` and ``curve`` (best fit over one period), ``band`` ((low, high) or None),
     ``period``."""
     data, fit = results.data, results.fit
-    model, p, epoch = fit.model, fit.params, data.epoch
+    model, p = fit.model, fit.params
     comp = next(c for c in model.companions if c.label == label)
     single = model.with_companions([comp])
     best = model.to_physical(fit.theta[None, :])
@@ -109,7 +109,7 @@ def phase_curves(results, label: str, n_grid: int = 400, n_draws: int = 300, rng
     P, tc = p[f"{label}.period"], p[f"{label}.tc"]
     phase = np.mod((data.time - tc) / P, 1.0)
     grid = np.linspace(0, 1, n_grid)
-    curve = keplerian_velocity(single, best, t=tc - epoch + grid * P)[0]
+    curve = keplerian_velocity(single, best, t=tc + grid * P)[0]
     band = None
     phys = _draws(results, n_draws, rng)
     if phys is not None:

@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from rvkep.model import SystemModel, keplerian_velocity
+from rvkep.model import SystemModel, keplerian_velocity, orbit_velocity
 from rvkep.noise.base import NoiseModel
 from rvkep.noise.white import WhiteNoise, linear_solve
 
@@ -104,7 +104,7 @@ class LogPosterior:
         details = {"rows": rows, "phys": phys}
         if rows.size == 0:
             return out, details
-        resid = model.y[None, :] - keplerian_velocity(model, phys, rows)
+        resid = model.y[None, :] - orbit_velocity(model, {k: v[rows] for k, v in arr.items()})
         with np.errstate(all="ignore"):
             logL, det = self.noise.loglike(model, phys, rows, resid, self.linear)
         value = logL + (lp[rows] if self.include_prior else 0.0)

@@ -9,7 +9,8 @@ coordinate                     physical parameter and implied prior
                                Jacobian dP/dlnP = P is added, so the default
                                log-uniform prior on P is uniform in ln P
 ``<label>.tc``                 time of conjunction (days, minus the reference
-                               epoch); prior stated on tc in the data's time
+                               epoch: the sampled coordinate only); the prior
+                               and every physical value are in the data's time
                                system. Default: uniform over one period centred
                                on the start value (one phase mode)
 ``<label>.sqrt_e_cos_omega``,  (e, omega): uniform in these two inside the unit
@@ -70,6 +71,8 @@ __all__ = [
     "default_companion",
     "default_instrument",
     "keplerian_velocity",
+    "orbit_velocity",
+    "Elements",
 ]
 
 LABELS = "bcdefghijklmnopqrstuvwxyz"
@@ -108,6 +111,40 @@ class Companion:
             "label": self.label,
             **{k: getattr(self, k).to_dict() for k in ("period", "tc", "K", "ecc")},
         }
+
+
+@dataclass(frozen=True)
+class Elements:
+    """One companion's orbital elements for many parameter sets (arrays of one shape):
+    ``period`` (d), ``tc`` and ``tp`` (conjunction and periastron, in the data's time
+    system), ``ecc``, ``omega`` (the star's argument of periastron, radians) and ``K``
+    (m/s). The one typed record of a companion's elements; :meth:`columns` turns it
+    into named columns at the edges (tables, samples, fits)."""
+
+    label: str
+    period: np.ndarray
+    tc: np.ndarray
+    tp: np.ndarray
+    ecc: np.ndarray
+    omega: np.ndarray
+    K: np.ndarray
+
+    def columns(self, omega_unit: str = "rad") -> dict[str, np.ndarray]:
+        """``<label>.period``, ``.tc``, ``.tp``, ``.ecc``, ``.K`` and ``.omega`` (radians)
+        or, with ``omega_unit="deg"``, ``.omega_deg``."""
+        L = self.label
+        omega = ({f"{L}.omega": self.omega} if omega_unit == "rad"
+                 else {f"{L}.omega_deg": np.degrees(self.omega)})  # fmt: skip
+        return {f"{L}.period": self.period, f"{L}.tc": self.tc, f"{L}.tp": self.tp,
+                f"{L}.ecc": self.ecc, **omega, f"{L}.K": self.K}  # fmt: skip
+
+    @classmethod
+    def from_columns(cls, label: str, columns) -> Elements:
+        """From named columns (``.omega`` in radians or ``.omega_deg``)."""
+        c = {k.removeprefix(f"{label}."): np.asarray(v, float) for k, v in columns.items()
+             if k.startswith(f"{label}.")}  # fmt: skip
+        omega = c["omega"] if "omega" in c else np.radians(c["omega_deg"])
+        return cls(label, c["period"], c["tc"], c["tp"], c["ecc"], omega, c["K"])
 
 
 @dataclass(frozen=True)
@@ -236,28 +273,25 @@ class SystemModel:
         # gather tables for orbit_arrays: fill values of fixed fields, and for each
         # field the theta columns and the companion columns they go to
         nc = len(self.companions)
-        fill = {f: np.full(nc, np.nan) for f in ("ln_period", "tc", "h", "k", "K")}
+        fill = {f: np.full(nc, np.nan) for f in ("ln_period", "tc_rel", "h", "k", "K")}
         for ci, c in enumerate(self.companions):
             if c.period.is_fixed:
                 fill["ln_period"][ci] = math.log(c.period.value)
             if c.tc.is_fixed:
-                fill["tc"][ci] = c.tc.value - self.data.epoch
+                fill["tc_rel"][ci] = c.tc.value - self.data.epoch
             fill["h"][ci] = fill["k"][ci] = 0.0
             if c.K.is_fixed:
                 fill["K"][ci] = c.K.value
         self._fill = fill
-        self._gather = {
-            f: (
-                np.array(
-                    [j for j, (kind, _, g) in enumerate(slots) if kind == "companion" and g == f],
-                    dtype=np.intp,
-                ),
-                np.array(
-                    [i for kind, i, g in slots if kind == "companion" and g == f], dtype=np.intp
-                ),
-            )
-            for f in fill
-        }
+        slot_of = {"tc_rel": "tc"}  # the tc slot holds tc minus the epoch
+        self._gather = {}
+        for f in fill:
+            g = slot_of.get(f, f)
+            mine = [
+                (j, i) for j, (kind, i, h) in enumerate(slots) if kind == "companion" and h == g
+            ]
+            self._gather[f] = (np.array([j for j, _ in mine], dtype=np.intp),
+                               np.array([i for _, i in mine], dtype=np.intp))  # fmt: skip
         self._circular = np.array([c.circular for c in self.companions], dtype=bool)
         self._jit_fill = np.array(
             [i.jitter.value if i.jitter.is_fixed else np.nan for i in self.instruments]
@@ -382,8 +416,10 @@ class SystemModel:
         return out
 
     def orbit_arrays(self, theta: np.ndarray) -> dict[str, np.ndarray]:
-        """Physical parameters as matrices: ``period``, ``tc``, ``tp`` (minus the
-        epoch), ``ecc``, ``omega``, ``K`` of shape (n_sets, n_companions), ``jitter``
+        """Physical parameters as matrices for the kernels: ``period``, ``tc_rel``,
+        ``tp_rel`` (both minus the epoch, the time origin of ``model.t``: the
+        kernels' times), ``ecc``, ``omega``, ``K`` of shape (n_sets, n_companions),
+        ``jitter``
         of shape (n_sets, n_instruments) and ``noise`` (the noise model's own
         parameters) of shape (n_sets, n_noise_parameters), in the order of the model's
         lists."""
@@ -394,7 +430,7 @@ class SystemModel:
         omega = np.mod(np.arctan2(k, h), 2 * np.pi)
         omega[:, self._circular] = 0.5 * np.pi
         P = np.exp(self._matrix(theta, "ln_period"))
-        tc = self._matrix(theta, "tc")
+        tc = self._matrix(theta, "tc_rel")
         tp = tc - P * conjunction_mean_anomaly(np.minimum(e, _E_CAP), omega) / (2 * np.pi)
         jit = np.empty((theta.shape[0], len(self.instruments)))
         jit[:] = self._jit_fill
@@ -402,25 +438,46 @@ class SystemModel:
         noise = np.empty((theta.shape[0], len(self.noise_parameters)))
         noise[:] = self._noise_fill
         noise[:, self._noise_gather[1]] = theta[:, self._noise_gather[0]]
-        return {"period": P, "tc": tc, "tp": tp, "ecc": e, "omega": omega,
+        return {"period": P, "tc_rel": tc, "tp_rel": tp, "ecc": e, "omega": omega,
                 "K": self._matrix(theta, "K"), "jitter": jit, "noise": noise}  # fmt: skip
 
     def to_physical(self, theta: np.ndarray) -> dict[str, np.ndarray]:
         """Physical parameters of each row of ``theta`` (shape (n_sets, ndim)).
 
-        Keys: ``<label>.period``, ``.tc``, ``.tp`` (both minus the epoch), ``.ecc``,
-        ``.omega`` (radians, [0, 2 pi)), ``.K``, ``jitter.<instrument>`` and
-        ``noise.<name>``. Rows with
-        e >= 1 give e >= 1 here; :meth:`log_prior` marks them invalid.
+        Keys: ``<label>.period``, ``.tc``, ``.tp`` (in the data's time system, like
+        every time outside the kernels), ``.ecc``, ``.omega`` (radians, [0, 2 pi)),
+        ``.K``, ``jitter.<instrument>`` and ``noise.<name>``: the columns of
+        :meth:`elements` plus the noise parameters. Rows with e >= 1 give e >= 1 here;
+        :meth:`log_prior` marks them invalid.
         """
         return self.as_dict(self.orbit_arrays(theta))
+
+    def elements(self, theta_or_arrays) -> dict[str, Elements]:
+        """Each companion's elements (:class:`Elements`, times in the data's time
+        system) for every row of ``theta`` (or of :meth:`orbit_arrays` already
+        computed), by label."""
+        arr = theta_or_arrays
+        if not isinstance(arr, dict):
+            arr = self.orbit_arrays(arr)
+        epoch = self.data.epoch
+        return {
+            c.label: Elements(
+                c.label,
+                arr["period"][:, ci],
+                arr["tc_rel"][:, ci] + epoch,
+                arr["tp_rel"][:, ci] + epoch,
+                arr["ecc"][:, ci],
+                arr["omega"][:, ci],
+                arr["K"][:, ci],
+            )  # fmt: skip
+            for ci, c in enumerate(self.companions)
+        }
 
     def as_dict(self, arr: dict[str, np.ndarray]) -> dict[str, np.ndarray]:
         """The matrices of :meth:`orbit_arrays` as named columns (see to_physical)."""
         out: dict[str, np.ndarray] = {}
-        for ci, c in enumerate(self.companions):
-            for f in ("period", "tc", "ecc", "omega", "K", "tp"):
-                out[f"{c.label}.{f}"] = arr[f][:, ci]
+        for el in self.elements(arr).values():
+            out.update(el.columns())
         for ii, inst in enumerate(self.instruments):
             out[f"jitter.{inst.name}"] = arr["jitter"][:, ii]
         for ni, par in enumerate(self.noise_parameters):
@@ -429,7 +486,8 @@ class SystemModel:
 
     def from_physical(self, values: dict[str, float | np.ndarray]) -> np.ndarray:
         """Sampled coordinates from physical values (keys as :meth:`to_physical`;
-        ``tc`` minus the epoch, ``omega`` in radians). Returns shape (n_sets, ndim)."""
+        ``tc`` in the data's time system, ``omega`` in radians). Returns shape
+        (n_sets, ndim)."""
         n = max(np.size(v) for v in values.values()) if values else 1
         theta = np.empty((n, self.ndim))
         for j, (kind, i, f) in enumerate(self._slots):
@@ -445,7 +503,7 @@ class SystemModel:
             if f == "ln_period":
                 theta[:, j] = np.log(values[f"{L}.period"])
             elif f == "tc":
-                theta[:, j] = values[f"{L}.tc"]
+                theta[:, j] = np.asarray(values[f"{L}.tc"], float) - self.data.epoch
             elif f == "h":
                 theta[:, j] = np.sqrt(e) * np.cos(w)
             elif f == "k":
@@ -501,7 +559,7 @@ class SystemModel:
             if missing:
                 raise ValueError(f"companion {c.label}: no start value for {', '.join(missing)}")
             out[f"{c.label}.period"] = float(s["period"])
-            out[f"{c.label}.tc"] = float(s["tc"]) - self.data.epoch
+            out[f"{c.label}.tc"] = float(s["tc"])
             out[f"{c.label}.K"] = float(s["K"])
             out[f"{c.label}.ecc"] = 0.0 if c.circular else float(s.get("ecc", 0.0))
             out[f"{c.label}.omega"] = float(s.get("omega", 0.5 * np.pi))
@@ -591,7 +649,7 @@ class SystemModel:
         V = np.concatenate(
             [
                 arr["period"],
-                arr["tc"] + self.data.epoch,
+                arr["tc_rel"] + self.data.epoch,
                 arr["ecc"],
                 arr["K"],
                 arr["jitter"],
@@ -662,26 +720,33 @@ def keplerian_velocity(
 ) -> np.ndarray:
     """Sum of the companions' Keplerian curves, (n_rows, n_times).
 
-    At the data times by default, or at ``t`` (minus the reference epoch, like
-    ``model.t``).
+    ``phys`` holds physical columns (:meth:`SystemModel.to_physical`); the curves are
+    evaluated at the data times by default, or at ``t`` (in the data's time system).
     """
     if rows is None:
         rows = np.arange(next(iter(phys.values())).shape[0]) if phys else np.arange(1)
-    t = model.t if t is None else np.asarray(t, float)
-    out = np.zeros((rows.size, t.size))
-    for c in model.companions:
-        L = c.label
-        P = phys[f"{L}.period"][rows]
-        w = phys[f"{L}.omega"][rows]
-        out += rv_rows(
-            t,
-            phys[f"{L}.tp"][rows],
-            2.0 * np.pi / P,
-            phys[f"{L}.ecc"][rows],
-            np.cos(w),
-            np.sin(w),
-            phys[f"{L}.K"][rows],
-        )
+    epoch = model.data.epoch
+    t_rel = model.t if t is None else np.asarray(t, float) - epoch
+    if not model.companions:
+        return np.zeros((rows.size, t_rel.size))
+    arr = {f: np.column_stack([np.asarray(phys[f"{c.label}.{f}"], float)[rows]
+                               for c in model.companions])
+           for f in ("period", "tp", "ecc", "omega", "K")}  # fmt: skip
+    arr["tp_rel"] = arr.pop("tp") - epoch
+    return orbit_velocity(model, arr, t_rel)
+
+
+def orbit_velocity(model: SystemModel, arr: dict, t_rel: np.ndarray | None = None) -> np.ndarray:
+    """Sum of the companions' Keplerian curves, (n_sets, n_times), from the matrices of
+    :meth:`SystemModel.orbit_arrays` (rows already chosen), at the times ``t_rel``
+    (minus the epoch; default the data's): the likelihood's path, free of any round
+    trip through absolute times."""
+    t = model.t if t_rel is None else np.asarray(t_rel, float)
+    out = np.zeros((next(iter(arr.values())).shape[0], t.size))
+    for ci in range(len(model.companions)):
+        w = arr["omega"][:, ci]
+        out += rv_rows(t, arr["tp_rel"][:, ci], 2.0 * np.pi / arr["period"][:, ci],
+                       arr["ecc"][:, ci], np.cos(w), np.sin(w), arr["K"][:, ci])  # fmt: skip
     return out
 
 

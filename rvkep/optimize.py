@@ -24,8 +24,8 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 
 from rvkep.data import RVData
-from rvkep.likelihood import LogPosterior, keplerian_velocity
-from rvkep.model import LABELS, SystemModel, default_companion
+from rvkep.likelihood import LogPosterior
+from rvkep.model import LABELS, SystemModel, default_companion, orbit_velocity
 from rvkep.orbit import tp_to_tc
 
 __all__ = [
@@ -234,11 +234,7 @@ def _result(model: SystemModel, theta: np.ndarray, success=True, message="") -> 
     _, det = prof.evaluate(theta[None, :])
     logL = float(prof(theta[None, :])[0])
     logpost = float(LogPosterior(model, linear="profile")(theta[None, :])[0])
-    phys = {k: float(v[0]) for k, v in det["phys"].items()}
-    epoch = model.data.epoch
-    for c in model.companions:
-        phys[f"{c.label}.tc"] += epoch
-        phys[f"{c.label}.tp"] += epoch
+    phys = {k: float(v[0]) for k, v in det["phys"].items()}  # times in the data's system
     lin = prof.linear_parameters(theta[None, :])[0]
     for name, value in zip(model.linear_names, lin, strict=True):
         phys[name] = float(value)
@@ -475,8 +471,9 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
     screen = _hold_noise(model, current.params)
     label = LABELS[len(model.companions)]
     # residuals of the current fit (linear part free again), weights from its jitters
-    phys = model.to_physical(current.theta[None, :])
-    resid = model.y - keplerian_velocity(model, phys)[0]
+    arr = model.orbit_arrays(current.theta[None, :])
+    phys = model.as_dict(arr)
+    resid = model.y - orbit_velocity(model, arr)[0]
     weights = 1.0 / model.noise_model.effective_variance(model, phys, np.array([0]))[0]
     best = None
     trials = []  # (fitted period, ln L) of every full fit
@@ -500,9 +497,7 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
         for s in starts:
             new = _new_companion(data, label, P, s, period_range, spec)
             trial = screen.with_companions([*model.companions, new])
-            start = current.params.copy()
-            for c in model.companions:  # previous companions: their best values
-                start[f"{c.label}.tc"] -= data.epoch
+            start = current.params  # previous companions: their best values
             vals = {
                 **{k: v for k, v in start.items() if k in _phys_keys(trial)},
                 **_start_of(new, data),
@@ -516,7 +511,7 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
                 best = result
     if screen is not model:
         free = replace(best.model, noise_parameters=model.noise_parameters)
-        best = fit(free, [free.from_physical(_relative_tc(best.model, best.params))[0]])
+        best = fit(free, [free.from_physical(best.params)[0]])
     # re-centre a default tc prior on the result (one phase mode around the best fit)
     out = _recentre(best, label if spec is None else None)
     out.extra["period_trials"] = trials
@@ -535,14 +530,6 @@ def _hold_noise(model: SystemModel, params: dict) -> SystemModel:
     held = [replace(p, prior=Fixed(float(params[f"noise.{p.name}"])))
             for p in model.noise_parameters]  # fmt: skip
     return replace(model, noise_parameters=held)
-
-
-def _relative_tc(model: SystemModel, params: dict) -> dict:
-    """Physical values with each companion's tc minus the epoch (as the model's
-    coordinates take them) from a fit's ``params`` (absolute tc)."""
-    epoch = model.data.epoch
-    return {**params, **{f"{c.label}.tc": params[f"{c.label}.tc"] - epoch
-                         for c in model.companions}}  # fmt: skip
 
 
 def _rivals(period: float, logl: float, trials) -> list[dict]:
@@ -572,7 +559,7 @@ def _start_of(c, data: RVData) -> dict[str, float]:
     s = c.start
     return {
         f"{c.label}.period": s["period"],
-        f"{c.label}.tc": s["tc"] - data.epoch,
+        f"{c.label}.tc": s["tc"],
         f"{c.label}.ecc": s["ecc"],
         f"{c.label}.omega": s["omega"],
         f"{c.label}.K": s["K"],
@@ -609,5 +596,5 @@ def _recentre(result: FitResult, label: str | None) -> FitResult:
     new_model = replace(
         model.with_companions(comps), instruments=instruments, noise_parameters=noise
     )
-    theta = new_model.from_physical(_relative_tc(new_model, p))[0]
+    theta = new_model.from_physical(p)[0]
     return _result(new_model, theta, result.success, result.message)

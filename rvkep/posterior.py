@@ -55,17 +55,13 @@ class PosteriorSamples:
         """Physical columns from flat sampler coordinates (n_samples, ndim)."""
         rng = np.random.default_rng(rng)
         flat = np.atleast_2d(flat)
-        phys = model.to_physical(flat)
-        epoch = model.data.epoch
+        arr = model.orbit_arrays(flat)
+        phys = model.as_dict(arr)
         cols: dict[str, np.ndarray] = {}
-        for c in model.companions:
-            L = c.label
-            cols[f"{L}.period"] = phys[f"{L}.period"]
-            cols[f"{L}.K"] = phys[f"{L}.K"]
-            cols[f"{L}.ecc"] = phys[f"{L}.ecc"]
-            cols[f"{L}.omega_deg"] = np.degrees(phys[f"{L}.omega"])
-            cols[f"{L}.tp"] = phys[f"{L}.tp"] + epoch
-            cols[f"{L}.tc"] = phys[f"{L}.tc"] + epoch
+        order = ("period", "K", "ecc", "omega_deg", "tp", "tc")
+        for el in model.elements(arr).values():
+            named = el.columns(omega_unit="deg")
+            cols.update({f"{el.label}.{k}": named[f"{el.label}.{k}"] for k in order})
         for inst in model.instruments:
             cols[f"jitter.{inst.name}"] = phys[f"jitter.{inst.name}"]
         for par in model.noise_parameters:

@@ -102,6 +102,6 @@ class NoiseModel:
 
     def conditional_mean(self, model, phys: dict, resid: np.ndarray, t=None):
         """(mean, standard deviation) of a correlated signal given the residuals of one
-        parameter set, at ``t`` (minus the epoch; default the data times); None when
+        parameter set, at ``t`` (in the data's time system; default the data times); None when
         the model has no correlated part."""
         return None

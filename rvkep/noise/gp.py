@@ -264,11 +264,11 @@ class QuasiPeriodicGP(NoiseModel):
     def conditional_mean(self, model, phys: dict, resid: np.ndarray,
                          t: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:  # fmt: skip
         """(mean, standard deviation) of the activity signal given the residuals of
-        one parameter set (offsets and trend already removed), at ``t`` (minus the
-        epoch; default the data times): k*^T C^-1 r and k(0) - k*^T C^-1 k*."""
+        one parameter set (offsets and trend already removed), at ``t`` (in the data's
+        time system; default the data times): k*^T C^-1 r and k(0) - k*^T C^-1 k*."""
         C = self._factor(model, phys, 0)
         g = {k: float(np.asarray(phys[f"noise.{k}"])[0]) for k in self.parameter_keys}
-        t_out = model.t if t is None else np.asarray(t, float)
+        t_out = model.t if t is None else np.asarray(t, float) - model.data.epoch
         out = []
         for s in range(0, t_out.size, _FREQ_BLOCK):  # blocks bound the (n, block) arrays
             K = covariance(model.t[:, None] - t_out[None, s : s + _FREQ_BLOCK], **g)

@@ -87,7 +87,7 @@ class WhiteNoise(NoiseModel):
         w = arrays["omega"][rows]
         parts = _fused_loglike(
             model.t, model.y, model.err2, model.inst_index, len(model.instruments),
-            model.design, arrays["tp"][rows], 2.0 * np.pi / arrays["period"][rows],
+            model.design, arrays["tp_rel"][rows], 2.0 * np.pi / arrays["period"][rows],
             arrays["ecc"][rows], np.cos(w), np.sin(w), arrays["K"][rows], arrays["jitter"][rows],
         )  # fmt: skip
         logL = parts[:, 0] + _constant(model, linear)
