@@ -406,6 +406,49 @@ class SystemModel:
             "data_sha256": h.hexdigest(),
         }
 
+    def to_dict(self) -> dict:
+        """Everything but the data and the star, as plain JSON-able values (priors,
+        start values, trend, noise model, decorrelation): :meth:`from_dict` rebuilds
+        the same model on the same data."""
+
+        def start(values: dict) -> dict:
+            return {k: float(v) for k, v in values.items()}
+
+        return {
+            "companions": [{**c.canonical(), "start": start(c.start)} for c in self.companions],
+            "instruments": [
+                {**i.canonical(), "start_jitter": float(i.start_jitter)} for i in self.instruments
+            ],  # fmt: skip
+            "trend": self.trend,
+            "noise": self.noise,
+            "noise_parameters": [
+                {**p.canonical(), "start": float(p.start)} for p in self.noise_parameters
+            ],  # fmt: skip
+            "decorrelate": list(self.decorrelate),
+        }
+
+    @classmethod
+    def from_dict(cls, d: dict, data: RVData, star: StarProperties | None = None) -> SystemModel:
+        """The model :meth:`to_dict` described, bound to ``data``."""
+        from rvkep.noise import get_noise_model
+        from rvkep.priors import prior_from_dict
+
+        def prior(spec: dict, where: str) -> Prior:  # JSON keeps infinite bounds as such
+            finite = {k: v for k, v in spec.items()
+                      if not (isinstance(v, float) and not math.isfinite(v))}  # fmt: skip
+            return prior_from_dict(finite, where)
+
+        comps = [Companion(c["label"], *(prior(c[k], f"{c['label']}.{k}")
+                                         for k in ("period", "tc", "K", "ecc")),
+                           start=dict(c["start"])) for c in d["companions"]]  # fmt: skip
+        insts = [Instrument(i["name"], prior(i["jitter"], f"jitter.{i['name']}"),
+                            float(i["start_jitter"])) for i in d["instruments"]]  # fmt: skip
+        own = {p.name: p for p in get_noise_model(d["noise"]).parameters(data)}
+        noise = [replace(own[p["name"]], prior=prior(p["prior"], f"noise.{p['name']}"),
+                         start=float(p["start"])) for p in d["noise_parameters"]]  # fmt: skip
+        return cls(data, comps, insts, int(d["trend"]), star, noise=d["noise"],
+                   noise_parameters=noise, decorrelate=tuple(d["decorrelate"]))  # fmt: skip
+
     # -- coordinates <-> physical ---------------------------------------------
 
     def _matrix(self, theta, field):

@@ -135,11 +135,15 @@ class Results:
     def load(cls, folder: str | Path) -> Results:
         """A finished run read back from its folder, without refitting.
 
-        Reads ``results.json``, the posterior samples (``samples.npz``) and the data
-        the run used (``data.csv``). The result predicts (:meth:`predict`), prints,
-        and writes its tables like the original; what it does not keep is the best-fit
-        object and the sampler's chain (``fit`` and ``sampling`` are None; their
-        numbers are in :attr:`saved`).
+        Reads ``results.json``, the posterior samples (``samples.npz``), the data the
+        run used (``data.csv``) and the model (``model.json``: priors, noise model,
+        best-fit coordinates). The result predicts (:meth:`predict`), prints, writes
+        its tables and draws its figures like the original: its best fit is rebuilt
+        from the saved coordinates on the saved data (and checked against the saved
+        log-likelihood). What it does not keep is the search and the sampler's chain
+        (``search`` and ``sampling`` are None; their numbers are in :attr:`saved`).
+        A folder written before ``model.json`` existed loads with ``fit`` None
+        (predictions and tables, no figures).
 
         Raises
         ------
@@ -171,8 +175,9 @@ class Results:
         star = StarProperties(s["mass_msun"], s["mass_err_msun"], radius=s.get("radius_rsun"),
                               teff=s.get("teff_k"))  # fmt: skip
         kind = saved["run_kind"]
+        fit = _load_fit(folder, data, star, saved, posterior)
         return cls(
-            data, posterior, None, star=star, star_assumed=bool(kind["star_mass_assumed"]),
+            data, posterior, fit, star=star, star_assumed=bool(kind["star_mass_assumed"]),
             comparison=saved.get("model_comparison", []),
             trend_comparison=saved.get("trend_comparison", []), quick=bool(kind["quick"]),
             seed=saved.get("seed"), notes=list(saved.get("notes", [])), saved=saved,
@@ -235,7 +240,7 @@ class Results:
 
     def to_dict(self) -> dict:
         """The content of results.json."""
-        if self.fit is None and self.saved is not None:
+        if self.saved is not None:
             return json.loads(json.dumps(self.saved))  # a copy
         planets = []
         for L in self.labels:
@@ -410,11 +415,45 @@ class Results:
             "samples_npz": self.posterior.to_npz(out / "samples.npz"),
             "data": write_text(out / "data.csv", _data_csv(self.data)),
         }
+        if self.fit is not None:
+            model = {"model": self.fit.model.to_dict(),
+                     "best_fit_theta": [float(x) for x in self.fit.theta],
+                     "log_likelihood": float(self.fit.log_likelihood)}  # fmt: skip
+            paths["model"] = write_text(out / "model.json", json.dumps(_clean(model)) + "\n")
         # results.json last: its presence marks a complete result folder
         paths["json"] = write_text(
             out / "results.json", json.dumps(_clean(self.to_dict()), indent=2) + "\n"
         )
         return paths
+
+
+def _load_fit(folder: Path, data, star, saved: dict, posterior: PosteriorSamples):
+    """The best fit of a saved run rebuilt from ``model.json`` on its data (None when
+    the folder has no model.json); the posterior's sampler coordinates restored."""
+    from rvkep.errors import DataError
+    from rvkep.model import Elements, SystemModel
+    from rvkep.optimize import _result
+
+    path = folder / "model.json"
+    if not path.exists():
+        return None
+    try:
+        stored = json.loads(path.read_text(encoding="utf-8"))
+        model = SystemModel.from_dict(stored["model"], data, star)
+        fit = _result(model, np.array(stored["best_fit_theta"], float))
+    except (OSError, ValueError, KeyError, TypeError) as exc:
+        raise DataError(f"{path}: damaged ({exc})") from None
+    want = float(saved["best_fit"]["log_likelihood"])
+    if not abs(fit.log_likelihood - want) <= 1e-6 * max(1.0, abs(want)):
+        raise DataError(f"{folder}: model.json and results.json disagree (best-fit ln L "
+                        f"{fit.log_likelihood:.6f}, saved {want:.6f})")  # fmt: skip
+    cols = {k: v for k, v in posterior.columns.items()
+            if k.startswith(("jitter.", "noise."))}  # fmt: skip
+    for c in model.companions:
+        cols.update(Elements.from_columns(c.label, posterior.columns).columns())
+    posterior.theta = model.from_physical(cols)
+    posterior.model = model
+    return fit
 
 
 def _data_csv(data) -> str:
