@@ -44,12 +44,18 @@ def instrument_style(index: int) -> dict:
 
 
 def _figure(fig, nrows, height_ratios=None, figsize=(8, 6), sharex=True):
+    """A new figure with ``nrows`` stacked panels, or the given one: its panels are
+    drawn over when it has ``nrows`` of them (say, another run on the same axes), new
+    ones are made when it has none; any other layout is refused (ValueError)."""
     import matplotlib.pyplot as plt
 
     if fig is None:
         fig = plt.figure(figsize=figsize, layout="constrained")
-    else:
-        fig.clear()
+    elif fig.axes:
+        if len(fig.axes) != nrows:
+            raise ValueError(f"the figure has {len(fig.axes)} panels; this plot draws {nrows} "
+                             "(give an empty figure, or one this plot drew)")  # fmt: skip
+        return fig, np.array(fig.axes)
     axes = fig.subplots(nrows, 1, sharex=sharex, squeeze=False, height_ratios=height_ratios)[:, 0]
     return fig, axes
 

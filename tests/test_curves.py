@@ -4,6 +4,7 @@ draw-by-draw evaluation."""
 import warnings
 
 import numpy as np
+import pytest
 from test_sampling import one_planet
 
 import rvkep
@@ -50,6 +51,13 @@ def test_figures_are_drawn_from_a_results_into_a_given_figure():
     res = rvkep.Results.from_sampling(run)
     fig = timeseries_figure(res)
     assert len(fig.axes) == 2  # velocities and residuals
+    # a second run drawn into the same figure: over the first one, not instead of it
+    n_lines = len(fig.axes[0].get_lines())
+    assert timeseries_figure(res, fig=fig) is fig and len(fig.axes) == 2
+    assert len(fig.axes[0].get_lines()) == 2 * n_lines
+    crowded, _ = plt.subplots(3, 1)
+    with pytest.raises(ValueError, match="the figure has 3 panels; this plot draws 2"):
+        timeseries_figure(res, fig=crowded)
     own, ax = plt.subplots()
     ax.plot([0, 1], [0, 1], label="drawn before")
     assert phase_figure(res, "b", fig=own, ax=ax) is own
