@@ -597,7 +597,11 @@ class SystemModel:
         """Physical start values from each companion's ``start`` and the jitter starts."""
         out: dict[str, float] = {}
         for c in self.companions:
-            s = c.start
+            # a fixed value is its own start
+            fixed = {
+                k: getattr(c, k).value for k in ("period", "tc", "K") if getattr(c, k).is_fixed
+            }
+            s = {**c.start, **fixed}
             missing = [k for k in ("period", "tc", "K") if k not in s]
             if missing:
                 raise ValueError(f"companion {c.label}: no start value for {', '.join(missing)}")

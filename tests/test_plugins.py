@@ -53,9 +53,15 @@ def test_noise_model_contract(name, fit):
 
 @pytest.mark.parametrize("name", list(SAMPLERS))
 def test_sampler_contract(name, fit):
+    from rvkep.samplers.nested import NestedOptions
+
     sampler = get_sampler(name)
     assert sampler.name == name
-    opts = SamplerOptions(seed=1, max_steps=200, check_every=100, progress=False)
+    # each sampler's quick settings (a new sampler adds its own line here)
+    opts = {
+        "emcee": SamplerOptions(seed=1, max_steps=200, check_every=100, progress=False),
+        "nested": NestedOptions(seed=1, live_points=60, dlogz=2.0, progress=False),
+    }[name]
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", UnconvergedWarning)
         result = sampler.run(LogPosterior(fit.model), fit.theta, opts)

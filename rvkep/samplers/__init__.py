@@ -15,6 +15,7 @@ __all__ = ["Sampler", "SampleSet", "SAMPLERS", "get_sampler", "available_sampler
 #: name -> "module:class"
 SAMPLERS = {
     "emcee": "rvkep.samplers.ensemble:EnsembleSampler",
+    "nested": "rvkep.samplers.nested:NestedSampler",
 }
 
 
