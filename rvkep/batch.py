@@ -8,7 +8,8 @@ The target list is a CSV file with the columns
 * ``star_mass``, ``star_mass_err``: solar masses;
 * optional: ``max_planets``, ``planets``, ``model`` (a model file), ``kms`` (true/false),
   ``trend`` (auto, 0, 1, 2; default auto), ``noise`` (white or gp; default the model
-  file's, else white), ``decorrelate`` (indicator columns separated by ``;``).
+  file's, else white), ``decorrelate`` (indicator columns separated by ``;``),
+  ``evidence`` (true/false: ln Z by nested sampling, as ``analyze --evidence``).
 
 Each target runs :func:`rvkep.pipeline.analyze` into its own folder with its own log
 file (``log.txt``); a failure (bad file, failed fit) is recorded as one line in
@@ -48,7 +49,7 @@ from rvkep.outputs import clean_temporaries, write_text
 __all__ = ["Target", "read_targets", "run_target", "run_batch", "write_summary", "SUMMARY_FIELDS"]
 
 _REQUIRED = ("name", "data", "star_mass", "star_mass_err")
-_OPTIONAL = ("max_planets", "planets", "model", "kms", "trend", "noise", "decorrelate")
+_OPTIONAL = ("max_planets", "planets", "model", "kms", "trend", "noise", "decorrelate", "evidence")
 SUMMARY_FIELDS = [
     "row", "name", "status", "n_planets", "seconds", "error", "run_kind", "converged",
     "quick", "star_mass_assumed", "label",
@@ -72,6 +73,7 @@ class Target:
     trend: int | str = "auto"
     noise: str | None = None
     decorrelate: tuple[str, ...] = ()
+    evidence: bool = False
     line: int = 0
     problem: str = ""  # why this target cannot run (it fails alone; see read_targets)
 
@@ -227,6 +229,8 @@ def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Targe
         kw["model"] = str(base / rec["model"])
     if "kms" in rec:
         kw["kms"] = _bool(rec["kms"], "kms")
+    if "evidence" in rec:
+        kw["evidence"] = _bool(rec["evidence"], "evidence")
     return Target(name, tuple(files), mass, err, line=line, **kw)
 
 
@@ -271,6 +275,7 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
                 planets=target.planets, max_planets=target.max_planets, model_file=target.model,
                 out=str(folder), seed=_target_seed(seed, target.name), quiet=False, quick=quick,
                 trend=target.trend, noise=target.noise, decorrelate=target.decorrelate,
+                evidence=target.evidence,
             )  # fmt: skip
             analyze(list(target.files), opts)
         except KeyboardInterrupt:

@@ -219,6 +219,30 @@ def _add_decorrelate_arg(p: argparse.ArgumentParser) -> None:
     )  # fmt: skip
 
 
+def _add_evidence_args(p: argparse.ArgumentParser, choose: bool = True) -> None:
+    p.add_argument(
+        "--sampler", default="emcee", choices=("emcee", "nested"),
+        help="the posterior's sampler: emcee (MCMC, default) or nested (dynesty; weighted "
+        "samples and the evidence)",
+    )  # fmt: skip
+    p.add_argument(
+        "--evidence", action="store_true",
+        help="compute ln Z by nested sampling for the chosen number of companions and for "
+        "one fewer and one more (results.json 'evidence')",
+    )  # fmt: skip
+    p.add_argument(
+        "--circular", default="no", choices=("no", "auto"),
+        help="auto: refit with a circular orbit every companion whose eccentricity is "
+        "consistent with zero (Lucy & Sweeney p >= 0.05) and sample again",
+    )  # fmt: skip
+    if choose:
+        p.add_argument(
+            "--choose-by", default="bic", choices=("bic", "evidence"),
+            help="choose the number of companions by BIC (default) or by evidence (a "
+            "larger number must raise ln Z by more than 5; nested runs for every number)",
+        )  # fmt: skip
+
+
 def _analyze_options(args: argparse.Namespace, out: str):
     from rvkep.pipeline import AnalyzeOptions
 
@@ -246,6 +270,10 @@ def _analyze_options(args: argparse.Namespace, out: str):
         bin_days=getattr(args, "bin", None),
         noise=getattr(args, "noise", None),
         decorrelate=getattr(args, "decorrelate", ()),
+        sampler=getattr(args, "sampler", "emcee"),
+        evidence=getattr(args, "evidence", False),
+        choose_by=getattr(args, "choose_by", "bic"),
+        circular=getattr(args, "circular", "no"),
     )
 
 
@@ -310,6 +338,7 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
     _add_trend_arg(p, auto=True)
     _add_noise_arg(p)
     _add_decorrelate_arg(p)
+    _add_evidence_args(p)
     p.add_argument("--max-steps", type=int, default=None, help="cap on sampler steps")
 
 
@@ -405,6 +434,7 @@ def _add_sample(sub) -> None:
     p.add_argument("--max-steps", type=int, default=None, help="default: the model file's")
     _add_noise_arg(p)
     _add_decorrelate_arg(p)
+    _add_evidence_args(p, choose=False)
     p.add_argument("--quiet", action="store_true")
     p.add_argument("--format", default="png", choices=("png", "pdf"))
     p.set_defaults(run=_run_sample)

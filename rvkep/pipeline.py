@@ -18,7 +18,7 @@ from __future__ import annotations
 import math
 import time
 import warnings
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -62,6 +62,10 @@ class AnalyzeOptions:
     bin_days: float | None = None  # average each instrument's points in bins this wide
     noise: str | None = None  # noise model (rvkep.noise); None: the model file's, else white
     decorrelate: tuple[str, ...] = ()  # indicator columns: a linear coefficient each
+    sampler: str = "emcee"  # the posterior's sampler (rvkep.samplers): emcee or nested
+    evidence: bool = False  # ln Z by nested sampling for N - 1, N and N + 1 companions
+    choose_by: str = "bic"  # how the number of companions is chosen: bic or evidence
+    circular: str = "no"  # "auto": refit circular the orbits consistent with circular
 
 
 def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
@@ -112,7 +116,8 @@ def choose_companions(search_result, data, base, period_range, max_planets: int)
 def select_companions(data, base, opts: AnalyzeOptions, spec=None):
     """Search and choose the companions for one trend degree (``base.trend``).
 
-    Returns (search result, chosen fit, companion-number comparison rows, message).
+    Returns (search result, chosen fit, companion-number comparison rows, message,
+    the fits by number of companions).
     """
     from rvkep.optimize import fit_companions
     from rvkep.search import search
@@ -132,7 +137,8 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
         fits = [search_result.fits[0], fit]
         comparison = _comparison_rows(fits, 1, search_result)
         comparison[1]["n_companions"] = len(spec.companions)
-        return search_result, fit, comparison, f"model file: {len(spec.companions)} companion(s)"
+        return (search_result, fit, comparison,
+                f"model file: {len(spec.companions)} companion(s)", fits)  # fmt: skip
     if opts.planets is not None:
         fits = list(search_result.fits)
         from rvkep.search import candidate_periods, residual_periodogram
@@ -145,13 +151,13 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
         fits = fits[: opts.planets + 1]
         comparison = _comparison_rows(fits, opts.planets, search_result)
         return (search_result, fits[opts.planets], comparison,
-                f"{opts.planets} companion(s) fitted as asked (--planets)")  # fmt: skip
+                f"{opts.planets} companion(s) fitted as asked (--planets)", fits)  # fmt: skip
     fits, n, comparison = choose_companions(
         search_result, data, base, period_range, opts.max_planets
     )
     message = (f"search: {len(search_result.significant)} significant signal(s); "
                f"{n} companion(s) kept after the BIC comparison")  # fmt: skip
-    return search_result, fits[n], comparison, message
+    return search_result, fits[n], comparison, message, fits
 
 
 def choose_trend(outcomes: list) -> tuple[int, list[dict]]:
@@ -163,7 +169,7 @@ def choose_trend(outcomes: list) -> tuple[int, list[dict]]:
             chosen = k
     rows = []
     best_bic = min(o[1].bic for o in outcomes)
-    for k, (_, fit, _, _) in enumerate(outcomes):
+    for k, (_, fit, *_) in enumerate(outcomes):
         rows.append({
             "degree": fit.model.trend,
             "n_companions": len(fit.model.companions),
@@ -290,6 +296,14 @@ def validate_options(opts: AnalyzeOptions) -> None:
     if not (isinstance(opts.fap, (int, float)) and 0 < opts.fap < 1):
         raise OptionError(f"--fap must lie between 0 and 1, got {opts.fap!r}")
     finite("--bin", opts.bin_days, positive=True)
+    from rvkep.samplers import SAMPLERS
+
+    if opts.sampler not in SAMPLERS:
+        raise OptionError(f"--sampler must be one of {', '.join(SAMPLERS)}, got {opts.sampler!r}")
+    if opts.circular not in ("no", "auto"):
+        raise OptionError(f"--circular must be no or auto, got {opts.circular!r}")
+    if opts.choose_by not in ("bic", "evidence"):
+        raise OptionError(f"--choose-by must be bic or evidence, got {opts.choose_by!r}")
     if opts.noise is not None:
         from rvkep.noise import NOISE_MODELS
 
@@ -345,9 +359,12 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
         _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                    f"{', '.join(data.instruments)}")  # fmt: skip
         chosen = choose_model(data, opts, spec)
-        sampled, sample_notes, seed = sample_posterior(chosen.fit, opts, spec, out / "chain.h5")
+        sampled, sample_notes, seed = sample_posterior(chosen.fit, opts, spec, out / "chain.h5",
+                                                       nested=chosen.nested)  # fmt: skip
         results = _build_results(data, chosen, sampled, star, opts, seed,
                                  data_notes + chosen.notes + sample_notes)  # fmt: skip
+        results = test_eccentricities(results, chosen, opts, spec, star, seed, out,
+                                      data_notes + chosen.notes + sample_notes)  # fmt: skip
         paths = write_outputs(results, out, opts)
     _say(opts, str(results))
     _say(opts, f"done in {time.perf_counter() - t_start:.1f} s; results in {out}/ "
@@ -411,6 +428,10 @@ class ModelChoice:
     comparison: list[dict]
     trend_rows: list[dict]
     notes: list[str]
+    fits: list = field(default_factory=list)  # by number of companions, 0 .. N + 1
+    evidence: list[dict] = field(default_factory=list)  # ln Z per number of companions
+    nested: object = None  # the nested run of the chosen model, when there is one
+    extra_notes: list[str] = field(default_factory=list)  # from the evidence stage
 
 
 def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
@@ -445,18 +466,126 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
         degrees = list(TREND_DEGREES) if trend == "auto" else [trend]
     outcomes = [select_companions(data, replace(base, trend=d), opts, spec) for d in degrees]
     chosen, trend_rows = choose_trend(outcomes)
-    search_result, fit, comparison, message = outcomes[chosen]
+    search_result, fit, comparison, message, fits = outcomes[chosen]
     _say(opts, message)
     if len(outcomes) > 1:
         _say(opts, f"trend: degree {fit.model.trend} chosen of 0, 1, 2 (BIC, see trend_comparison)")
-    notes = _selection_notes(search_result, fit, comparison)
-    for note in notes:
+    choice = ModelChoice(search_result, fit, comparison, trend_rows, [], fits)
+    if opts.evidence or opts.choose_by == "evidence" or opts.sampler == "nested":
+        compute_evidence(choice, opts, spec)
+    choice.notes = choice.extra_notes + _selection_notes(search_result, choice.fit,
+                                                         choice.comparison)  # fmt: skip
+    for note in choice.notes:
         _say(opts, f"note: {note}")
-    return ModelChoice(search_result, fit, comparison, trend_rows, notes)
+    return choice
 
 
-def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | None = None):
-    """Stage 4: sample the chosen model's posterior (resumable through ``checkpoint``).
+#: a model with more companions is chosen by evidence only if ln Z rises by more than
+#: this: a Bayes factor above e^5 ~ 150, "very strong" on the scale of Kass & Raftery
+#: (1995, 2 ln B > 10), the same bar as the BIC rule (Delta BIC ~ -2 ln B)
+EVIDENCE_THRESHOLD = 5.0
+
+
+def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None) -> None:
+    """ln Z by nested sampling (:mod:`rvkep.samplers.nested`) for N - 1, N and N + 1
+    companions (every number fitted, with ``choose_by="evidence"``), kept in
+    ``choice.evidence``; with ``choose_by="evidence"`` the number of companions is
+    chosen by it (a larger number must raise ln Z by more than EVIDENCE_THRESHOLD).
+    The nested run of the chosen model is kept for its posterior (``choice.nested``)."""
+    from rvkep.likelihood import LogPosterior
+    from rvkep.samplers import get_sampler
+    from rvkep.samplers.nested import NestedOptions
+
+    by_n = {len(f.model.companions): f for f in choice.fits}
+    n = len(choice.fit.model.companions)
+    wanted = sorted(by_n) if opts.choose_by == "evidence" else [k for k in (n - 1, n, n + 1)
+                                                                 if k in by_n]  # fmt: skip
+    if not (opts.evidence or opts.choose_by == "evidence"):
+        wanted = [n]  # only the posterior of the chosen model (--sampler nested)
+    seed = opts.seed if opts.seed is not None else (spec.sampling.get("seed", 0) if spec else 0)
+    runs = {}
+    for k in wanted:
+        model = by_n[k].model
+        if model.ndim == 0:
+            continue
+        nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
+                              dlogz=0.5 if opts.quick else 0.1)  # fmt: skip
+        _say(opts, f"nested sampling: {k} companion(s), {model.ndim} parameters, "
+                   f"{nopts.n_live(model.ndim)} live points")  # fmt: skip
+        runs[k] = get_sampler("nested").run(LogPosterior(model), by_n[k].theta, nopts)
+        _say(opts, f"  ln Z = {runs[k].extra['ln_z']:.2f} +- {runs[k].extra['ln_z_err']:.2f} "
+                   f"({runs[k].info['likelihood_calls']:,} likelihood calls, "
+                   f"{runs[k].info['seconds']:.1f} s)")  # fmt: skip
+    if opts.evidence or opts.choose_by == "evidence":
+        choice.evidence = [{"n_companions": k, "ln_z": r.extra["ln_z"],
+                            "ln_z_err": r.extra["ln_z_err"], "reliable": not r.info["missed_mode"],
+                            "likelihood_calls": r.info["likelihood_calls"],
+                            "seconds": r.info["seconds"]} for k, r in runs.items()]  # fmt: skip
+    missed = [k for k, r in runs.items() if r.info["missed_mode"]]
+    for k in missed:
+        r = runs[k]
+        note = (f"the nested run for {k} companion(s) never reached the best fit's likelihood "
+                f"(best ln L met {r.info['max_ln_l']:.1f}, best fit {r.info['start_ln_l']:.1f}): "
+                "its ln Z is UNRELIABLE (a narrow mode missed; more live points help)")  # fmt: skip
+        _say(opts, f"WARNING: {note}")
+        choice.extra_notes.append(note)
+    if opts.choose_by == "evidence" and missed:
+        _say(opts, "evidence: not used to choose (an unreliable run); the BIC choice stands")
+    elif opts.choose_by == "evidence" and runs:
+        ks = sorted(runs)
+        best = ks[0]
+        for k in ks[1:]:
+            if runs[k].extra["ln_z"] - runs[best].extra["ln_z"] > EVIDENCE_THRESHOLD:
+                best = k
+        if best != n:
+            _say(opts, f"evidence: {best} companion(s) chosen (BIC chose {n})")
+        choice.fit = by_n[best]
+        for row in choice.comparison:
+            row["chosen"] = row["n_companions"] == best
+        n = best
+    choice.nested = runs.get(n)
+
+
+def test_eccentricities(results, chosen: ModelChoice, opts: AnalyzeOptions, spec, star,
+                        seed: int, out: Path, notes: list[str]):  # fmt: skip
+    """Stage 4b: the Lucy & Sweeney test and a circular refit for each eccentric
+    companion (:mod:`rvkep.eccentricity`), kept in ``results.ecc_tests``; with
+    ``opts.circular == "auto"`` the companions consistent with circular are refitted
+    circular and the posterior sampled again (the results of that model are returned,
+    saying so)."""
+    from rvkep.eccentricity import circular_model, eccentricity_tests
+    from rvkep.optimize import fit as refit
+
+    tests = eccentricity_tests(chosen.fit, results.posterior)
+    results.ecc_tests = tests
+    for L, t in tests.items():
+        verdict = "consistent with circular" if t["consistent_with_circular"] else "eccentric"
+        _say(opts, f"eccentricity of {L}: {verdict} (Lucy & Sweeney p = "
+                   f"{t['lucy_sweeney_p']:.3g}; BIC circular - eccentric = "
+                   f"{t['delta_bic_circular_minus_eccentric']:.1f})")  # fmt: skip
+    circular = sorted(L for L, t in tests.items() if t["consistent_with_circular"])
+    if opts.circular != "auto" or not circular:
+        return results
+    model = circular_model(chosen.fit.model, set(circular))
+    start = {**chosen.fit.params, **{f"{L}.ecc": 0.0 for L in circular}}
+    fit = refit(model, [model.from_physical(start)[0]])
+    note = (
+        f"--circular auto: {', '.join(circular)} refitted with a circular orbit "
+        "(consistent with circular by the Lucy & Sweeney test) and sampled again"
+    )
+    _say(opts, note)
+    chosen = replace(chosen, fit=fit, nested=None)
+    sampled, more, seed = sample_posterior(fit, opts, spec, out / "chain.h5")
+    again = _build_results(results.data, chosen, sampled, star, opts, seed, notes + more + [note])
+    again.ecc_tests = {L: {**t, "refitted_circular": L in circular} for L, t in tests.items()}
+    return again
+
+
+def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | None = None,
+                     nested=None):  # fmt: skip
+    """Stage 4: sample the chosen model's posterior (resumable through ``checkpoint``),
+    with emcee or, with ``opts.sampler == "nested"``, by nested sampling (``nested``:
+    a run of the same model already made for its evidence, reused).
 
     Returns (sample set, notes, seed): the notes say what was not a plain fresh run
     (a checkpoint that could not be resumed)."""
@@ -469,6 +598,17 @@ def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | No
     max_steps = opts.max_steps or sampling_spec.get("max_steps") or (1500 if opts.quick else 40000)
     if fit.model.ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")
+    if opts.sampler == "nested":
+        if nested is None or nested.model is not fit.model:
+            from rvkep.samplers.nested import NestedOptions
+
+            nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
+                                  dlogz=0.5 if opts.quick else 0.1)  # fmt: skip
+            _say(opts, f"nested sampling {fit.model.ndim} parameters with "
+                       f"{nopts.n_live(fit.model.ndim)} live points")  # fmt: skip
+            nested = get_sampler("nested").run(LogPosterior(fit.model), fit.theta, nopts)
+        return nested, ["posterior by nested sampling (dynesty): weighted samples, resampled "
+                        "to equal weights for the outputs; no checkpoint"], seed  # fmt: skip
     sopts = SamplerOptions(walkers=sampling_spec.get("walkers"), max_steps=max_steps, seed=seed,
                            progress=None if not opts.quiet else False, checkpoint=checkpoint,
                            check_every=250 if opts.quick else 500)  # fmt: skip
@@ -500,7 +640,7 @@ def _build_results(data, chosen: ModelChoice, sampled, star, opts, seed: int, no
     results = Results.build(
         data, fit, sampled, posterior, star, rng=seed + 1, search=chosen.search,
         comparison=chosen.comparison, quick=opts.quick, seed=seed,
-        trend_comparison=chosen.trend_rows,
+        trend_comparison=chosen.trend_rows, evidence=chosen.evidence,
     )  # fmt: skip
     results.notes.extend(notes)
     if opts.quick:

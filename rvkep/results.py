@@ -47,6 +47,8 @@ class Results:
     quick: bool = False
     seed: int | None = None
     notes: list[str] = field(default_factory=list)
+    evidence: list[dict] = field(default_factory=list)  # ln Z per number of companions
+    ecc_tests: dict = field(default_factory=dict)  # label: rvkep.eccentricity test
     saved: dict | None = None  # results.json of a run read back by Results.load
 
     # -- building -------------------------------------------------------------
@@ -248,6 +250,8 @@ class Results:
             for key, col, _, _ in _PLANET_COLUMNS:
                 if f"{L}.{col}" in self.posterior:
                     entry[key] = self.estimate(f"{L}.{col}")
+            if L in self.ecc_tests:
+                entry["ecc_test"] = dict(self.ecc_tests[L])
             planets.append(entry)
         instruments = []
         model = self.fit.model
@@ -343,6 +347,7 @@ class Results:
                 "parameters": self.fit.params,
             },
             "model_comparison": self.comparison,
+            "evidence": list(self.evidence),
             "trend_comparison": self.trend_comparison,
             "priors": [{"parameter": p, "prior": d} for p, d in model.describe_priors()],
             "reference_epoch": self.data.epoch,

@@ -284,7 +284,7 @@ def test_daily_alias_loses_to_the_true_period_and_ambiguity_is_named():
     folder = demo_folder()
     data = load_rv([folder / "kestrel.txt", folder / "osprey.csv"])
     opts = AnalyzeOptions(min_period=0.5, quiet=True)
-    search_result, fit, comparison, _ = select_companions(data, SystemModel(data, []), opts)
+    search_result, fit, comparison, *_ = select_companions(data, SystemModel(data, []), opts)
     # truth (scripts/make_demo.py, invented): 143.4 d and 11.87 d
     periods = sorted(fit.params[f"{c.label}.period"] for c in fit.model.companions)
     assert periods[0] == pytest.approx(11.87, rel=1e-3)

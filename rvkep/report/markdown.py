@@ -39,6 +39,18 @@ def render(results) -> str:
                                            "msini_mjup", "msini_mearth", "a_au")]  # fmt: skip
             lines.append(f"| {p['label']} | " + " | ".join(cells) + " |")
         lines.append("")
+        for p in d["planets"]:
+            t = p.get("ecc_test")
+            if t is None:
+                continue
+            verdict = ("refitted circular (consistent with circular)" if t.get("refitted_circular")
+                       else "consistent with circular" if t["consistent_with_circular"]
+                       else "eccentric")  # fmt: skip
+            lines.append(f"Eccentricity of {p['label']}: {verdict} (Lucy & Sweeney 1971 p = "
+                         f"{t['lucy_sweeney_p']:.3g}; BIC circular - eccentric = "
+                         f"{t['delta_bic_circular_minus_eccentric']:.1f}).")  # fmt: skip
+        if any("ecc_test" in p for p in d["planets"]):
+            lines.append("")
     else:
         lines += ["No significant companion.", ""]
     lines += [
@@ -94,6 +106,22 @@ def render(results) -> str:
                 f"| {row['n_companions']} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
             )
         lines.append("")
+    if d.get("evidence"):
+        lines += [
+            "## Evidence",
+            "",
+            "ln Z by nested sampling (dynesty), offsets and trend under flat priors of unit "
+            "density (differences between rows are Bayes factors); a larger number of "
+            "companions needs ln Z higher by more than 5 (Kass & Raftery 1995):",
+            "",
+            "| companions | ln Z | +- | reliable | likelihood calls | seconds |",
+            "|---|---|---|---|---|---|",
+        ]
+        lines += [f"| {e['n_companions']} | {e['ln_z']:.2f} | {e['ln_z_err']:.2f} | "
+                  f"{'yes' if e.get('reliable', True) else 'NO (mode missed)'} | "
+                  f"{e.get('likelihood_calls', 0):,} | {e.get('seconds', 0):.1f} |"
+                  for e in d["evidence"]]  # fmt: skip
+        lines.append("")
     if d["trend_comparison"]:
         lines += [
             "## Trend",
@@ -111,9 +139,13 @@ def render(results) -> str:
         lines.append("")
     lines += [
         "## Sampler", "",
-        f"{s['walkers']} walkers, {s['steps']} steps, autocorrelation time {s['autocorr_steps']:.1f} steps, "
-        f"converged: {'yes' if s['converged'] else 'NO'}"
-        + (f", acceptance {s['acceptance_mean']:.2f}, {s['effective_samples']:.0f} effective samples, {s['seconds']:.1f} s" if "acceptance_mean" in s else ""),
+        (f"{s['walkers']} walkers, {s['steps']} steps, autocorrelation time {s['autocorr_steps']:.1f} steps, "
+         f"converged: {'yes' if s['converged'] else 'NO'}"
+         + (f", acceptance {s['acceptance_mean']:.2f}, {s['effective_samples']:.0f} effective samples, {s['seconds']:.1f} s" if "acceptance_mean" in s else ""))
+        if "live_points" not in s else
+        (f"nested sampling (dynesty): {s['live_points']} live points, {s['iterations']:,} iterations, "
+         f"{s['likelihood_calls']:,} likelihood calls, ln Z = {s['ln_z']:.2f} +- {s['ln_z_err']:.2f}, "
+         f"{s['effective_samples']:.0f} effective samples, {s['seconds']:.1f} s"),
         "",
         "## Priors", "", "| parameter | prior |", "|---|---|",
     ]  # fmt: skip
