@@ -594,10 +594,61 @@ def _add_predict(sub) -> None:
     p.set_defaults(run=_run_predict)
 
 
+def _run_events(args: argparse.Namespace) -> int:
+    import csv
+    import io
+
+    from rvkep.errors import OptionError
+    from rvkep.outputs import write_text
+    from rvkep.results import Results
+
+    if not args.end > args.start:
+        raise OptionError("--from T --to T needs T(to) > T(from)")
+    res = Results.load(args.run_dir)
+    if not res.labels:
+        raise OptionError(f"{args.run_dir}: the run has no companion, so no orbital events")
+    try:
+        rows = res.events(args.start, args.end)
+    except ValueError as exc:
+        raise OptionError(str(exc)) from None
+    buf = io.StringIO()
+    buf.write(f"# rvkep events: {args.run_dir} ({res.run_label()}); times in the data's system; "
+              "intervals 68.27% and 95.45% over the posterior\n")  # fmt: skip
+    fields = ["companion", "event", "time_median", "time_lo68", "time_hi68", "time_lo95",
+              "time_hi95", "transit_probability"]  # fmt: skip
+    w = csv.DictWriter(buf, fieldnames=fields, lineterminator="\n")
+    w.writeheader()
+    for row in rows:
+        w.writerow({k: (f"{v:.10g}" if isinstance(v, float) else ("" if v is None else v))
+                    for k, v in row.items()})  # fmt: skip
+    if args.out:
+        write_text(args.out, buf.getvalue())
+    else:
+        sys.stdout.write(buf.getvalue())
+    return 0
+
+
+def _add_events(sub) -> None:
+    p = sub.add_parser(
+        "events",
+        help="conjunctions, periastron passages and quadratures of a finished run (CSV)",
+        description="Read a finished run and list, for each companion, every conjunction "
+        "(transit, if the inclination allows), opposition, periastron and the two "
+        "quadratures between two times, each with its median time and 68%/95% intervals "
+        "from the posterior samples, and the a priori transit probability beside each "
+        "conjunction when the stellar radius is known.",
+    )
+    p.add_argument("run_dir", metavar="RUN_DIR")
+    p.add_argument("--from", dest="start", type=float, required=True, metavar="T")
+    p.add_argument("--to", dest="end", type=float, required=True, metavar="T")
+    p.add_argument("--out", default=None, metavar="FILE", help="default: standard output")
+    p.set_defaults(run=_run_events)
+
+
 # each entry adds one subcommand: add(subparsers) -> None, setting defaults(run=...)
 _SUBCOMMANDS: list = [
     _add_check, _add_periodogram, _add_analyze, _add_demo, _add_sample, _add_batch,
-    _add_predict,
+    _add_predict, _add_events,
 ]  # fmt: skip
 
 

@@ -211,6 +211,17 @@ class Results:
             instrument=instrument, typical_error=typical_error or 0.0, draws=draws, rng=rng,
         )  # fmt: skip
 
+    def events(self, start: float, end: float) -> list[dict]:
+        """Conjunctions, oppositions, periastron passages and quadratures of every
+        companion in [start, end] with their 68%/95% intervals from the posterior
+        (:func:`rvkep.events.event_times`); the a priori transit probability stands
+        beside each conjunction when the stellar radius is known."""
+        from rvkep.events import event_times
+
+        prob = {L: float(np.median(self.posterior[f"{L}.transit_probability"]))
+                for L in self.labels if f"{L}.transit_probability" in self.posterior}  # fmt: skip
+        return event_times(self.posterior.columns, self.labels, start, end, prob or None)
+
     # -- summaries ------------------------------------------------------------
 
     @property
