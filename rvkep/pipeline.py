@@ -358,7 +358,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
         clean_temporaries(out)  # left by a run that was killed
         _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                    f"{', '.join(data.instruments)}")  # fmt: skip
-        chosen = choose_model(data, opts, spec)
+        chosen = choose_model(data, opts, spec, folder=out)
         sampled, sample_notes, seed = sample_posterior(chosen.fit, opts, spec, out / "chain.h5",
                                                        nested=chosen.nested)  # fmt: skip
         results = _build_results(data, chosen, sampled, star, opts, seed,
@@ -434,9 +434,11 @@ class ModelChoice:
     extra_notes: list[str] = field(default_factory=list)  # from the evidence stage
 
 
-def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
+def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
+                 folder: Path | None = None) -> ModelChoice:  # fmt: skip
     """Stage 3: the trend degree(s) to try, the search and the number of companions for
-    each, and the choice between them (see the module text)."""
+    each, and the choice between them (see the module text); with evidences asked for,
+    their nested runs (checkpointed in ``folder`` when given)."""
     from rvkep.model import SystemModel
 
     columns = tuple(dict.fromkeys([*(spec.decorrelate if spec else ()), *opts.decorrelate]))
@@ -472,7 +474,7 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
         _say(opts, f"trend: degree {fit.model.trend} chosen of 0, 1, 2 (BIC, see trend_comparison)")
     choice = ModelChoice(search_result, fit, comparison, trend_rows, [], fits)
     if opts.evidence or opts.choose_by == "evidence" or opts.sampler == "nested":
-        compute_evidence(choice, opts, spec)
+        compute_evidence(choice, opts, spec, folder)
     choice.notes = choice.extra_notes + _selection_notes(search_result, choice.fit,
                                                          choice.comparison)  # fmt: skip
     for note in choice.notes:
@@ -486,7 +488,8 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None) -> ModelChoice:
 EVIDENCE_THRESHOLD = 5.0
 
 
-def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None) -> None:
+def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
+                     folder: Path | None = None) -> None:  # fmt: skip
     """ln Z by nested sampling (:mod:`rvkep.samplers.nested`) for N - 1, N and N + 1
     companions (every number fitted, with ``choose_by="evidence"``), kept in
     ``choice.evidence``; with ``choose_by="evidence"`` the number of companions is
@@ -508,8 +511,9 @@ def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None) -> No
         model = by_n[k].model
         if model.ndim == 0:
             continue
+        saved = folder / f"nested_{k}.save" if folder else None
         nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
-                              dlogz=0.5 if opts.quick else 0.1)  # fmt: skip
+                              dlogz=0.5 if opts.quick else 0.1, checkpoint=saved)  # fmt: skip
         _say(opts, f"nested sampling: {k} companion(s), {model.ndim} parameters, "
                    f"{nopts.n_live(model.ndim)} live points")  # fmt: skip
         runs[k] = get_sampler("nested").run(LogPosterior(model), by_n[k].theta, nopts)
@@ -603,12 +607,14 @@ def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | No
             from rvkep.samplers.nested import NestedOptions
 
             nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
-                                  dlogz=0.5 if opts.quick else 0.1)  # fmt: skip
+                                  dlogz=0.5 if opts.quick else 0.1,
+                                  checkpoint=checkpoint.with_name("nested_posterior.save")
+                                  if checkpoint else None)  # fmt: skip
             _say(opts, f"nested sampling {fit.model.ndim} parameters with "
                        f"{nopts.n_live(fit.model.ndim)} live points")  # fmt: skip
             nested = get_sampler("nested").run(LogPosterior(fit.model), fit.theta, nopts)
         return nested, ["posterior by nested sampling (dynesty): weighted samples, resampled "
-                        "to equal weights for the outputs; no checkpoint"], seed  # fmt: skip
+                        "to equal weights for the outputs"], seed  # fmt: skip
     sopts = SamplerOptions(walkers=sampling_spec.get("walkers"), max_steps=max_steps, seed=seed,
                            progress=None if not opts.quiet else False, checkpoint=checkpoint,
                            check_every=250 if opts.quick else 500)  # fmt: skip

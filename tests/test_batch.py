@@ -147,11 +147,16 @@ def test_unreachable_scheduler(tmp_path, capsys):
 
 
 def test_target_list_noise_and_decorrelation_columns(tmp_path):
+    p = tmp_path / "e.csv"
+    p.write_text("name,data,star_mass,star_mass_err,evidence\nx,a.txt,1,0.1,yes\ny,b.txt,1,0.1,\n")
+    x, y = read_targets(p)
+    assert x.evidence and not y.evidence
     p = tmp_path / "t.csv"
     p.write_text("name,data,star_mass,star_mass_err,noise,decorrelate\n"
                  "x,a.txt,1,0.1,gp,fwhm;bis\ny,b.txt,1,0.1,,\nz,c.txt,1,0.1,red,\n")  # fmt: skip
     x, y, z = read_targets(p)
     assert (x.noise, x.decorrelate) == ("gp", ("fwhm", "bis")) and not x.problem
+    assert not x.evidence
     assert (y.noise, y.decorrelate) == (None, ())
     assert "line 4: noise must be one of white, gp, got 'red'" in z.problem
 

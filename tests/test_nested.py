@@ -75,3 +75,28 @@ def test_evidence_of_a_linear_gaussian_model_matches_its_closed_form():
     sd = np.sqrt(np.diag(np.linalg.inv(A)))
     got = run.weights @ run.theta
     assert np.all(np.abs(got - mean) < 0.1 * sd)
+
+
+def test_checkpoint_resumes_the_same_run_and_refuses_another_model(tmp_path):
+    import warnings
+
+    from rvkep.sampling import CheckpointNotice
+
+    data, _ = linear_star()
+    model = linear_model(data)
+    path = tmp_path / "nested.save"
+    opts = NestedOptions(seed=3, live_points=100, progress=False, checkpoint=path)
+    first = get_sampler("nested").run(LogPosterior(model), model.start_theta(), opts)
+    assert path.exists() and not first.info["resumed"]
+    again = get_sampler("nested").run(LogPosterior(model), model.start_theta(), opts)
+    assert again.info["resumed"] and again.extra["ln_z"] == first.extra["ln_z"]
+    # another model (a wider prior on c's K) may not resume this state
+    from dataclasses import replace
+
+    other = model.with_companions([model.companions[0],
+                                   replace(model.companions[1], K=Normal(6.0, 3.0))])  # fmt: skip
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", CheckpointNotice)
+        fresh = get_sampler("nested").run(LogPosterior(other), other.start_theta(), opts)
+    assert not fresh.info["resumed"] and fresh.extra["ln_z"] != first.extra["ln_z"]
+    assert any("not resumed" in str(w.message) for w in caught)

@@ -12,7 +12,9 @@ trend) are proper Bayes factors; an absolute ln Z is not (common practice, no so
 Static nested sampling (Skilling 2004) with multi-ellipsoid bounds and random slice
 proposals (dynesty; Speagle 2020), stopped when the remaining evidence is below
 ``dlogz`` (default 0.1 in ln Z). The samples come with their importance weights; every
-output uses them (resampled to equal weights where a method needs that).
+output uses them (resampled to equal weights where a method needs that). With a
+checkpoint file, dynesty's state is saved every 30 s and a rerun of the same model and
+settings (keyed like the MCMC checkpoints) resumes it; any other run sets it aside.
 
 RV posteriors are narrow islands in wide period priors, with alias and harmonic modes
 around them; a nested run can miss the island and still return a confident-looking
@@ -31,8 +33,12 @@ References
 
 from __future__ import annotations
 
+import hashlib
+import json
 import time
+import warnings
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 
@@ -53,6 +59,7 @@ class NestedOptions:
     seed: int | None = 0
     progress: bool | None = None  # None: only on a terminal
     max_calls: int | None = None  # a cap on likelihood calls (None: none)
+    checkpoint: str | Path | None = None  # dynesty's state, saved every 30 s; resumed
 
     def n_live(self, ndim: int) -> int:
         return self.live_points or max(250, 25 * ndim)
@@ -68,6 +75,61 @@ def _nested_options(options) -> NestedOptions:
     return NestedOptions(
         seed=getattr(options, "seed", 0), progress=getattr(options, "progress", None)
     )
+
+
+class _LogLike:
+    """The likelihood as dynesty calls it, one point at a time (picklable, so that
+    dynesty's checkpoint can hold it)."""
+
+    def __init__(self, like):
+        self.like = like
+
+    def __call__(self, x):
+        value = float(self.like(x[None, :])[0])
+        return value if np.isfinite(value) else _FLOOR
+
+
+class _Transform:
+    def __init__(self, model):
+        self.model = model
+
+    def __call__(self, u):
+        return self.model.prior_transform(u)
+
+
+def _key(model, opts: NestedOptions, linear: str) -> str:
+    """Everything that changes a nested run's answer."""
+    settings = {
+        "model": model.canonical(),
+        "linear": linear,
+        "live": opts.n_live(model.ndim),
+        "dlogz": opts.dlogz,
+        "seed": opts.seed,
+        "sample": "rslice",
+        "bound": "multi",
+    }
+    text = json.dumps(settings, sort_keys=True, default=str)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def _restore(dynesty, path: Path, key: str):
+    """The saved sampler at ``path`` when its key file says it ran this model, else
+    None (a stale or damaged state is set aside, and said)."""
+    key_path = path.with_name(path.name + ".key")
+    if not path.exists():
+        return None
+    try:
+        if not key_path.exists() or key_path.read_text().strip() != key:
+            raise ValueError("it belongs to another model or other settings")
+        return dynesty.NestedSampler.restore(str(path))
+    except Exception as exc:  # noqa: BLE001 - anything a stale or damaged file raises
+        from rvkep.sampling import CheckpointNotice
+
+        kept = path.with_name(f"{path.name}.old-{time.strftime('%Y%m%d-%H%M%S')}")
+        path.replace(kept)
+        warnings.warn(f"{path}: not resumed ({exc}); kept as {kept.name}, starting afresh",
+                      CheckpointNotice, stacklevel=3)  # fmt: skip
+        return None
 
 
 class NestedSampler(Sampler):
@@ -92,22 +154,28 @@ class NestedSampler(Sampler):
         opts = _nested_options(options)
         model = posterior.model
         ndim = model.ndim
-        like = LogPosterior(model, getattr(posterior, "linear", "marginalize"), include_prior=False)
-
-        def loglike(x):
-            value = float(like(x[None, :])[0])
-            return value if np.isfinite(value) else _FLOOR
-
-        def transform(u):
-            return model.prior_transform(u)
-
+        linear = getattr(posterior, "linear", "marginalize")
+        like = LogPosterior(model, linear, include_prior=False)
         rng = np.random.default_rng(opts.seed)
         progress = sys.stderr.isatty() if opts.progress is None else bool(opts.progress)
         reference = float(like(np.atleast_2d(start))[0]) if start is not None else -np.inf
         t0 = time.perf_counter()
-        sampler = dynesty.NestedSampler(loglike, transform, ndim, nlive=opts.n_live(ndim),
-                                        bound="multi", sample="rslice", rstate=rng)  # fmt: skip
-        sampler.run_nested(dlogz=opts.dlogz, print_progress=progress, maxcall=opts.max_calls)
+        path = Path(opts.checkpoint) if opts.checkpoint is not None else None
+        key = _key(model, opts, linear)
+        sampler = _restore(dynesty, path, key) if path is not None else None
+        resumed = sampler is not None
+        if sampler is None:
+            sampler = dynesty.NestedSampler(_LogLike(like), _Transform(model), ndim,
+                                            nlive=opts.n_live(ndim), bound="multi",
+                                            sample="rslice", rstate=rng)  # fmt: skip
+        if path is not None:
+            path.with_name(path.name + ".key").write_text(key + "\n")
+        with warnings.catch_warnings():  # resuming a finished run: nothing left to do
+            warnings.filterwarnings("ignore", message="You are resuming a finished")
+            sampler.run_nested(dlogz=opts.dlogz, print_progress=progress,
+                               maxcall=opts.max_calls, resume=resumed,
+                               checkpoint_file=None if path is None else str(path),
+                               checkpoint_every=30)  # fmt: skip
         res = sampler.results
         seconds = time.perf_counter() - t0
         theta = np.asarray(res.samples, float)
@@ -139,6 +207,7 @@ class NestedSampler(Sampler):
             "converged": bool(done and not missed),
             "criterion": f"remaining evidence below dlogz = {opts.dlogz:g}, and the best "
             "fit's likelihood reached",
+            "resumed": resumed,
         }
         return SampleSet(model, theta, log_prob, weights, bool(done and not missed), info,
                          {"ln_z": ln_z, "ln_z_err": ln_z_err, "results": res})  # fmt: skip
