@@ -495,8 +495,6 @@ def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
     ``choice.evidence``; with ``choose_by="evidence"`` the number of companions is
     chosen by it (a larger number must raise ln Z by more than EVIDENCE_THRESHOLD).
     The nested run of the chosen model is kept for its posterior (``choice.nested``)."""
-    from rvkep.likelihood import LogPosterior
-    from rvkep.samplers import get_sampler
     from rvkep.samplers.nested import NestedOptions
 
     by_n = {len(f.model.companions): f for f in choice.fits}
@@ -516,7 +514,7 @@ def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
                               dlogz=0.5 if opts.quick else 0.1, checkpoint=saved)  # fmt: skip
         _say(opts, f"nested sampling: {k} companion(s), {model.ndim} parameters, "
                    f"{nopts.n_live(model.ndim)} live points")  # fmt: skip
-        runs[k] = get_sampler("nested").run(LogPosterior(model), by_n[k].theta, nopts)
+        runs[k] = _run_nested(model, by_n[k].theta, nopts, opts, choice.extra_notes)
         _say(opts, f"  ln Z = {runs[k].extra['ln_z']:.2f} +- {runs[k].extra['ln_z_err']:.2f} "
                    f"({runs[k].info['likelihood_calls']:,} likelihood calls, "
                    f"{runs[k].info['seconds']:.1f} s)")  # fmt: skip
@@ -585,6 +583,25 @@ def test_eccentricities(results, chosen: ModelChoice, opts: AnalyzeOptions, spec
     return again
 
 
+def _run_nested(model, start, nopts, opts: AnalyzeOptions, notes: list[str]):
+    """One nested run; a checkpoint it could not resume is said on the terminal and
+    kept in ``notes`` (results.json)."""
+    from rvkep.likelihood import LogPosterior
+    from rvkep.samplers import get_sampler
+    from rvkep.sampling import CheckpointNotice
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", CheckpointNotice)
+        run = get_sampler("nested").run(LogPosterior(model), start, nopts)
+    for w in caught:
+        if issubclass(w.category, CheckpointNotice):
+            _say(opts, f"note: {w.message}")
+            notes.append(str(w.message))
+        else:  # anything else the library says goes on as it was
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+    return run
+
+
 def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | None = None,
                      nested=None):  # fmt: skip
     """Stage 4: sample the chosen model's posterior (resumable through ``checkpoint``),
@@ -612,9 +629,12 @@ def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | No
                                   if checkpoint else None)  # fmt: skip
             _say(opts, f"nested sampling {fit.model.ndim} parameters with "
                        f"{nopts.n_live(fit.model.ndim)} live points")  # fmt: skip
-            nested = get_sampler("nested").run(LogPosterior(fit.model), fit.theta, nopts)
-        return nested, ["posterior by nested sampling (dynesty): weighted samples, resampled "
-                        "to equal weights for the outputs"], seed  # fmt: skip
+            notes: list[str] = []
+            nested = _run_nested(fit.model, fit.theta, nopts, opts, notes)
+        else:
+            notes = []
+        return nested, notes + ["posterior by nested sampling (dynesty): weighted samples, "
+                                "resampled to equal weights for the outputs"], seed  # fmt: skip
     sopts = SamplerOptions(walkers=sampling_spec.get("walkers"), max_steps=max_steps, seed=seed,
                            progress=None if not opts.quiet else False, checkpoint=checkpoint,
                            check_every=250 if opts.quick else 500)  # fmt: skip
