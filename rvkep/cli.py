@@ -274,6 +274,7 @@ def _analyze_options(args: argparse.Namespace, out: str):
         evidence=getattr(args, "evidence", False),
         choose_by=getattr(args, "choose_by", "bic"),
         circular=getattr(args, "circular", "no"),
+        timings=getattr(args, "timings", False),
     )
 
 
@@ -329,6 +330,8 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
         help="random seed (default 0, or the model file's); results reproduce",
     )
     p.add_argument("--quiet", action="store_true", help="no progress bar or messages")
+    p.add_argument("--timings", action="store_true",
+                   help="print the seconds each stage took (always in results.json)")  # fmt: skip
     p.add_argument(
         "--quick",
         action="store_true",

@@ -66,6 +66,7 @@ class AnalyzeOptions:
     evidence: bool = False  # ln Z by nested sampling for N - 1, N and N + 1 companions
     choose_by: str = "bic"  # how the number of companions is chosen: bic or evidence
     circular: str = "no"  # "auto": refit circular the orbits consistent with circular
+    timings: bool = False  # print the stage timings (always in results.json)
 
 
 def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
@@ -352,6 +353,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
     spec = read_model_file(opts.model_file) if opts.model_file else None
     data, data_notes = read_data(files, opts, spec)
     star = star_properties(opts, spec)
+    timings = {"read": time.perf_counter() - t_start}
     out = Path(opts.out)
     out.mkdir(parents=True, exist_ok=True)
     with folder_lock(out):  # one run per output folder
@@ -359,14 +361,24 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
         _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                    f"{', '.join(data.instruments)}")  # fmt: skip
         chosen = choose_model(data, opts, spec, folder=out)
+        timings.update(chosen.timings)
+        t0 = time.perf_counter()
         sampled, sample_notes, seed = sample_posterior(chosen.fit, opts, spec, out / "chain.h5",
                                                        nested=chosen.nested)  # fmt: skip
+        t1 = time.perf_counter()
         results = _build_results(data, chosen, sampled, star, opts, seed,
                                  data_notes + chosen.notes + sample_notes)  # fmt: skip
+        t2 = time.perf_counter()
         results = test_eccentricities(results, chosen, opts, spec, star, seed, out,
                                       data_notes + chosen.notes + sample_notes)  # fmt: skip
+        t3 = time.perf_counter()
+        timings.update(sampling=t1 - t0, derived=t2 - t1, eccentricity=t3 - t2)
+        results.timings = timings
         paths = write_outputs(results, out, opts)
     _say(opts, str(results))
+    if opts.timings:
+        print("timings: " + ", ".join(f"{k.replace('_', ' ')} {v:.2f} s"
+                                      for k, v in results.timings.items()), flush=True)  # fmt: skip
     _say(opts, f"done in {time.perf_counter() - t_start:.1f} s; results in {out}/ "
                f"({paths['json'].name}, {paths['summary'].name}, {paths['latex'].name}, "
                "figures)")  # fmt: skip
@@ -432,6 +444,7 @@ class ModelChoice:
     evidence: list[dict] = field(default_factory=list)  # ln Z per number of companions
     nested: object = None  # the nested run of the chosen model, when there is one
     extra_notes: list[str] = field(default_factory=list)  # from the evidence stage
+    timings: dict = field(default_factory=dict)  # seconds: model_choice, evidence
 
 
 def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
@@ -466,6 +479,7 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
         degrees = [spec.trend]  # the model file fixes it
     else:
         degrees = list(TREND_DEGREES) if trend == "auto" else [trend]
+    t0 = time.perf_counter()
     outcomes = [select_companions(data, replace(base, trend=d), opts, spec) for d in degrees]
     chosen, trend_rows = choose_trend(outcomes)
     search_result, fit, comparison, message, fits = outcomes[chosen]
@@ -473,8 +487,11 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
     if len(outcomes) > 1:
         _say(opts, f"trend: degree {fit.model.trend} chosen of 0, 1, 2 (BIC, see trend_comparison)")
     choice = ModelChoice(search_result, fit, comparison, trend_rows, [], fits)
+    t1 = time.perf_counter()
+    choice.timings["model_choice"] = t1 - t0  # the search and the best fits, every trend
     if opts.evidence or opts.choose_by == "evidence" or opts.sampler == "nested":
         compute_evidence(choice, opts, spec, folder)
+        choice.timings["evidence"] = time.perf_counter() - t1
     choice.notes = choice.extra_notes + _selection_notes(search_result, choice.fit,
                                                          choice.comparison)  # fmt: skip
     for note in choice.notes:
@@ -675,12 +692,14 @@ def _build_results(data, chosen: ModelChoice, sampled, star, opts, seed: int, no
 
 
 def write_outputs(results, out: Path, opts: AnalyzeOptions) -> dict[str, Path]:
-    """Stage 5: results.json, the summary, the tables, the samples, data.csv and (unless
-    ``opts.figures`` is false) the figures."""
-    paths = results.write(out)
+    """Stage 5: (unless ``opts.figures`` is false) the figures, then the summary, the
+    tables, the samples, data.csv, model.json and, last, results.json (whose presence
+    marks a complete folder, and which records the figures' and tables' times)."""
     if opts.figures:
+        t0 = time.perf_counter()
         write_figures(results, out, opts.fig_format)
-    return paths
+        results.timings["figures"] = time.perf_counter() - t0
+    return results.write(out)
 
 
 def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:

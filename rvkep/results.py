@@ -17,6 +17,7 @@ the stellar mass drawn per sample), and writes:
 from __future__ import annotations
 
 import json
+import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -49,6 +50,7 @@ class Results:
     notes: list[str] = field(default_factory=list)
     evidence: list[dict] = field(default_factory=list)  # ln Z per number of companions
     ecc_tests: dict = field(default_factory=dict)  # label: rvkep.eccentricity test
+    timings: dict = field(default_factory=dict)  # stage: seconds (analyze fills it)
     saved: dict | None = None  # results.json of a run read back by Results.load
 
     # -- building -------------------------------------------------------------
@@ -359,6 +361,7 @@ class Results:
             },
             "model_comparison": self.comparison,
             "evidence": list(self.evidence),
+            "timings": {k: float(v) for k, v in self.timings.items()},
             "trend_comparison": self.trend_comparison,
             "priors": [{"parameter": p, "prior": d} for p, d in model.describe_priors()],
             "reference_epoch": self.data.epoch,
@@ -421,6 +424,7 @@ class Results:
         """Write results.json, summary.md, parameters.tex/.csv and the samples."""
         from rvkep.outputs import write_text
 
+        t_start = time.perf_counter()
         out = Path(out)
         out.mkdir(parents=True, exist_ok=True)
         paths = {
@@ -436,6 +440,8 @@ class Results:
                      "best_fit_theta": [float(x) for x in self.fit.theta],
                      "log_likelihood": float(self.fit.log_likelihood)}  # fmt: skip
             paths["model"] = write_text(out / "model.json", json.dumps(_clean(model)) + "\n")
+        if self.saved is None:  # a fresh run: the time its tables took
+            self.timings["tables"] = time.perf_counter() - t_start
         # results.json last: its presence marks a complete result folder
         paths["json"] = write_text(
             out / "results.json", json.dumps(_clean(self.to_dict()), indent=2) + "\n"

@@ -90,3 +90,19 @@ def test_a_reloaded_run_rebuilds_its_fit_and_draws_the_same_curves(tmp_path):
 
     with pytest.raises(DataError, match="model.json and results.json disagree"):
         Results.load(tmp_path)
+
+
+def test_every_run_records_its_stage_timings(tmp_path, capsys):
+    import json
+
+    data = one_planet()
+    f = tmp_path / "a.txt"
+    f.write_text("".join(f"{t} {v} {e}\n" for t, v, e in zip(data.time, data.rv, data.err,
+                                                             strict=True)))  # fmt: skip
+    rvkep.analyze([str(f)], out=str(tmp_path / "o"), quick=True, quiet=True, trend=0,
+                  max_planets=1, timings=True)  # fmt: skip
+    line = capsys.readouterr().out.strip().splitlines()[-1]
+    assert line.startswith("timings: read ") and "sampling" in line and "figures" in line
+    t = json.loads((tmp_path / "o" / "results.json").read_text())["timings"]
+    stages = ["read", "model_choice", "sampling", "derived", "eccentricity", "figures", "tables"]
+    assert list(t) == stages and all(v >= 0 for v in t.values())
