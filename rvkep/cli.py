@@ -502,9 +502,75 @@ def _add_batch(sub) -> None:
 MAX_PREDICT_TIMES = 600_000
 
 
-def _prediction_times(args: argparse.Namespace):
+def _time_value(text: str, where: str):
+    """A time as given: a number in the data's system, or an ISO calendar date (kept
+    as text until the run's time system is known)."""
+    from rvkep.errors import OptionError
+    from rvkep.timeconv import looks_like_date
+
+    text = text.strip()
+    if looks_like_date(text):
+        return text
+    try:
+        return float(text)
+    except ValueError:
+        raise OptionError(f"{where}: {text!r} is neither a time in the data's system nor an "
+                          "ISO date (YYYY-MM-DD[THH:MM[:SS]], UTC)") from None  # fmt: skip
+
+
+def _add_date_args(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--ra", type=float, default=None, metavar="DEG",
+                   help="right ascension (ICRS, degrees), for calendar dates")  # fmt: skip
+    p.add_argument("--dec", type=float, default=None, metavar="DEG",
+                   help="declination (ICRS, degrees), for calendar dates")  # fmt: skip
+    p.add_argument("--site", default=None, metavar="LAT,LON,HEIGHT",
+                   help="the observatory (degrees north, degrees east, metres): for calendar "
+                   "dates")  # fmt: skip
+    p.add_argument("--time-offset", type=float, default=None, metavar="D",
+                   help="BJD_TDB minus the data's times (needed for calendar dates unless the "
+                   "data hold full BJDs)")  # fmt: skip
+
+
+def _to_data_times(values: list, args: argparse.Namespace, data_time) -> tuple:
+    """Numbers as they are; calendar dates (UTC) as BJD_TDB minus the data's offset.
+    Returns (times, a phrase for the output's header)."""
+    import numpy as np
+
+    from rvkep.timeconv import data_offset, dates_to_bjd_tdb, parse_site
+
+    dates = [v for v in values if isinstance(v, str)]
+    if not dates:
+        return np.array(values, float), ""
+    if args.ra is None or args.dec is None or args.site is None:
+        from rvkep.errors import OptionError
+
+        raise OptionError("calendar dates need the target's coordinates and the site: "
+                          "--ra DEG --dec DEG --site LAT,LON,HEIGHT (never guessed)")  # fmt: skip
+    site = parse_site(args.site)
+    if data_time is None:  # the run's time system is not known yet: converted later
+        from rvkep.errors import OptionError
+        from rvkep.timeconv import _is_iso
+
+        bad = next((d for d in dates if not _is_iso(d)), None)
+        if bad is not None:
+            raise OptionError(f"{bad!r} is not an ISO date (YYYY-MM-DD or "
+                              "YYYY-MM-DDTHH:MM[:SS], UTC)")  # fmt: skip
+        return None, ""
+    offset = data_offset(data_time, args.time_offset)
+    bjd = iter(dates_to_bjd_tdb(dates, args.ra, args.dec, site) - offset)
+    out = np.array([next(bjd) if isinstance(v, str) else v for v in values], float)
+    note = (
+        f"; calendar dates (UTC) converted to BJD_TDB toward RA {args.ra:g}, Dec "
+        f"{args.dec:g} from {args.site}"
+    )
+    note += f", minus {offset:g}" if offset else ""
+    return out, note
+
+
+def _prediction_times(args: argparse.Namespace, data_time=None):
     """The times of ``rvkep predict``: one per line of --times FILE (``#`` comments),
-    or --from/--to with --step; all in the data's own time system."""
+    or --from/--to with --step; numbers in the data's own time system, or ISO dates
+    (UTC; with --ra, --dec and --site, converted to BJD_TDB). Returns (times, note)."""
     import numpy as np
 
     from rvkep.errors import OptionError
@@ -519,30 +585,28 @@ def _prediction_times(args: argparse.Namespace):
             raise OptionError(f"--times {args.times}: cannot read ({exc.strerror})") from None
         for k, line in enumerate(lines, 1):
             cell = line.split("#", 1)[0].strip()
-            if not cell:
-                continue
-            try:
-                value = float(cell)
-            except ValueError:
-                raise OptionError(
-                    f"{args.times}, line {k}: {cell!r} is not a time in the data's system "
-                    "(calendar dates would need the target's coordinates and a site to become "
-                    "barycentric times; give them as numbers like the data's)"
-                ) from None
-            values.append(value)
-        t = np.array(values)
+            if cell:
+                values.append(_time_value(cell, f"{args.times}, line {k}"))
+        t, note = _to_data_times(values, args, data_time)
+        if t is None:
+            return None, ""
     else:
-        if args.end is None or not args.end > args.start or not args.step > 0:
+        given = [_time_value(args.start, "--from"), _time_value(args.end or "", "--to")]
+        ends, note = _to_data_times(given, args, data_time)
+        if ends is None:
+            return None, ""
+        start, end = ends
+        if not end > start or not args.step > 0:
             raise OptionError("--from T --to T needs T(to) > T(from) and a positive --step")
-        n = int(np.floor((args.end - args.start) / args.step + 1e-9)) + 1
+        n = int(np.floor((end - start) / args.step + 1e-9)) + 1
         if n > MAX_PREDICT_TIMES:
             raise OptionError(f"{n:,} times: more than {MAX_PREDICT_TIMES:,}; raise --step")
-        t = args.start + args.step * np.arange(n)
+        t = start + args.step * np.arange(n)
     if t.size == 0 or not np.all(np.isfinite(t)):
         raise OptionError("no finite prediction times given")
     if t.size > MAX_PREDICT_TIMES:
         raise OptionError(f"{t.size:,} times: more than {MAX_PREDICT_TIMES:,}")
-    return t
+    return t, note
 
 
 def _run_predict(args: argparse.Namespace) -> int:
@@ -553,8 +617,10 @@ def _run_predict(args: argparse.Namespace) -> int:
     from rvkep.outputs import write_text
     from rvkep.results import Results
 
-    t = _prediction_times(args)  # checked before the run is read
+    t, note = _prediction_times(args)  # checked before the run is read (dates: later)
     res = Results.load(args.run_dir)
+    if t is None:
+        t, note = _prediction_times(args, res.data.time)
     if args.instrument is not None and args.instrument not in res.instrument_names:
         raise OptionError(f"--instrument {args.instrument!r}: the run's instruments are "
                           f"{', '.join(res.instrument_names)}")  # fmt: skip
@@ -563,8 +629,8 @@ def _run_predict(args: argparse.Namespace) -> int:
     pred = res.predict(t, instrument=args.instrument, draws=args.draws, rng=args.seed)
     rows = pred.rows()
     buf = io.StringIO()
-    buf.write(f"# rvkep predict: {args.run_dir} ({res.run_label()}); times in the data's system; "
-              "velocities in m/s; intervals 68.27% and 95.45%\n")  # fmt: skip
+    buf.write(f"# rvkep predict: {args.run_dir} ({res.run_label()}); times in the data's system"
+              f"{note}; velocities in m/s; intervals 68.27% and 95.45%\n")  # fmt: skip
     w = csv.DictWriter(buf, fieldnames=list(rows[0]), lineterminator="\n")
     w.writeheader()
     for row in rows:
@@ -587,9 +653,10 @@ def _add_predict(sub) -> None:
     )
     p.add_argument("run_dir", metavar="RUN_DIR")
     p.add_argument("--times", metavar="FILE", help="one time per line, in the data's system")
-    p.add_argument("--from", dest="start", type=float, metavar="T")
-    p.add_argument("--to", dest="end", type=float, metavar="T")
+    p.add_argument("--from", dest="start", metavar="T", help="a time or an ISO date (UTC)")
+    p.add_argument("--to", dest="end", metavar="T")
     p.add_argument("--step", type=float, default=1.0, metavar="D", help="days (default 1)")
+    _add_date_args(p)
     p.add_argument("--instrument", default=None, metavar="NAME")
     p.add_argument("--draws", type=int, default=None, help="posterior draws (default: all)")
     p.add_argument("--seed", type=int, default=0)
@@ -605,18 +672,20 @@ def _run_events(args: argparse.Namespace) -> int:
     from rvkep.outputs import write_text
     from rvkep.results import Results
 
-    if not args.end > args.start:
-        raise OptionError("--from T --to T needs T(to) > T(from)")
     res = Results.load(args.run_dir)
+    given = [_time_value(args.start, "--from"), _time_value(args.end, "--to")]
+    (start, end), note = _to_data_times(given, args, res.data.time)
+    if not end > start:
+        raise OptionError("--from T --to T needs T(to) > T(from)")
     if not res.labels:
         raise OptionError(f"{args.run_dir}: the run has no companion, so no orbital events")
     try:
-        rows = res.events(args.start, args.end)
+        rows = res.events(start, end)
     except ValueError as exc:
         raise OptionError(str(exc)) from None
     buf = io.StringIO()
-    buf.write(f"# rvkep events: {args.run_dir} ({res.run_label()}); times in the data's system; "
-              "intervals 68.27% and 95.45% over the posterior\n")  # fmt: skip
+    buf.write(f"# rvkep events: {args.run_dir} ({res.run_label()}); times in the data's system"
+              f"{note}; intervals 68.27% and 95.45% over the posterior\n")  # fmt: skip
     fields = ["companion", "event", "time_median", "time_lo68", "time_hi68", "time_lo95",
               "time_hi95", "transit_probability"]  # fmt: skip
     w = csv.DictWriter(buf, fieldnames=fields, lineterminator="\n")
@@ -642,8 +711,10 @@ def _add_events(sub) -> None:
         "conjunction when the stellar radius is known.",
     )
     p.add_argument("run_dir", metavar="RUN_DIR")
-    p.add_argument("--from", dest="start", type=float, required=True, metavar="T")
-    p.add_argument("--to", dest="end", type=float, required=True, metavar="T")
+    p.add_argument("--from", dest="start", required=True, metavar="T",
+                   help="a time in the data's system or an ISO date (UTC)")  # fmt: skip
+    p.add_argument("--to", dest="end", required=True, metavar="T")
+    _add_date_args(p)
     p.add_argument("--out", default=None, metavar="FILE", help="default: standard output")
     p.set_defaults(run=_run_events)
 

@@ -103,3 +103,24 @@ def test_an_event_near_a_phase_boundary_is_not_split_between_orbits():
     assert len(rows) == 3
     for r in rows:
         assert r["time_hi95"] - r["time_lo95"] < 0.5, r
+
+
+def test_calendar_dates_with_coordinates_and_site(run, tmp_path, capsys):
+    from rvkep.cli import main
+    from rvkep.timeconv import dates_to_bjd_tdb
+
+    run.write(tmp_path / "run")
+    where = ["--ra", "150.5", "--dec=-20.25", "--site=-24.6,-70.4,2600"]  # "=": a leading minus
+    assert main(["events", str(tmp_path / "run"), "--from", "2026-12-10", "--to",
+                 "2026-12-20", *where]) == 0  # fmt: skip
+    lines = capsys.readouterr().out.splitlines()
+    assert "calendar dates (UTC) converted to BJD_TDB toward RA 150.5, Dec -20.25" in lines[0]
+    start, end = dates_to_bjd_tdb(["2026-12-10", "2026-12-20"], 150.5, -20.25,
+                                  (-24.6, -70.4, 2600.0))  # fmt: skip
+    medians = [float(x.split(",")[2]) for x in lines[2:]]
+    assert len(medians) == len(run.events(start, end)) > 0
+    assert all(start <= m <= end for m in medians)
+    # without the coordinates a date is refused in one line, exit 2
+    assert main(["events", str(tmp_path / "run"), "--from", "2026-12-10", "--to",
+                 "2026-12-20"]) == 2  # fmt: skip
+    assert "never guessed" in capsys.readouterr().err

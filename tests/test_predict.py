@@ -121,7 +121,39 @@ def test_predict_command_refuses_bad_requests_in_one_line(tmp_path, capsys):
         ([str(tmp_path)], "either --times FILE or --from"),
         ([str(tmp_path), "--from", "5", "--to", "4"], "T(to) > T(from)"),
         ([str(tmp_path), "--from", "0", "--to", "1e7", "--step", "1"], "raise --step"),
-        ([str(tmp_path), "--times", str(times)], "t.txt, line 2: '2026-12-03' is not a time"),
+        ([str(tmp_path), "--times", str(times)], "calendar dates need the target's coordinates"),
+        (
+            [
+                str(tmp_path),
+                "--from",
+                "2026-13-45",
+                "--to",
+                "2026-12-20",
+                "--ra",
+                "10",
+                "--dec",
+                "20",
+                "--site",
+                "0,0,0",
+            ],
+            "'2026-13-45' is not an ISO date",
+        ),
+        (
+            [
+                str(tmp_path),
+                "--from",
+                "2026-12-01",
+                "--to",
+                "2026-12-20",
+                "--ra",
+                "10",
+                "--dec",
+                "20",
+                "--site",
+                "0,0",
+            ],
+            "--site must be LAT,LON,HEIGHT",
+        ),
     ):
         assert main(["predict", *args]) == 2
         err = capsys.readouterr().err.strip()
