@@ -344,3 +344,34 @@ def test_ambiguity_notes_follow_the_companion_at_that_period():
              NS(period=11.871, ambiguous_with=[], activity=[])]  # fmt: skip
     notes = _selection_notes(NS(significant=found), fit, [])
     assert len(notes) == 1 and notes[0].startswith("period of c is AMBIGUOUS")
+
+
+def test_this_wave_s_functions_leave_their_arguments_alone():
+    from dataclasses import replace
+
+    from rvkep.eccentricity import eccentricity_tests
+    from rvkep.events import event_times
+    from rvkep.optimize import fit_companions
+    from rvkep.posterior import PosteriorSamples
+
+    data = one_planet()
+    gp = SystemModel(data, [], noise="gp")
+    gp_before = _snapshot(gp)
+    started = gp.noise_model.initial(gp)  # new start values come back in a new model
+    assert _snapshot(gp) == gp_before and started is not gp
+    first = fit_companions(data, [[9.4]])
+    model_before, theta_before = _snapshot(first.model), first.theta.copy()
+    params_before = dict(first.params)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        run = run_sampler(first.model, first.theta,
+                          SamplerOptions(seed=1, max_steps=100, progress=False))  # fmt: skip
+    post = PosteriorSamples.from_chain(first.model, run.flat)
+    columns = {k: v.copy() for k, v in post.columns.items()}
+    eccentricity_tests(first, post)
+    event_times(post.columns, ["b"], 2459200.0, 2459300.0)
+    assert all(np.array_equal(post.columns[k], v) for k, v in columns.items())
+    assert _snapshot(first.model) == model_before and np.array_equal(first.theta, theta_before)
+    assert first.params == params_before
+    replace(first.model, decorrelate=())  # a new model; the first keeps its own
+    assert _snapshot(first.model) == model_before
