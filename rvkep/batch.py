@@ -9,7 +9,9 @@ The target list is a CSV file with the columns
 * optional: ``max_planets``, ``planets``, ``model`` (a model file), ``kms`` (true/false),
   ``trend`` (auto, 0, 1, 2; default auto), ``noise`` (white or gp; default the model
   file's, else white), ``decorrelate`` (indicator columns separated by ``;``),
-  ``evidence`` (true/false: ln Z by nested sampling, as ``analyze --evidence``).
+  ``evidence`` (true/false: ln Z by nested sampling, as ``analyze --evidence``),
+  ``figures`` (all, summary or none; default all: corner plots and periodograms are
+  the slowest part of a quick target).
 
 Each target runs :func:`rvkep.pipeline.analyze` into its own folder with its own log
 file (``log.txt``); a failure (bad file, failed fit) is recorded as one line in
@@ -49,7 +51,17 @@ from rvkep.outputs import clean_temporaries, write_text
 __all__ = ["Target", "read_targets", "run_target", "run_batch", "write_summary", "SUMMARY_FIELDS"]
 
 _REQUIRED = ("name", "data", "star_mass", "star_mass_err")
-_OPTIONAL = ("max_planets", "planets", "model", "kms", "trend", "noise", "decorrelate", "evidence")
+_OPTIONAL = (
+    "max_planets",
+    "planets",
+    "model",
+    "kms",
+    "trend",
+    "noise",
+    "decorrelate",
+    "evidence",
+    "figures",
+)
 SUMMARY_FIELDS = [
     "row", "name", "status", "n_planets", "seconds", "error", "run_kind", "converged",
     "quick", "star_mass_assumed", "label",
@@ -74,6 +86,7 @@ class Target:
     noise: str | None = None
     decorrelate: tuple[str, ...] = ()
     evidence: bool = False
+    figures: str = "all"
     line: int = 0
     problem: str = ""  # why this target cannot run (it fails alone; see read_targets)
 
@@ -231,6 +244,10 @@ def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Targe
         kw["kms"] = _bool(rec["kms"], "kms")
     if "evidence" in rec:
         kw["evidence"] = _bool(rec["evidence"], "evidence")
+    if rec.get("figures"):
+        if rec["figures"] not in ("all", "summary", "none"):
+            raise DataError(f"figures must be all, summary or none, got {rec['figures']!r}")
+        kw["figures"] = rec["figures"]
     return Target(name, tuple(files), mass, err, line=line, **kw)
 
 
@@ -275,7 +292,7 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
                 planets=target.planets, max_planets=target.max_planets, model_file=target.model,
                 out=str(folder), seed=_target_seed(seed, target.name), quiet=False, quick=quick,
                 trend=target.trend, noise=target.noise, decorrelate=target.decorrelate,
-                evidence=target.evidence,
+                evidence=target.evidence, figures=target.figures,
             )  # fmt: skip
             analyze(list(target.files), opts)
         except KeyboardInterrupt:

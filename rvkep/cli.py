@@ -243,6 +243,12 @@ def _add_evidence_args(p: argparse.ArgumentParser, choose: bool = True) -> None:
         )  # fmt: skip
 
 
+def _add_figures_arg(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--figures", default="all", choices=("all", "summary", "none"),
+                   help="all (default), summary (time series and phase curves: no corner "
+                   "plots or periodograms) or none")  # fmt: skip
+
+
 def _analyze_options(args: argparse.Namespace, out: str):
     from rvkep.pipeline import AnalyzeOptions
 
@@ -275,6 +281,7 @@ def _analyze_options(args: argparse.Namespace, out: str):
         choose_by=getattr(args, "choose_by", "bic"),
         circular=getattr(args, "circular", "no"),
         timings=getattr(args, "timings", False),
+        figures=getattr(args, "figures", "all"),
     )
 
 
@@ -332,6 +339,7 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bar or messages")
     p.add_argument("--timings", action="store_true",
                    help="print the seconds each stage took (always in results.json)")  # fmt: skip
+    _add_figures_arg(p)
     p.add_argument(
         "--quick",
         action="store_true",
@@ -438,6 +446,7 @@ def _add_sample(sub) -> None:
     _add_noise_arg(p)
     _add_decorrelate_arg(p)
     _add_evidence_args(p, choose=False)
+    _add_figures_arg(p)
     p.add_argument("--quiet", action="store_true")
     p.add_argument("--format", default="png", choices=("png", "pdf"))
     p.set_defaults(run=_run_sample)

@@ -58,7 +58,7 @@ class AnalyzeOptions:
     trend: int | str = "auto"  # "auto": degrees 0, 1, 2 compete (choose_trend)
     fig_format: str = "png"
     max_steps: int | None = None
-    figures: bool = True
+    figures: bool | str = True  # "all" (True), "summary" (time series, phases), "none" (False)
     bin_days: float | None = None  # average each instrument's points in bins this wide
     noise: str | None = None  # noise model (rvkep.noise); None: the model file's, else white
     decorrelate: tuple[str, ...] = ()  # indicator columns: a linear coefficient each
@@ -301,6 +301,7 @@ def validate_options(opts: AnalyzeOptions) -> None:
 
     if opts.sampler not in SAMPLERS:
         raise OptionError(f"--sampler must be one of {', '.join(SAMPLERS)}, got {opts.sampler!r}")
+    figure_set(opts.figures)
     if opts.circular not in ("no", "auto"):
         raise OptionError(f"--circular must be no or auto, got {opts.circular!r}")
     if opts.choose_by not in ("bic", "evidence"):
@@ -695,16 +696,34 @@ def write_outputs(results, out: Path, opts: AnalyzeOptions) -> dict[str, Path]:
     """Stage 5: (unless ``opts.figures`` is false) the figures, then the summary, the
     tables, the samples, data.csv, model.json and, last, results.json (whose presence
     marks a complete folder, and which records the figures' and tables' times)."""
-    if opts.figures:
+    which = figure_set(opts.figures)
+    if which != "none":
         t0 = time.perf_counter()
-        write_figures(results, out, opts.fig_format)
+        write_figures(results, out, opts.fig_format, which)
         results.timings["figures"] = time.perf_counter() - t0
     return results.write(out)
 
 
-def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
+#: which figures each choice of ``--figures`` draws
+FIGURE_SETS = {"all": ("timeseries", "phase", "corner", "periodogram"),
+               "summary": ("timeseries", "phase"), "none": ()}  # fmt: skip
+
+
+def figure_set(choice: bool | str) -> str:
+    """The name in FIGURE_SETS of an ``AnalyzeOptions.figures`` value."""
+    if choice is True:
+        return "all"
+    if choice is False:
+        return "none"
+    if choice not in FIGURE_SETS:
+        raise OptionError(f"--figures must be one of {', '.join(FIGURE_SETS)}, got {choice!r}")
+    return choice
+
+
+def write_figures(results, out: str | Path, fmt: str = "png", which: str = "all") -> list[Path]:
     """Save the time series, phase curves, periodograms and corner plots of a result
-    (drawn by the figure functions of :mod:`rvkep.plots` from the Results)."""
+    (drawn by the figure functions of :mod:`rvkep.plots` from the Results); ``which``
+    names a set of :data:`FIGURE_SETS` (``summary``: time series and phase curves)."""
     from rvkep import __version__
     from rvkep.outputs import save_figure as _save
     from rvkep.plots import corner_figure, phase_figure, plot_periodograms, timeseries_figure
@@ -719,10 +738,15 @@ def write_figures(results, out: str | Path, fmt: str = "png") -> list[Path]:
         key = "Subject" if str(path).endswith(".pdf") else "Description"
         return _save(fig, path, metadata={key: footer})
 
-    written = [save_figure(timeseries_figure(results), out / f"timeseries.{fmt}")]
+    kinds = FIGURE_SETS[which]
+    written = []
+    if "timeseries" in kinds:
+        written.append(save_figure(timeseries_figure(results), out / f"timeseries.{fmt}"))
     for L in results.labels:
-        written.append(save_figure(phase_figure(results, L), out / f"phase_{L}.{fmt}"))
-        written.append(save_figure(corner_figure(results, L), out / f"corner_{L}.{fmt}"))
-    if results.search is not None:
+        if "phase" in kinds:
+            written.append(save_figure(phase_figure(results, L), out / f"phase_{L}.{fmt}"))
+        if "corner" in kinds:
+            written.append(save_figure(corner_figure(results, L), out / f"corner_{L}.{fmt}"))
+    if "periodogram" in kinds and results.search is not None:
         written.append(save_figure(plot_periodograms(results.search), out / f"periodogram.{fmt}"))
     return written

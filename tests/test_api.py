@@ -106,3 +106,31 @@ def test_every_run_records_its_stage_timings(tmp_path, capsys):
     t = json.loads((tmp_path / "o" / "results.json").read_text())["timings"]
     stages = ["read", "model_choice", "sampling", "derived", "eccentricity", "figures", "tables"]
     assert list(t) == stages and all(v >= 0 for v in t.values())
+
+
+def test_figures_all_summary_or_none(tmp_path):
+    import json
+
+    from rvkep.batch import read_targets
+    from rvkep.errors import OptionError
+    from rvkep.pipeline import figure_set
+
+    data = one_planet()
+    f = tmp_path / "a.txt"
+    f.write_text("".join(f"{t} {v} {e}\n" for t, v, e in zip(data.time, data.rv, data.err,
+                                                             strict=True)))  # fmt: skip
+    for which, expected in (("summary", {"timeseries.png", "phase_b.png"}), ("none", set())):
+        out = tmp_path / which
+        rvkep.analyze([str(f)], out=str(out), quick=True, quiet=True, trend=0, max_planets=1,
+                      figures=which)  # fmt: skip
+        assert {p.name for p in out.glob("*.png")} == expected
+        timings = json.loads((out / "results.json").read_text())["timings"]
+        assert ("figures" in timings) == bool(expected)
+    assert figure_set(True) == "all" and figure_set(False) == "none"
+    with pytest.raises(OptionError, match="--figures must be one of all, summary, none"):
+        figure_set("some")
+    p = tmp_path / "t.csv"
+    p.write_text("name,data,star_mass,star_mass_err,figures\nx,a.txt,1,0.1,summary\n"
+                 "y,a.txt,1,0.1,pretty\n")  # fmt: skip
+    x, y = read_targets(p)
+    assert x.figures == "summary" and "figures must be all, summary or none" in y.problem
