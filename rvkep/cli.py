@@ -545,25 +545,14 @@ def _to_data_times(values: list, args: argparse.Namespace, data_time) -> tuple:
     Returns (times, a phrase for the output's header)."""
     import numpy as np
 
-    from rvkep.timeconv import data_offset, dates_to_bjd_tdb, parse_site
+    from rvkep.timeconv import check_request, data_offset, dates_to_bjd_tdb, parse_site
 
     dates = [v for v in values if isinstance(v, str)]
     if not dates:
         return np.array(values, float), ""
-    if args.ra is None or args.dec is None or args.site is None:
-        from rvkep.errors import OptionError
-
-        raise OptionError("calendar dates need the target's coordinates and the site: "
-                          "--ra DEG --dec DEG --site LAT,LON,HEIGHT (never guessed)")  # fmt: skip
-    site = parse_site(args.site)
+    site = parse_site(args.site) if args.site is not None else None
+    check_request(dates, args.ra, args.dec, site)
     if data_time is None:  # the run's time system is not known yet: converted later
-        from rvkep.errors import OptionError
-        from rvkep.timeconv import _is_iso
-
-        bad = next((d for d in dates if not _is_iso(d)), None)
-        if bad is not None:
-            raise OptionError(f"{bad!r} is not an ISO date (YYYY-MM-DD or "
-                              "YYYY-MM-DDTHH:MM[:SS], UTC)")  # fmt: skip
         return None, ""
     offset = data_offset(data_time, args.time_offset)
     bjd = iter(dates_to_bjd_tdb(dates, args.ra, args.dec, site) - offset)
@@ -618,12 +607,29 @@ def _prediction_times(args: argparse.Namespace, data_time=None):
     return t, note
 
 
-def _run_predict(args: argparse.Namespace) -> int:
+def _write_csv(out: str | None, comment: str, fields: list[str], rows: list[dict]) -> None:
+    """A ``#`` comment line, then a CSV of ``rows`` (floats to 10 significant digits,
+    None as an empty cell) to ``out`` (atomically) or to standard output."""
     import csv
     import io
 
-    from rvkep.errors import OptionError
     from rvkep.outputs import write_text
+
+    buf = io.StringIO()
+    buf.write(f"# {comment}\n")
+    w = csv.DictWriter(buf, fieldnames=fields, lineterminator="\n")
+    w.writeheader()
+    for row in rows:
+        w.writerow({k: (f"{v:.10g}" if isinstance(v, float) else ("" if v is None else v))
+                    for k, v in row.items()})  # fmt: skip
+    if out:
+        write_text(out, buf.getvalue())
+    else:
+        sys.stdout.write(buf.getvalue())
+
+
+def _run_predict(args: argparse.Namespace) -> int:
+    from rvkep.errors import OptionError
     from rvkep.results import Results
 
     t, note = _prediction_times(args)  # checked before the run is read (dates: later)
@@ -637,17 +643,9 @@ def _run_predict(args: argparse.Namespace) -> int:
         raise OptionError("--draws must be at least 1")
     pred = res.predict(t, instrument=args.instrument, draws=args.draws, rng=args.seed)
     rows = pred.rows()
-    buf = io.StringIO()
-    buf.write(f"# rvkep predict: {args.run_dir} ({res.run_label()}); times in the data's system"
-              f"{note}; velocities in m/s; intervals 68.27% and 95.45%\n")  # fmt: skip
-    w = csv.DictWriter(buf, fieldnames=list(rows[0]), lineterminator="\n")
-    w.writeheader()
-    for row in rows:
-        w.writerow({k: f"{v:.10g}" for k, v in row.items()})
-    if args.out:
-        write_text(args.out, buf.getvalue())
-    else:
-        sys.stdout.write(buf.getvalue())
+    _write_csv(args.out, f"rvkep predict: {args.run_dir} ({res.run_label()}); times in the "
+               f"data's system{note}; velocities in m/s; intervals 68.27% and 95.45%",
+               list(rows[0]), rows)  # fmt: skip
     return 0
 
 
@@ -674,11 +672,7 @@ def _add_predict(sub) -> None:
 
 
 def _run_events(args: argparse.Namespace) -> int:
-    import csv
-    import io
-
     from rvkep.errors import OptionError
-    from rvkep.outputs import write_text
     from rvkep.results import Results
 
     res = Results.load(args.run_dir)
@@ -692,20 +686,11 @@ def _run_events(args: argparse.Namespace) -> int:
         rows = res.events(start, end)
     except ValueError as exc:
         raise OptionError(str(exc)) from None
-    buf = io.StringIO()
-    buf.write(f"# rvkep events: {args.run_dir} ({res.run_label()}); times in the data's system"
-              f"{note}; intervals 68.27% and 95.45% over the posterior\n")  # fmt: skip
     fields = ["companion", "event", "time_median", "time_lo68", "time_hi68", "time_lo95",
               "time_hi95", "transit_probability"]  # fmt: skip
-    w = csv.DictWriter(buf, fieldnames=fields, lineterminator="\n")
-    w.writeheader()
-    for row in rows:
-        w.writerow({k: (f"{v:.10g}" if isinstance(v, float) else ("" if v is None else v))
-                    for k, v in row.items()})  # fmt: skip
-    if args.out:
-        write_text(args.out, buf.getvalue())
-    else:
-        sys.stdout.write(buf.getvalue())
+    _write_csv(args.out, f"rvkep events: {args.run_dir} ({res.run_label()}); times in the "
+               f"data's system{note}; intervals 68.27% and 95.45% over the posterior",
+               fields, rows)  # fmt: skip
     return 0
 
 

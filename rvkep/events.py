@@ -31,6 +31,8 @@ from collections.abc import Mapping
 
 import numpy as np
 
+from rvkep.orbit import conjunction_mean_anomaly
+
 __all__ = ["EVENTS", "event_times", "MAX_EVENT_ROWS"]
 
 EVENTS = ("conjunction", "opposition", "periastron", "quadrature_max", "quadrature_min")
@@ -50,10 +52,10 @@ def _true_anomaly(event: str, omega: np.ndarray) -> np.ndarray:
 
 
 def _mean_anomaly(nu: np.ndarray, ecc: np.ndarray) -> np.ndarray:
-    """Mean anomaly in [0, 2 pi) of true anomaly ``nu``."""
-    half = 0.5 * np.mod(nu, 2 * np.pi)
-    E = 2.0 * np.arctan2(np.sqrt(1.0 - ecc) * np.sin(half), np.sqrt(1.0 + ecc) * np.cos(half))
-    return np.mod(E - ecc * np.sin(E), 2 * np.pi)
+    """Mean anomaly in [0, 2 pi) of true anomaly ``nu``: the conjunction's formula
+    (:func:`rvkep.orbit.conjunction_mean_anomaly`, at nu = pi/2 - omega) with
+    omega = pi/2 - nu."""
+    return np.mod(conjunction_mean_anomaly(ecc, 0.5 * np.pi - nu), 2 * np.pi)
 
 
 def _phase(columns: Mapping, label: str, event: str) -> np.ndarray:

@@ -513,7 +513,6 @@ def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
     ``choice.evidence``; with ``choose_by="evidence"`` the number of companions is
     chosen by it (a larger number must raise ln Z by more than EVIDENCE_THRESHOLD).
     The nested run of the chosen model is kept for its posterior (``choice.nested``)."""
-    from rvkep.samplers.nested import NestedOptions
 
     by_n = {len(f.model.companions): f for f in choice.fits}
     n = len(choice.fit.model.companions)
@@ -521,18 +520,13 @@ def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
                                                                  if k in by_n]  # fmt: skip
     if not (opts.evidence or opts.choose_by == "evidence"):
         wanted = [n]  # only the posterior of the chosen model (--sampler nested)
-    seed = opts.seed if opts.seed is not None else (spec.sampling.get("seed", 0) if spec else 0)
     runs = {}
     for k in wanted:
         model = by_n[k].model
         if model.ndim == 0:
             continue
         saved = folder / f"nested_{k}.save" if folder else None
-        nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
-                              dlogz=0.5 if opts.quick else 0.1, checkpoint=saved)  # fmt: skip
-        _say(opts, f"nested sampling: {k} companion(s), {model.ndim} parameters, "
-                   f"{nopts.n_live(model.ndim)} live points")  # fmt: skip
-        runs[k] = _run_nested(model, by_n[k].theta, nopts, opts, choice.extra_notes)
+        runs[k] = _run_nested(by_n[k], opts, _seed(opts, spec), saved, choice.extra_notes)
         _say(opts, f"  ln Z = {runs[k].extra['ln_z']:.2f} +- {runs[k].extra['ln_z_err']:.2f} "
                    f"({runs[k].info['likelihood_calls']:,} likelihood calls, "
                    f"{runs[k].info['seconds']:.1f} s)")  # fmt: skip
@@ -601,16 +595,29 @@ def test_eccentricities(results, chosen: ModelChoice, opts: AnalyzeOptions, spec
     return again
 
 
-def _run_nested(model, start, nopts, opts: AnalyzeOptions, notes: list[str]):
-    """One nested run; a checkpoint it could not resume is said on the terminal and
-    kept in ``notes`` (results.json)."""
+def _seed(opts: AnalyzeOptions, spec=None) -> int:
+    """The run's seed: the option, else the model file's ``[sampling]`` seed, else 0."""
+    if opts.seed is not None:
+        return opts.seed
+    return spec.sampling.get("seed", 0) if spec else 0
+
+
+def _run_nested(fit, opts: AnalyzeOptions, seed: int, checkpoint: Path | None, notes: list[str]):
+    """One nested run of ``fit.model`` (checked against the best fit ``fit.theta``); a
+    checkpoint it could not resume is said on the terminal and kept in ``notes``."""
     from rvkep.likelihood import LogPosterior
     from rvkep.samplers import get_sampler
+    from rvkep.samplers.nested import NestedOptions
     from rvkep.sampling import CheckpointNotice
 
+    model = fit.model
+    nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
+                          dlogz=0.5 if opts.quick else 0.1, checkpoint=checkpoint)  # fmt: skip
+    _say(opts, f"nested sampling: {len(model.companions)} companion(s), {model.ndim} "
+               f"parameters, {nopts.n_live(model.ndim)} live points")  # fmt: skip
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", CheckpointNotice)
-        run = get_sampler("nested").run(LogPosterior(model), start, nopts)
+        run = get_sampler("nested").run(LogPosterior(model), fit.theta, nopts)
     for w in caught:
         if issubclass(w.category, CheckpointNotice):
             _say(opts, f"note: {w.message}")
@@ -633,22 +640,15 @@ def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | No
     from rvkep.sampling import CheckpointNotice, SamplerOptions, UnconvergedWarning
 
     sampling_spec = spec.sampling if spec else {}
-    seed = opts.seed if opts.seed is not None else sampling_spec.get("seed", 0)
+    seed = _seed(opts, spec)
     max_steps = opts.max_steps or sampling_spec.get("max_steps") or (1500 if opts.quick else 40000)
     if fit.model.ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")
     if opts.sampler == "nested":
         if nested is None or nested.model is not fit.model:
-            from rvkep.samplers.nested import NestedOptions
-
-            nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
-                                  dlogz=0.5 if opts.quick else 0.1,
-                                  checkpoint=checkpoint.with_name("nested_posterior.save")
-                                  if checkpoint else None)  # fmt: skip
-            _say(opts, f"nested sampling {fit.model.ndim} parameters with "
-                       f"{nopts.n_live(fit.model.ndim)} live points")  # fmt: skip
+            saved = checkpoint.with_name("nested_posterior.save") if checkpoint else None
             notes: list[str] = []
-            nested = _run_nested(fit.model, fit.theta, nopts, opts, notes)
+            nested = _run_nested(fit, opts, seed, saved, notes)
         else:
             notes = []
         return nested, notes + ["posterior by nested sampling (dynesty): weighted samples, "

@@ -7,7 +7,7 @@ import warnings
 
 import numpy as np
 import pytest
-from test_sampling import one_planet
+from test_sampling import one_planet, write_table
 
 import rvkep
 
@@ -96,9 +96,7 @@ def test_every_run_records_its_stage_timings(tmp_path, capsys):
     import json
 
     data = one_planet()
-    f = tmp_path / "a.txt"
-    f.write_text("".join(f"{t} {v} {e}\n" for t, v, e in zip(data.time, data.rv, data.err,
-                                                             strict=True)))  # fmt: skip
+    f = write_table(data, tmp_path / "a.txt")
     rvkep.analyze([str(f)], out=str(tmp_path / "o"), quick=True, quiet=True, trend=0,
                   max_planets=1, timings=True)  # fmt: skip
     line = capsys.readouterr().out.strip().splitlines()[-1]
@@ -116,9 +114,7 @@ def test_figures_all_summary_or_none(tmp_path):
     from rvkep.pipeline import figure_set
 
     data = one_planet()
-    f = tmp_path / "a.txt"
-    f.write_text("".join(f"{t} {v} {e}\n" for t, v, e in zip(data.time, data.rv, data.err,
-                                                             strict=True)))  # fmt: skip
+    f = write_table(data, tmp_path / "a.txt")
     for which, expected in (("summary", {"timeseries.png", "phase_b.png"}), ("none", set())):
         out = tmp_path / which
         rvkep.analyze([str(f)], out=str(out), quick=True, quiet=True, trend=0, max_planets=1,

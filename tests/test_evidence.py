@@ -8,7 +8,7 @@ import warnings
 import numpy as np
 import pytest
 from scipy import stats
-from test_sampling import one_planet
+from test_sampling import one_planet, write_table
 
 from rvkep.data import RVData
 from rvkep.eccentricity import eccentricity_tests, lucy_sweeney
@@ -69,8 +69,7 @@ def test_circular_auto_refits_a_circular_orbit(tmp_path):
     from rvkep.cli import main
 
     d = star(0.0, seed=5)
-    f = tmp_path / "a.txt"
-    f.write_text("".join(f"{t} {v} {e}\n" for t, v, e in zip(d.time, d.rv, d.err, strict=True)))
+    f = write_table(d, tmp_path / "a.txt")
     out = tmp_path / "out"
     assert main(["analyze", str(f), "--quick", "--quiet", "--trend", "0", "--max-planets", "1",
                  "--circular", "auto", "--out", str(out)]) == 0  # fmt: skip

@@ -9,7 +9,7 @@ from dataclasses import replace
 import numpy as np
 import pytest
 from scipy import integrate, stats
-from test_sampling import one_planet, planet_model
+from test_sampling import one_planet, planet_model, write_table
 
 from rvkep.errors import ModelFileError
 from rvkep.likelihood import LogPosterior
@@ -171,9 +171,7 @@ def test_model_file_noise_table(tmp_path):
 def test_command_line_refuses_an_unknown_noise_model(tmp_path, capsys):
     from rvkep.cli import main
 
-    f = tmp_path / "a.txt"
-    d = one_planet()
-    f.write_text("".join(f"{t} {v} {e}\n" for t, v, e in zip(d.time, d.rv, d.err, strict=True)))
+    f = write_table(one_planet(), tmp_path / "a.txt")
     assert main(["analyze", str(f), "--noise", "red", "--out", str(tmp_path / "o")]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert err == ["rvkep analyze: error: --noise must be one of white, gp, got 'red'"]

@@ -117,43 +117,17 @@ def test_predict_command_refuses_bad_requests_in_one_line(tmp_path, capsys):
 
     times = tmp_path / "t.txt"
     times.write_text("2460400.5\n2026-12-03\n")
+    rest = ["--to", "2026-12-20", "--ra", "10", "--dec", "20", "--site"]
     for args, message in (
         ([str(tmp_path)], "either --times FILE or --from"),
         ([str(tmp_path), "--from", "5", "--to", "4"], "T(to) > T(from)"),
         ([str(tmp_path), "--from", "0", "--to", "1e7", "--step", "1"], "raise --step"),
         ([str(tmp_path), "--times", str(times)], "calendar dates need the target's coordinates"),
         (
-            [
-                str(tmp_path),
-                "--from",
-                "2026-13-45",
-                "--to",
-                "2026-12-20",
-                "--ra",
-                "10",
-                "--dec",
-                "20",
-                "--site",
-                "0,0,0",
-            ],
+            [str(tmp_path), "--from", "2026-13-45", *rest, "0,0,0"],
             "'2026-13-45' is not an ISO date",
         ),
-        (
-            [
-                str(tmp_path),
-                "--from",
-                "2026-12-01",
-                "--to",
-                "2026-12-20",
-                "--ra",
-                "10",
-                "--dec",
-                "20",
-                "--site",
-                "0,0",
-            ],
-            "--site must be LAT,LON,HEIGHT",
-        ),
+        ([str(tmp_path), "--from", "2026-12-01", *rest, "0,0"], "--site must be LAT,LON,HEIGHT"),
     ):
         assert main(["predict", *args]) == 2
         err = capsys.readouterr().err.strip()

@@ -77,6 +77,13 @@ def one_planet(seed=4, n=40):
     return RVData(t, v + rng.normal(0, 2.0, n), err, np.full(n, "a"))
 
 
+def write_table(data, path):
+    """``data`` as a plain three-column RV file (time, rv, err); returns the path."""
+    rows = zip(data.time, data.rv, data.err, strict=True)
+    path.write_text("".join(f"{t} {v} {e}\n" for t, v, e in rows))
+    return path
+
+
 def planet_model(data):
     from rvkep.optimize import fit_companions
 

@@ -49,6 +49,7 @@ import numpy as np
 
 from rvkep import defaults
 from rvkep.noise.base import NoiseModel, NoiseParameter
+from rvkep.noise.white import WhiteNoise
 from rvkep.priors import LogUniform, Uniform
 
 __all__ = ["QuasiPeriodicGP", "covariance"]
@@ -58,6 +59,8 @@ _LOG_2PI = float(np.log(2.0 * np.pi))
 _GRID_PER_DECADE = 12
 #: frequencies whose design columns are solved through C at once in the periodogram
 _FREQ_BLOCK = 2048
+#: the white part of C (err^2 + jitter^2) is the white-noise model's variance
+_WHITE = WhiteNoise()
 
 
 def _driver():
@@ -182,16 +185,13 @@ class QuasiPeriodicGP(NoiseModel):
     def _factor(self, model, phys: dict, row: int) -> _Factor:
         """The factorized covariance of one parameter set."""
         g = {k: float(np.asarray(phys[f"noise.{k}"])[row]) for k in self.parameter_keys}
-        jit = np.array([float(np.asarray(phys[f"jitter.{i.name}"])[row])
-                        for i in model.instruments])  # fmt: skip
-        return _Factor(model.t, **g, white=model.err2 + (jit * jit)[model.inst_index])
+        white = _WHITE.effective_variance(model, phys, np.array([row]))[0]
+        return _Factor(model.t, **g, white=white)
 
     def effective_variance(self, model, phys: dict, rows: np.ndarray) -> np.ndarray:
-        """The diagonal of C: err^2 + jitter^2 + amplitude^2."""
-        jit = np.stack([np.asarray(phys[f"jitter.{i.name}"])[rows] for i in model.instruments],
-                       axis=1)  # fmt: skip
+        """The diagonal of C: err^2 + jitter^2 (the white part) + amplitude^2."""
         amp = np.asarray(phys["noise.amplitude"])[rows]
-        return model.err2[None, :] + (jit * jit)[:, model.inst_index] + (amp * amp)[:, None]
+        return _WHITE.effective_variance(model, phys, rows) + (amp * amp)[:, None]
 
     def loglike(self, model, phys: dict, rows: np.ndarray, resid: np.ndarray, linear: str):
         n, m = model.t.size, model.n_linear
