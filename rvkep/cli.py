@@ -608,8 +608,9 @@ def _prediction_times(args: argparse.Namespace, data_time=None):
 
 
 def _write_csv(out: str | None, comment: str, fields: list[str], rows: list[dict]) -> None:
-    """A ``#`` comment line, then a CSV of ``rows`` (floats to 10 significant digits,
-    None as an empty cell) to ``out`` (atomically) or to standard output."""
+    """A ``#`` comment line, then a CSV of ``rows`` (floats to 12 significant digits,
+    a full Julian date to the second; None as an empty cell) to ``out`` (atomically)
+    or to standard output."""
     import csv
     import io
 
@@ -620,7 +621,7 @@ def _write_csv(out: str | None, comment: str, fields: list[str], rows: list[dict
     w = csv.DictWriter(buf, fieldnames=fields, lineterminator="\n")
     w.writeheader()
     for row in rows:
-        w.writerow({k: (f"{v:.10g}" if isinstance(v, float) else ("" if v is None else v))
+        w.writerow({k: (f"{v:.12g}" if isinstance(v, float) else ("" if v is None else v))
                     for k, v in row.items()})  # fmt: skip
     if out:
         write_text(out, buf.getvalue())
@@ -713,10 +714,92 @@ def _add_events(sub) -> None:
     p.set_defaults(run=_run_events)
 
 
+def _run_plan(args: argparse.Namespace) -> int:
+    from pathlib import Path
+
+    from rvkep.results import Results
+    from rvkep.timeconv import parse_site
+
+    site = parse_site(args.site)
+    res = Results.load(args.run_dir)
+    plan = res.plan(site=site, ra=args.ra, dec=args.dec, start=args.start, nights=args.nights,
+                    per_night=args.per_night, count=args.epochs, max_airmass=args.max_airmass,
+                    aim=args.aim, instrument=args.instrument, time_offset=args.time_offset,
+                    step_minutes=args.step, rng=args.seed)  # fmt: skip
+    rows = plan.rows()
+    now, after = plan.aim_sd
+    gain = "" if plan.aim == "all" else f"; sd of {plan.aim} {now:.4g} now, {after:.4g} after all"
+    fields = ["night", "utc", "time", "sun_alt_deg", "target_alt_deg", "airmass",
+              "velocity_sd_mps", "score", "rank", "aim_sd_after"]  # fmt: skip
+    _write_csv(args.out, f"rvkep plan: {args.run_dir} ({res.run_label()}); score: "
+               f"{plan.criterion}; one velocity from {plan.instrument}, noise "
+               f"{plan.noise_sd:.3g} m/s{gain}; site {args.site}, RA {args.ra:g}, Dec "
+               f"{args.dec:g}, Sun below {plan.grid.sun_limit:g} deg, airmass <= "
+               f"{args.max_airmass:g}; time in the data's system (BJD_TDB minus "
+               f"{plan.time_offset:g})",
+               fields, rows)  # fmt: skip
+    figure = args.figure or (str(Path(args.out).with_suffix(".png")) if args.out else None)
+    if figure:
+        from rvkep import __version__
+        from rvkep.outputs import save_figure
+        from rvkep.plots import plan_figure
+
+        fig = plan_figure(plan)
+        fig.text(0.995, 0.003, f"rvkep {__version__} | {res.run_label()}", ha="right",
+                 va="bottom", fontsize=6.5, color="0.45")  # fmt: skip
+        save_figure(fig, figure)
+    return 0
+
+
+def _add_plan(sub) -> None:
+    p = sub.add_parser(
+        "plan",
+        help="the nights and times where one more velocity would teach most (CSV, figure)",
+        description="Read a finished run and choose observing epochs over a run of nights: "
+        "candidate times are those with the Sun below -12 degrees and the star below the "
+        "airmass limit at the site (astropy, no download); they are ranked by the share of "
+        "the aimed parameter's posterior variance one more velocity there would remove "
+        "(linear-Gaussian update from the posterior samples; Loredo 2004, Ford 2008), or "
+        "with --aim all by the expected information gain about the whole orbit, and chosen "
+        "greedily, each choice updating the next.",
+    )
+    p.add_argument("run_dir", metavar="RUN_DIR")
+    p.add_argument("--site", required=True, metavar="LAT,LON,HEIGHT",
+                   help="the observatory: degrees north, degrees east, metres (a southern "
+                   "site: --site=-30.2,-70.7,2200)")  # fmt: skip
+    p.add_argument("--ra", type=float, required=True, metavar="DEG", help="ICRS, degrees")
+    p.add_argument("--dec", type=float, required=True, metavar="DEG", help="ICRS, degrees")
+    p.add_argument("--start", required=True, metavar="DATE",
+                   help="the first night's evening date (YYYY-MM-DD, local)")  # fmt: skip
+    p.add_argument("--nights", type=int, required=True, metavar="N")
+    p.add_argument("--per-night", type=int, default=1, metavar="K",
+                   help="most epochs on one night (default 1)")  # fmt: skip
+    p.add_argument("--epochs", type=int, default=None, metavar="N",
+                   help="epochs to choose (default: --per-night on every usable "
+                   "night)")  # fmt: skip
+    p.add_argument("--max-airmass", type=float, default=2.0, metavar="X", help="default 2")
+    p.add_argument("--aim", default=None, metavar="PARAM",
+                   help="a posterior column such as b.K or c.period, or 'all' (default: the "
+                   "least-constrained companion's period or K)")  # fmt: skip
+    p.add_argument("--instrument", default=None, metavar="NAME",
+                   help="the instrument that will observe (default: the one with most "
+                   "points)")  # fmt: skip
+    p.add_argument("--time-offset", type=float, default=None, metavar="D",
+                   help="BJD_TDB minus the data's times (needed unless the data hold full "
+                   "BJDs)")  # fmt: skip
+    p.add_argument("--step", type=float, default=10.0, metavar="MIN",
+                   help="spacing of candidate times, minutes (default 10)")  # fmt: skip
+    p.add_argument("--seed", type=int, default=0, help="chooses the posterior draws")
+    p.add_argument("--out", default=None, metavar="FILE", help="CSV (default: standard output)")
+    p.add_argument("--figure", default=None, metavar="FILE",
+                   help="the score over the window (default: beside --out, as .png)")  # fmt: skip
+    p.set_defaults(run=_run_plan)
+
+
 # each entry adds one subcommand: add(subparsers) -> None, setting defaults(run=...)
 _SUBCOMMANDS: list = [
     _add_check, _add_periodogram, _add_analyze, _add_demo, _add_sample, _add_batch,
-    _add_predict, _add_events,
+    _add_predict, _add_events, _add_plan,
 ]  # fmt: skip
 
 

@@ -22,6 +22,7 @@ __all__ = [
     "plot_timeseries",
     "plot_phase",
     "plot_corner",
+    "plan_figure",
 ]
 
 #: Okabe & Ito (2008), "Color Universal Design": blue, vermillion, bluish green,
@@ -293,4 +294,35 @@ def corner_figure(results, label: str, fig=None):
     chosen = [(f"{label}.{c}", text) for c, text in CORNER_COLUMNS if f"{label}.{c}" in post]
     fig = plot_corner(post.columns, [n for n, _ in chosen], [t for _, t in chosen], fig=fig)
     fig.suptitle(f"companion {label}", fontsize=11)
+    return fig
+
+
+def plan_figure(plan, fig=None):
+    """An observing plan (:class:`rvkep.plan.Plan`): above, the score of every
+    observable time before any epoch is chosen, night by night, with the chosen epochs
+    marked; below, the posterior's spread of the velocity the instrument would see
+    (its standard deviation), which the chosen epochs sample."""
+    fig, axes = _figure(fig, 2, height_ratios=[3, 2], figsize=(8, 5.5))
+    g, c = plan.grid, plan.choice
+    x = g.utc_jd - math.floor(g.utc_jd[0] + 0.5) + 0.5  # days since the start date, 0h UTC
+    first = c.first_scores
+    ok = np.isfinite(first)
+    for k in np.unique(g.night[ok]):  # one line per night: no line across the day
+        on = ok & (g.night == k)
+        axes[0].plot(x[on], first[on], color=MODEL_COLOUR, lw=1.0)
+        axes[1].plot(x[on], plan.velocity_sd[on], color=MODEL_COLOUR, lw=1.0)
+    chosen = c.order
+    axes[0].plot(x[chosen], first[chosen], ls="none", marker="v", ms=7,
+                 color=INSTRUMENT_COLOURS[1], label="chosen epochs")  # fmt: skip
+    axes[1].plot(x[chosen], plan.velocity_sd[chosen], ls="none", marker="v", ms=7,
+                 color=INSTRUMENT_COLOURS[1])  # fmt: skip
+    what = "information gain [nats]" if plan.aim == "all" else f"share of Var({plan.aim}) removed"
+    axes[0].set_ylabel(what)
+    axes[0].set_ylim(bottom=0)
+    axes[0].legend(loc="upper right", fontsize=8, frameon=False)
+    axes[1].set_ylabel("spread of v [m/s]")
+    axes[1].set_ylim(bottom=0)
+    axes[1].set_xlabel(f"days since {g.night_dates[0]} 0h UTC (observable times only)")
+    axes[0].set_title(f"one more velocity from {plan.instrument} (noise {plan.noise_sd:.2g} m/s)",
+                      fontsize=10)  # fmt: skip
     return fig

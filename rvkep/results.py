@@ -24,6 +24,7 @@ from pathlib import Path
 import numpy as np
 
 from rvkep import __version__
+from rvkep.errors import OptionError
 from rvkep.formatting import format_uncertain, latex_value, text_estimate
 from rvkep.physics import StarProperties, derive_companion, draw_positive
 from rvkep.posterior import PosteriorSamples, circular_percentiles, percentiles
@@ -223,6 +224,65 @@ class Results:
         prob = {L: float(np.median(self.posterior[f"{L}.transit_probability"]))
                 for L in self.labels if f"{L}.transit_probability" in self.posterior}  # fmt: skip
         return event_times(self.posterior.columns, self.labels, start, end, prob or None)
+
+    def plan(
+        self,
+        *,
+        site: tuple[float, float, float],
+        ra: float,
+        dec: float,
+        start: str,
+        nights: int,
+        per_night: int = 1,
+        count: int | None = None,
+        max_airmass: float = 2.0,
+        aim: str | None = None,
+        instrument: str | None = None,
+        time_offset: float | None = None,
+        step_minutes: float = 10.0,
+        rng: np.random.Generator | int | None = 0,
+    ):
+        """An observing plan over ``nights`` nights from the evening of ``start`` (ISO
+        date) at ``site`` (latitude, longitude east, height m) for the star at ICRS
+        (``ra``, ``dec``) degrees: the epochs where one more velocity from
+        ``instrument`` (default: the one with most points) would shrink the posterior
+        of ``aim`` most (default: the least-constrained companion's period or K;
+        ``"all"``: the whole orbit). See :mod:`rvkep.plan` and :mod:`rvkep.sky`.
+        ``time_offset`` is BJD_TDB minus the data's times (needed unless the data hold
+        full BJDs). Returns a :class:`rvkep.plan.Plan`."""
+        from rvkep.plan import plan_epochs
+        from rvkep.sky import observing_grid
+        from rvkep.timeconv import check_request, data_offset
+
+        if not self.labels:
+            raise OptionError("the run has no companion to plan for")
+        check_request([], ra, dec, site)
+        offset = data_offset(self.data.time, time_offset)
+        names = self.instrument_names
+        if instrument is None:
+            counts = [int(np.sum(self.data.instrument == n)) for n in names]
+            instrument = names[int(np.argmax(counts))]
+        elif instrument not in names:
+            raise OptionError(f"unknown instrument {instrument!r}; the run's: {', '.join(names)}")
+        if aim is not None and aim != "all" and aim not in self.posterior:
+            raise OptionError(f"--aim {aim!r} is not a parameter of the run (e.g. "
+                              f"{self.labels[0]}.K, {self.labels[0]}.period, or all)")  # fmt: skip
+        if per_night < 1 or (count is not None and count < 1):
+            raise OptionError("--per-night and --epochs must be at least 1")
+        cols = self.posterior.columns
+        err = float(np.median(self.data.err[self.data.instrument == instrument]))
+        var = np.asarray(cols.get(f"jitter.{instrument}", np.zeros(1)), float) ** 2 + err**2
+        if "noise.amplitude" in cols:  # activity: unpredicted here, counted as noise
+            var = var + np.asarray(cols["noise.amplitude"], float) ** 2
+        grid = observing_grid(site, ra, dec, start, nights, step_minutes=step_minutes,
+                              max_airmass=max_airmass)  # fmt: skip
+        if not grid.observable.any():
+            raise OptionError(f"the star (RA {ra:g}, Dec {dec:g}) is never observable from "
+                              f"{site} in these {nights} nights (Sun below "
+                              f"{grid.sun_limit:g} deg, airmass <= {max_airmass:g})")  # fmt: skip
+        return plan_epochs(cols, self.labels, grid, epoch=self.data.epoch, time_offset=offset,
+                           instrument=instrument, noise_var=float(np.median(var)), aim=aim,
+                           per_night=per_night, count=count, rng=rng)  # fmt: skip
 
     # -- summaries ------------------------------------------------------------
 

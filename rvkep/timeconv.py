@@ -20,11 +20,22 @@ References
 
 from __future__ import annotations
 
+import contextlib
+
 import numpy as np
 
 from rvkep.errors import OptionError
 
-__all__ = ["looks_like_date", "check_request", "dates_to_bjd_tdb", "parse_site", "data_offset"]
+__all__ = [
+    "looks_like_date",
+    "check_request",
+    "dates_to_bjd_tdb",
+    "parse_site",
+    "data_offset",
+    "offline_astropy",
+    "site_location",
+    "utc_to_bjd_tdb",
+]
 
 
 def looks_like_date(text: str) -> bool:
@@ -82,31 +93,53 @@ def dates_to_bjd_tdb(dates: list[str], ra_deg: float | None, dec_deg: float | No
     >>> round(float(bjd[0] - 2451545.0) * 86400)  # s: TDB - UTC 64.2, light time 191.5
     256
     """
-    import warnings
-
-    from astropy import units as u
-    from astropy.coordinates import EarthLocation, SkyCoord
     from astropy.time import Time
-    from astropy.utils import iers
 
     check_request(dates, ra_deg, dec_deg, site)
-    lat, lon, height = site
+    with offline_astropy():
+        bjd = utc_to_bjd_tdb(Time(list(dates), format="isot", scale="utc"), ra_deg, dec_deg, site)
+    if not np.all(np.isfinite(bjd)):  # pragma: no cover - astropy returned nonsense
+        raise OptionError("calendar dates could not be converted")
+    return np.asarray(bjd, float)
+
+
+@contextlib.contextmanager
+def offline_astropy():
+    """astropy without downloads: its bundled Earth-rotation tables, UT1 = UTC past
+    them (and no warning about it: the site moves by under half a kilometre)."""
+    import warnings
+
+    from astropy.utils import iers
+
     with (
         iers.conf.set_temp("auto_download", False),
         iers.conf.set_temp("iers_degraded_accuracy", "ignore"),
         warnings.catch_warnings(),
     ):
-        # dates past astropy's bundled tables: UT1 = UTC, no leap second announced yet
-        warnings.simplefilter("ignore")
-        t = Time(list(dates), format="isot", scale="utc")
-        where = EarthLocation.from_geodetic(lon * u.deg, lat * u.deg, height * u.m)
-        target = SkyCoord(ra_deg * u.deg, dec_deg * u.deg, frame="icrs")
-        t = Time(t, location=where)
-        ltt = t.light_travel_time(target, kind="barycentric", ephemeris="builtin")
-        bjd = (t.tdb + ltt).jd
-    if not np.all(np.isfinite(bjd)):  # pragma: no cover - astropy returned nonsense
-        raise OptionError("calendar dates could not be converted")
-    return np.asarray(bjd, float)
+        warnings.simplefilter("ignore")  # "dubious year", "Tried to get polar motions"
+        yield
+
+
+def site_location(site: tuple[float, float, float]):
+    """An astropy ``EarthLocation`` of (latitude deg, longitude deg east, height m)."""
+    from astropy import units as u
+    from astropy.coordinates import EarthLocation
+
+    lat, lon, height = site
+    return EarthLocation.from_geodetic(lon * u.deg, lat * u.deg, height * u.m)
+
+
+def utc_to_bjd_tdb(t, ra_deg: float, dec_deg: float, site: tuple[float, float, float]):
+    """BJD_TDB (array of float) of astropy ``Time`` instants ``t``, seen from ``site``
+    toward ICRS (ra, dec); call inside :func:`offline_astropy`."""
+    from astropy import units as u
+    from astropy.coordinates import SkyCoord
+    from astropy.time import Time
+
+    target = SkyCoord(ra_deg * u.deg, dec_deg * u.deg, frame="icrs")
+    t = Time(t, location=site_location(site))
+    ltt = t.light_travel_time(target, kind="barycentric", ephemeris="builtin")
+    return np.asarray((t.tdb + ltt).jd, float)
 
 
 def _is_iso(text: str) -> bool:
