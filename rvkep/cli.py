@@ -597,14 +597,33 @@ def _prediction_times(args: argparse.Namespace, data_time=None):
         if not end > start or not args.step > 0:
             raise OptionError("--from T --to T needs T(to) > T(from) and a positive --step")
         n = int(np.floor((end - start) / args.step + 1e-9)) + 1
+        dates = all(isinstance(v, str) for v in given)
+        steps = _utc_steps(given[0], given[1], args.step) if dates else None
+        n = len(steps) if dates else n  # between two dates: steps of UTC days
         if n > MAX_PREDICT_TIMES:
             raise OptionError(f"{n:,} times: more than {MAX_PREDICT_TIMES:,}; raise --step")
-        t = start + args.step * np.arange(n)
+        t = _to_data_times(steps, args, data_time)[0] if dates else start + args.step * np.arange(n)
     if t.size == 0 or not np.all(np.isfinite(t)):
         raise OptionError("no finite prediction times given")
     if t.size > MAX_PREDICT_TIMES:
         raise OptionError(f"{t.size:,} times: more than {MAX_PREDICT_TIMES:,}")
     return t, note
+
+
+def _utc_steps(first: str, last: str, step: float) -> list[str]:
+    """ISO instants from ``first`` to ``last`` (UTC dates) every ``step`` days of UTC,
+    so that a daily grid keeps its clock time whatever the light time does."""
+    import numpy as np
+    from astropy.time import Time
+
+    from rvkep.timeconv import offline_astropy
+
+    with offline_astropy():
+        a, b = (Time(x, format="isot", scale="utc").jd for x in (first, last))
+        n = int((b - a) / step + 1e-9) + 1
+        if n > MAX_PREDICT_TIMES:
+            return [first] * n  # counted, then refused by the caller
+        return list(Time(a + step * np.arange(n), format="jd", scale="utc").isot)
 
 
 def _write_csv(out: str | None, comment: str, fields: list[str], rows: list[dict]) -> None:

@@ -124,3 +124,12 @@ def test_calendar_dates_with_coordinates_and_site(run, tmp_path, capsys):
     assert main(["events", str(tmp_path / "run"), "--from", "2026-12-10", "--to",
                  "2026-12-20"]) == 2  # fmt: skip
     assert "never guessed" in capsys.readouterr().err
+    # predictions between two dates step in UTC days: both ends included, each time
+    # the BJD_TDB of its own UTC instant (the light time drifts by ~1e-4 d a day, so
+    # a step of one BJD day would drop the last date)
+    assert main(["predict", str(tmp_path / "run"), "--from", "2026-12-10", "--to",
+                 "2026-12-12", "--step", "1", *where]) == 0  # fmt: skip
+    times = [float(x.split(",")[0]) for x in capsys.readouterr().out.splitlines()[2:]]
+    expect = dates_to_bjd_tdb(["2026-12-10", "2026-12-11", "2026-12-12"], 150.5, -20.25,
+                              (-24.6, -70.4, 2600.0))  # fmt: skip
+    assert times == pytest.approx(list(expect), abs=1e-5)  # 12 digits: 0.9 s
