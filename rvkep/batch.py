@@ -11,7 +11,8 @@ The target list is a CSV file with the columns
   file's, else white), ``decorrelate`` (indicator columns separated by ``;``),
   ``evidence`` (true/false: ln Z by nested sampling, as ``analyze --evidence``),
   ``figures`` (all, summary or none; default all: corner plots and periodograms are
-  the slowest part of a quick target).
+  the slowest part of a quick target), ``search`` (sine, keplerian or auto; default
+  auto, as ``analyze --search``).
 
 Each target runs :func:`rvkep.pipeline.analyze` into its own folder with its own log
 file (``log.txt``); a failure (bad file, failed fit) is recorded as one line in
@@ -61,6 +62,7 @@ _OPTIONAL = (
     "decorrelate",
     "evidence",
     "figures",
+    "search",
 )
 SUMMARY_FIELDS = [
     "row", "name", "status", "n_planets", "seconds", "error", "run_kind", "converged",
@@ -87,6 +89,7 @@ class Target:
     decorrelate: tuple[str, ...] = ()
     evidence: bool = False
     figures: str = "all"
+    search: str = "auto"
     line: int = 0
     problem: str = ""  # why this target cannot run (it fails alone; see read_targets)
 
@@ -248,6 +251,10 @@ def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Targe
         if rec["figures"] not in ("all", "summary", "none"):
             raise DataError(f"figures must be all, summary or none, got {rec['figures']!r}")
         kw["figures"] = rec["figures"]
+    if rec.get("search"):
+        if rec["search"] not in ("sine", "keplerian", "auto"):
+            raise DataError(f"search must be sine, keplerian or auto, got {rec['search']!r}")
+        kw["search"] = rec["search"]
     return Target(name, tuple(files), mass, err, line=line, **kw)
 
 
@@ -292,7 +299,7 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
                 planets=target.planets, max_planets=target.max_planets, model_file=target.model,
                 out=str(folder), seed=_target_seed(seed, target.name), quiet=False, quick=quick,
                 trend=target.trend, noise=target.noise, decorrelate=target.decorrelate,
-                evidence=target.evidence, figures=target.figures,
+                evidence=target.evidence, figures=target.figures, search=target.search,
             )  # fmt: skip
             analyze(list(target.files), opts)
         except KeyboardInterrupt:

@@ -121,6 +121,9 @@ def _run_periodogram(args: argparse.Namespace) -> int:
             fap_threshold=args.fap,
             max_signals=args.max_signals,
             trend=args.trend,
+            kind=args.kind,
+            n_bootstrap=args.bootstrap,
+            rng=args.seed,
         )
     except ValueError as exc:
         raise OptionError(str(exc)) from None
@@ -142,8 +145,20 @@ def _add_periodogram(sub) -> None:
     _add_search_args(p)
     _add_trend_arg(p, auto=False)
     p.add_argument("--max-signals", type=int, default=5, help="most signals to look for")
+    p.add_argument("--kind", default="sine", choices=("sine", "keplerian", "auto"),
+                   help="sine (generalized Lomb-Scargle, Baluev false alarms; default), "
+                   "keplerian (one eccentric orbit per period, bootstrap-calibrated false "
+                   "alarms) or auto (sine, checked by the Keplerian periodogram)")  # fmt: skip
+    _add_bootstrap_arg(p)
+    p.add_argument("--seed", type=int, default=0, help="seed of the bootstrap redraws")
     p.add_argument("--out", default=".", metavar="DIR", help="folder for the figure")
     p.set_defaults(run=_run_periodogram)
+
+
+def _add_bootstrap_arg(p: argparse.ArgumentParser) -> None:
+    p.add_argument("--bootstrap", type=int, default=None, metavar="N",
+                   help="redraws calibrating the Keplerian periodogram's false-alarm "
+                   "probability (default 50)")  # fmt: skip
 
 
 def _add_search_args(p: argparse.ArgumentParser) -> None:
@@ -282,6 +297,8 @@ def _analyze_options(args: argparse.Namespace, out: str):
         circular=getattr(args, "circular", "no"),
         timings=getattr(args, "timings", False),
         figures=getattr(args, "figures", "all"),
+        search=getattr(args, "search", "auto"),
+        bootstrap=getattr(args, "bootstrap", None),
     )
 
 
@@ -346,6 +363,11 @@ def _add_analysis_args(p: argparse.ArgumentParser, default_out: str) -> None:
         help="short chains for a preview or tests (flagged in every output)",
     )
     _add_search_args(p)
+    p.add_argument("--search", default="auto", choices=("sine", "keplerian", "auto"),
+                   help="the search's periodogram: auto (default: sine, checked by the "
+                   "Keplerian periodogram when an orbit comes out eccentric and when the "
+                   "sine search stops), sine, or keplerian (every step)")  # fmt: skip
+    _add_bootstrap_arg(p)
     _add_trend_arg(p, auto=True)
     _add_noise_arg(p)
     _add_decorrelate_arg(p)

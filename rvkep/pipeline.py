@@ -67,6 +67,8 @@ class AnalyzeOptions:
     choose_by: str = "bic"  # how the number of companions is chosen: bic or evidence
     circular: str = "no"  # "auto": refit circular the orbits consistent with circular
     timings: bool = False  # print the stage timings (always in results.json)
+    search: str = "auto"  # periodogram of the search: sine, keplerian or auto (rvkep.search)
+    bootstrap: int | None = None  # redraws of the Keplerian periodogram's false alarms
 
 
 def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
@@ -127,7 +129,8 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
         search_result = search(
             data, opts.min_period, opts.max_period, opts.fap,
             max_signals=opts.planets if opts.planets is not None else opts.max_planets,
-            trend=base.trend, base=base,
+            trend=base.trend, base=base, kind=opts.search, rng=_seed(opts, spec),
+            n_bootstrap=opts.bootstrap,
         )  # fmt: skip
     except ValueError as exc:
         raise OptionError(str(exc)) from None

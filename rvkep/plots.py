@@ -79,7 +79,7 @@ def plot_periodograms(result, fig=None, activity: bool = True):
     found = [c for c in result.candidates if c.significant]
     for k, (ax, pg) in enumerate(zip(axes, pgs + extra, strict=False)):
         ax.plot(pg.period, pg.power, lw=0.7, color=MODEL_COLOUR)
-        for (fap, level), ls in zip(pg.fap_levels.items(), (":", "--", "-."), strict=True):
+        for (fap, level), ls in zip(pg.fap_levels.items(), (":", "--", "-."), strict=False):
             ax.axhline(level, color=INSTRUMENT_COLOURS[1], lw=0.8, ls=ls, label=f"FAP {fap:g}")
         if k < len(pgs) and k < len(result.candidates):
             c = result.candidates[k]

@@ -361,6 +361,8 @@ class Results:
                         "aliases_flagged": [a.kind for a in c.aliases if a.flagged],
                         "alias_periods_d": {a.kind: float(a.period) for a in c.aliases},
                         "activity": list(c.activity),
+                        "periodogram": getattr(c, "periodogram", "sine"),
+                        "notes": list(getattr(c, "notes", [])),
                     }
                 )
         sampler = self.sampling.diagnostics() if self.sampling is not None else {}
@@ -402,6 +404,7 @@ class Results:
                 **{name: self.estimate(f"noise.{name}") for name in self.noise_names},
             },
             "search": search,
+            "search_method": getattr(self.search, "kind", None),
             "sampler": sampler,
             "star": {
                 "mass_msun": star.mass,

@@ -30,6 +30,7 @@ from rvkep.data import RVData
 from rvkep.model import SystemModel
 from rvkep.optimize import FitResult, fit, fit_companions
 from rvkep.periodogram import (
+    FAP_LEVELS,
     AliasCandidate,
     Periodogram,
     alias_candidates,
@@ -45,6 +46,10 @@ __all__ = [
     "residual_velocities",
     "residual_periodogram",
     "candidate_periods",
+    "keplerian_residual_periodogram",
+    "bounded_fap",
+    "SEARCH_KINDS",
+    "AUTO_ECC",
 ]
 
 
@@ -61,6 +66,8 @@ class Candidate:
     activity: list[str] = field(default_factory=list)  # indicators peaking here
     tried: list[float] = field(default_factory=list)  # periods put to the joint fit
     ambiguous_with: list[dict] = field(default_factory=list)  # {period_d, delta_ln_l}
+    periodogram: str = "sine"  # the periodogram that found it: sine or keplerian
+    notes: list[str] = field(default_factory=list)
 
     @property
     def alias_flags(self) -> str:
@@ -79,6 +86,7 @@ class SearchResult:
     activity: dict[str, Periodogram]
     fits: list[FitResult]
     fap_threshold: float
+    kind: str = "sine"
 
     @property
     def significant(self) -> list[Candidate]:
@@ -102,6 +110,7 @@ class SearchResult:
                     "significant": c.significant,
                     "aliases": c.alias_flags,
                     "activity": ",".join(c.activity) or "-",
+                    "periodogram": c.periodogram,
                 }
             )
         return out
@@ -119,10 +128,17 @@ class SearchResult:
                 f" {K:>9} {'yes' if r['significant'] else 'no':>8} {r['aliases']:>16}"
                 f" {r['activity']:>10}"
             )
+        how = {
+            "sine": "Baluev 2008",
+            "keplerian": "Keplerian periodogram, bootstrap-calibrated",
+            "auto": "Baluev 2008; Keplerian periodogram checks, see the notes",
+        }[self.kind]
         lines.append(
-            f"FAP threshold {self.fap_threshold:g} (Baluev 2008); aliases flagged where the "
+            f"FAP threshold {self.fap_threshold:g} ({how}); aliases flagged where the "
             "window allows them and the periodogram shows a competing peak"
         )
+        for i, c in enumerate(self.candidates):
+            lines += [f"signal {i + 1}: {note}" for note in c.notes]
         return "\n".join(lines)
 
     def __str__(self) -> str:
@@ -201,6 +217,39 @@ def residual_periodogram(fit_result: FitResult, frequency: np.ndarray, label: st
     return pg
 
 
+#: An orbit fitted at least this eccentric has its sine peak checked against the
+#: Keplerian periodogram in the ``auto`` search.
+AUTO_ECC = 0.5
+#: The searches: the sine periodogram, the Keplerian one, or the sine one checked by
+#: the Keplerian one (see :func:`search`).
+SEARCH_KINDS = ("sine", "keplerian", "auto")
+
+
+def keplerian_residual_periodogram(fit_result: FitResult, frequency: np.ndarray, label: str,
+                                   n_bootstrap: int = 0, rng=0):  # fmt: skip
+    """The Keplerian periodogram (:mod:`rvkep.keplerian_periodogram`) of a fit's
+    residuals, weighted by the effective errors, with ``n_bootstrap`` redraws
+    calibrating its false-alarm probability."""
+    from rvkep.keplerian_periodogram import keplerian_periodogram
+
+    data = fit_result.model.data
+    resid, dy = residual_velocities(fit_result)
+    return keplerian_periodogram(data.time, resid, dy, data.instrument, frequency,
+                                 n_bootstrap=n_bootstrap, rng=rng,
+                                 label=f"{label} (Keplerian)")  # fmt: skip
+
+
+def bounded_fap(pg, power: float) -> tuple[float, int]:
+    """An upper bound on a Keplerian periodogram peak's false-alarm probability with no
+    redraws: the number of grid points times the single-trial probability (Bonferroni's
+    inequality; conservative, since neighbouring trials are correlated). Returns the
+    bound and the number of trials."""
+    from rvkep.keplerian_periodogram import KEPLER_ECC, phase_counts
+
+    trials = int(pg.frequency.size * phase_counts(KEPLER_ECC).sum())
+    return min(1.0, trials * float(pg.single_trial(power))), trials
+
+
 def search(
     data: RVData,
     min_period: float | None = None,
@@ -211,6 +260,9 @@ def search(
     trend: int = 0,
     base: SystemModel | None = None,
     n_peaks: int = 3,
+    kind: str = "sine",
+    n_bootstrap: int | None = None,
+    rng: int = 0,
 ) -> SearchResult:
     """Find signals one at a time (see the module text).
 
@@ -229,11 +281,37 @@ def search(
         Instruments (jitter priors), trend and star to use.
     n_peaks : int
         Highest periodogram peaks tried as each new companion's period.
+    kind : {"sine", "keplerian", "auto"}
+        ``sine``: the generalized Lomb-Scargle periodogram with Baluev false alarms.
+        ``keplerian``: the Keplerian periodogram at every step, its false alarms
+        calibrated by ``n_bootstrap`` redraws (:mod:`rvkep.keplerian_periodogram`).
+        ``auto``: the sine search, checked by one Keplerian periodogram pass (no
+        redraws) at two points: when a companion's fitted orbit comes out eccentric
+        (e >= :data:`AUTO_ECC`), the Keplerian peak's period is put to the joint fit
+        too and the better likelihood wins; and when the sine search stops, a
+        Keplerian peak whose false-alarm bound (:func:`bounded_fap`) is below the
+        threshold is taken as the next signal. White noise only (a correlated-noise
+        model searches with the sine periodogram through its covariance).
+    n_bootstrap : int, optional
+        Redraws of the ``keplerian`` search (default
+        :data:`rvkep.keplerian_periodogram.N_BOOTSTRAP`).
+    rng : int
+        Seed of the redraws.
     """
+    from rvkep.keplerian_periodogram import N_BOOTSTRAP
+
+    if kind not in SEARCH_KINDS:
+        raise ValueError(f"unknown search {kind!r}; choose one of {', '.join(SEARCH_KINDS)}")
+    n_bootstrap = N_BOOTSTRAP if n_bootstrap is None else int(n_bootstrap)
     freq = frequency_grid(data.time, min_period, max_period, oversampling)
     period_range = (1.0 / freq[-1], 1.0 / freq[0])
     window = spectral_window(data.time, freq)
     base = base if base is not None else SystemModel(data, [], trend=trend)
+    white = base.noise == "white"
+    if kind == "keplerian" and not white:
+        raise ValueError("the Keplerian periodogram weighs white noise only; search a "
+                         f"{base.noise} noise model with the sine periodogram")  # fmt: skip
+    check = kind == "auto" and white
     current = fit(base.noise_model.initial(base.with_companions([])))
     fits = [current]
     candidates: list[Candidate] = []
@@ -245,27 +323,49 @@ def search(
     }
     for _ in range(max_signals + 1):
         label = "velocities" if not candidates else f"residuals after {len(candidates)} signal(s)"
-        pg = residual_periodogram(current, freq, label)
-        periodograms.append(pg)
+        if kind == "keplerian":
+            pg = keplerian_residual_periodogram(current, freq, label, n_bootstrap, rng)
+        else:
+            pg = residual_periodogram(current, freq, label)
         period, power, fap = pg.best()
         significant = fap < fap_threshold and len(candidates) < max_signals
-        cand = Candidate(period, power, fap, None, significant)
-        cand.aliases = alias_candidates(pg, period, data.time)
+        cand = Candidate(period, power, fap, None, significant,
+                         periodogram="keplerian" if kind == "keplerian" else "sine")  # fmt: skip
+        if check and not significant and len(candidates) < max_signals:
+            kp = keplerian_residual_periodogram(current, freq, label)
+            k_period, k_power, _ = kp.best()
+            bound, trials = bounded_fap(kp, k_power)
+            if bound < fap_threshold:
+                cand = Candidate(k_period, k_power, bound, None, True, periodogram="keplerian")
+                cand.notes.append(
+                    f"the sine periodogram's highest peak ({period:.5g} d, FAP {fap:.2g}) is "
+                    f"not significant; the Keplerian periodogram's ({k_period:.5g} d, best "
+                    f"e {kp.ecc[np.argmax(kp.power)]:.2g}) is: FAP <= {bound:.2g} (Bonferroni "
+                    f"bound over {trials:,} trials)"
+                )  # fmt: skip
+                kp.fap_levels = {f: 1.0 - (f / trials) ** (1.0 / kp.dof) for f in FAP_LEVELS}
+                pg, significant = kp, True
+        periodograms.append(pg)
+        cand.aliases = alias_candidates(pg, cand.period, data.time)
         for name, apg in activity.items():
-            p_here = apg.power_at(period)
+            p_here = apg.power_at(cand.period)
             if float(apg.fap(p_here)) < 0.01:
                 cand.activity.append(name)
         candidates.append(cand)
         if not significant:
             break
         tries = candidate_periods(
-            pg, data.time, period_range, n_peaks, known_aliases=(period, cand.aliases)
+            pg, data.time, period_range, n_peaks, known_aliases=(cand.period, cand.aliases)
         )
+        previous = current
         current = fit_companions(
-            data, [tries], base=base, period_range=period_range, previous=current
+            data, [tries], base=base, period_range=period_range, previous=previous
         )
-        fits.append(current)
         new = current.model.companions[-1].label
+        if check and cand.periodogram == "sine" and current.params[f"{new}.ecc"] >= AUTO_ECC:
+            current = _check_eccentric(current, previous, cand, tries, freq, label, data, base,
+                                       period_range, n_peaks)  # fmt: skip
+        fits.append(current)
         cand.period = current.params[f"{new}.period"]
         cand.K = current.params[f"{new}.K"]
         cand.tried = tries
@@ -278,4 +378,33 @@ def search(
     ):
         cand.period = final.params[f"{comp.label}.period"]
         cand.K = final.params[f"{comp.label}.K"]
-    return SearchResult(candidates, periodograms, window, freq, activity, fits, fap_threshold)
+    return SearchResult(candidates, periodograms, window, freq, activity, fits, fap_threshold,
+                        kind)  # fmt: skip
+
+
+def _check_eccentric(current, previous, cand, tries, freq, label, data, base, period_range,
+                     n_peaks):  # fmt: skip
+    """The ``auto`` search's check of an eccentric orbit found from a sine peak: the
+    Keplerian periodogram of the same residuals proposes its own periods; when they
+    are new, the joint fit on them competes with ``current`` by likelihood."""
+    new = current.model.companions[-1].label
+    e = current.params[f"{new}.ecc"]
+    kp = keplerian_residual_periodogram(previous, freq, label)
+    k_period = kp.best()[0]
+    if any(abs(k_period / q - 1.0) <= 0.01 for q in tries):
+        cand.notes.append(f"fitted e = {e:.2f}: the Keplerian periodogram peaks at a period "
+                          f"already tried ({k_period:.5g} d)")  # fmt: skip
+        return current
+    k_tries = candidate_periods(kp, data.time, period_range, n_peaks)
+    alt = fit_companions(data, [k_tries], base=base, period_range=period_range, previous=previous)
+    if alt.log_likelihood > current.log_likelihood:
+        cand.notes.append(
+            f"fitted e = {e:.2f} at {current.params[f'{new}.period']:.5g} d; the Keplerian "
+            f"periodogram's peak at {k_period:.5g} d fits better (ln L "
+            f"{alt.log_likelihood - current.log_likelihood:+.1f}) and replaces it"
+        )  # fmt: skip
+        cand.periodogram = "keplerian"
+        return alt
+    cand.notes.append(f"fitted e = {e:.2f}: the Keplerian periodogram's peak at {k_period:.5g} "
+                      "d fits worse; kept")  # fmt: skip
+    return current

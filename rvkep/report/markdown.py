@@ -94,6 +94,11 @@ def render(results) -> str:
                 f"| {k} | {c['period_d']:.5g} | {c['power']:.3f} | {c['fap']:.2e} | {'yes' if c['significant'] else 'no'} | {', '.join(c['aliases_flagged']) or '-'} | {', '.join(c['activity']) or '-'} |"
             )
         lines.append("")
+        for k, c in enumerate(d["search"], 1):
+            if c.get("periodogram", "sine") != "sine":
+                lines.append(f"Signal {k} was found by the Keplerian periodogram.")
+            lines += [f"Signal {k}: {note}" for note in c.get("notes", [])]
+        lines.append("")
     if d["model_comparison"]:
         lines += [
             "## Number of companions",
