@@ -15,7 +15,7 @@ from pathlib import Path
 from rvkep.errors import FolderBusyError
 
 __all__ = [
-    "atomic_write", "write_text", "save_figure", "clean_temporaries", "current_umask",
+    "atomic_write", "write_text", "write_csv", "save_figure", "clean_temporaries", "current_umask",
     "folder_lock", "LOCK_NAME",
 ]  # fmt: skip
 
@@ -65,6 +65,27 @@ def write_text(path: str | Path, text: str) -> Path:
     with atomic_write(path) as fh:
         fh.write(text)
     return Path(path)
+
+
+def write_csv(path: str | Path | None, comment: str, fields: list[str], rows: list[dict],
+              stream=None) -> Path | None:  # fmt: skip
+    """A ``#`` comment line, then a CSV of ``rows`` (floats to 12 significant digits,
+    a full Julian date to the second; None as an empty cell) to ``path`` (atomically),
+    or to ``stream`` when ``path`` is None."""
+    import csv
+    import io
+
+    buf = io.StringIO()
+    buf.write(f"# {comment}\n")
+    w = csv.DictWriter(buf, fieldnames=fields, lineterminator="\n")
+    w.writeheader()
+    for row in rows:
+        w.writerow({k: (f"{v:.12g}" if isinstance(v, float) else ("" if v is None else v))
+                    for k, v in row.items()})  # fmt: skip
+    if path:
+        return write_text(path, buf.getvalue())
+    stream.write(buf.getvalue())
+    return None
 
 
 def save_figure(fig, path: str | Path, **kwargs) -> Path:

@@ -42,6 +42,8 @@ __all__ = [
     "spectral_window",
     "alias_candidates",
     "centre_by_instrument",
+    "power_many",
+    "PowerBasis",
     "FAP_LEVELS",
     "SIDEREAL_DAY_FREQ",
     "YEAR_FREQ",
@@ -279,3 +281,70 @@ def alias_candidates(
         flagged = bool(inside and w >= window_threshold and pw >= power_fraction * p0)
         out.append(AliasCandidate(kind, 1.0 / f, w, pw, flagged))
     return out
+
+
+class PowerBasis:
+    """The data-free part of :func:`periodogram` for fixed times, errors and
+    instruments: per frequency the cosines and sines at the times and the weighted
+    sums C, S, CC, SS, CS (Zechmeister & Kuerster 2009 eqs. 5-13), computed once;
+    :meth:`power` then costs two matrix products per batch of series. The matrices are
+    kept when they fit in ``max_bytes``, else recomputed chunk by chunk per call."""
+
+    def __init__(self, t, dy, instrument, frequency, chunk: int = 4096,
+                 max_bytes: float = 256e6):  # fmt: skip
+        self.t0 = np.asarray(t, float) - np.round(np.mean(t))
+        self.dy = np.asarray(dy, float)
+        self.instrument = None if instrument is None else np.asarray(instrument)
+        self.frequency = np.asarray(frequency, float)
+        w = 1.0 / self.dy**2
+        self.w = w / w.sum()
+        self.chunk = chunk
+        keep = 2 * 8 * self.t0.size * self.frequency.size <= max_bytes
+        self._chunks = [self._chunk(lo) for lo in self._starts()] if keep else None
+
+    def _starts(self):
+        return range(0, self.frequency.size, self.chunk)
+
+    def _chunk(self, lo):
+        f = self.frequency[lo : lo + self.chunk]
+        arg = 2 * np.pi * self.t0[:, None] * f[None, :]
+        cos, sin = np.cos(arg), np.sin(arg)
+        w = self.w
+        C, S = w @ cos, w @ sin
+        CC = w @ (cos * cos) - C * C
+        SS = w @ (sin * sin) - S * S
+        CS = w @ (cos * sin) - C * S
+        return cos, sin, CC, SS, CS, CC * SS - CS * CS
+
+    def power(self, y) -> np.ndarray:
+        """Powers (B, F) of the series ``y`` (B, N)."""
+        y = np.atleast_2d(np.asarray(y, float))
+        if self.instrument is not None:
+            y = np.stack([centre_by_instrument(row, self.dy, self.instrument) for row in y])
+        Y = y @ self.w
+        yc = y - Y[:, None]
+        YY = (yc**2) @ self.w
+        wy = yc * self.w[None, :]
+        out = np.empty((y.shape[0], self.frequency.size))
+        for k, lo in enumerate(self._starts()):
+            cos, sin, CC, SS, CS, D = self._chunks[k] if self._chunks else self._chunk(lo)
+            YC = wy @ cos
+            YS = wy @ sin
+            num = SS * YC**2 + CC * YS**2 - 2 * CS * YC * YS
+            out[:, lo : lo + self.chunk] = num / (YY[:, None] * D)
+        return out
+
+
+def power_many(
+    t: np.ndarray,
+    y: np.ndarray,
+    dy: np.ndarray,
+    instrument: np.ndarray | None,
+    frequency: np.ndarray,
+    chunk: int = 4096,
+) -> np.ndarray:
+    """The periodogram of :func:`periodogram` (instruments centred, generalized
+    Lomb-Scargle with a floating mean, "standard" normalization) for many series on the
+    same times and errors at once: ``y`` has shape (B, N), the result (B, F). For many
+    calls on the same times, build a :class:`PowerBasis` once."""
+    return PowerBasis(t, dy, instrument, frequency, chunk).power(y)

@@ -23,6 +23,7 @@ __all__ = [
     "plot_phase",
     "plot_corner",
     "plan_figure",
+    "plot_limits",
 ]
 
 #: Okabe & Ito (2008), "Color Universal Design": blue, vermillion, bluish green,
@@ -325,4 +326,39 @@ def plan_figure(plan, fig=None):
     axes[1].set_xlabel(f"days since {g.night_dates[0]} 0h UTC (observable times only)")
     axes[0].set_title(f"one more velocity from {plan.instrument} (noise {plan.noise_sd:.2g} m/s)",
                       fontsize=10)  # fmt: skip
+    return fig
+
+
+def plot_limits(limits, companions=(), fig=None):
+    """A completeness map (:class:`rvkep.limits.Limits`): the share of injected
+    companions recovered in each period and M sin i cell, the 50% and 95% curves, and
+    the run's companions as (period, M sin i, label)."""
+    from matplotlib.colors import ListedColormap
+
+    fig, axes = _figure(fig, 1, figsize=(7.5, 5.0))
+    ax = axes[0]
+    s = limits.setup
+    shades = ListedColormap(np.linspace([1.0, 1.0, 1.0], [0.0, 0.447, 0.698], 11))
+    mesh = ax.pcolormesh(s.period_edges, s.mass_edges, limits.completeness.T, cmap=shades,
+                         vmin=0, vmax=1, shading="flat")  # fmt: skip
+    fig.colorbar(mesh, ax=ax, label="share recovered")
+    curves = limits.curves()
+    P = np.array([c["period_d"] for c in curves])
+    for key, style, text in (("msini50_mearth", "--", "50%"), ("msini95_mearth", "-", "95%")):
+        m = np.array([np.nan if c[key] is None else c[key] for c in curves], float)
+        ax.plot(P, m, color=MODEL_COLOUR, ls=style, lw=1.4, label=f"{text} recovered")
+    for period, mass, label in companions:
+        ax.plot([period], [mass], marker="*", ms=13, color=INSTRUMENT_COLOURS[1],
+                markeredgecolor="black", ls="none")  # fmt: skip
+        ax.annotate(label, (period, mass), xytext=(6, 4), textcoords="offset points")
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlim(s.period_edges[0], s.period_edges[-1])
+    shown = [m for p, m, _ in companions if s.period_edges[0] <= p <= s.period_edges[-1]]
+    masses = [s.mass_edges[0], s.mass_edges[-1], *shown]
+    ax.set_ylim(min(masses) / 1.3 if len(masses) > 2 else s.mass_edges[0],
+                max(masses) * 1.3 if len(masses) > 2 else s.mass_edges[-1])  # fmt: skip
+    ax.set_xlabel("period [d]")
+    ax.set_ylabel("M sin i [Earth masses]")
+    ax.legend(loc="upper left", fontsize=8, frameon=False)
     return fig

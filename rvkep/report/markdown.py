@@ -155,4 +155,15 @@ def render(results) -> str:
         "## Priors", "", "| parameter | prior |", "|---|---|",
     ]  # fmt: skip
     lines += [f"| {p['parameter']} | {p['prior']} |" for p in d["priors"]]
+    if d.get("limits"):
+        lim = d["limits"]
+        lines += ["", "## Detection limits", "", f"Injection and recovery: {lim['method']}.", "",
+                  "| period [d] | 50%: M sin i [M_Earth] | K [m/s] | 95%: M sin i [M_Earth] | K [m/s] |",
+                  "|---|---|---|---|---|"]  # fmt: skip
+
+        def cell(x):
+            return "-" if x is None else f"{x:.3g}"
+
+        lines += [f"| {c['period_d']:.3g} | {cell(c['msini50_mearth'])} | {cell(c['k50_mps'])} | "
+                  f"{cell(c['msini95_mearth'])} | {cell(c['k95_mps'])} |" for c in lim["curves"]]  # fmt: skip
     return "\n".join(lines) + "\n"
