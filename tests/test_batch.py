@@ -159,6 +159,11 @@ def test_target_list_noise_and_decorrelation_columns(tmp_path):
     assert not x.evidence
     assert (y.noise, y.decorrelate) == (None, ())
     assert "line 4: noise must be one of white, gp, got 'red'" in z.problem
+    p.write_text("name,data,star_mass,star_mass_err,search\n"
+                 "x,a.txt,1,0.1,keplerian\ny,b.txt,1,0.1,\nz,c.txt,1,0.1,wavelet\n")  # fmt: skip
+    x, y, z = read_targets(p)
+    assert (x.search, y.search) == ("keplerian", "auto") and not x.problem
+    assert "search must be sine, keplerian or auto, got 'wavelet'" in z.problem
 
 
 @pytest.mark.integration
