@@ -300,6 +300,7 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
                 out=str(folder), seed=_target_seed(seed, target.name), quiet=False, quick=quick,
                 trend=target.trend, noise=target.noise, decorrelate=target.decorrelate,
                 evidence=target.evidence, figures=target.figures, search=target.search,
+                command=f"rvkep batch: target {target.name} (line {target.line} of the list)",
             )  # fmt: skip
             analyze(list(target.files), opts)
         except KeyboardInterrupt:
@@ -468,16 +469,22 @@ def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> l
 
 
 def write_summary(targets: list[Target], out: str | Path, infos: dict[str, dict]) -> Path:
-    """Write DIR/summary.csv (atomically) from every target's outputs."""
+    """Write DIR/summary.csv and DIR/index.html (each atomically) from every target's
+    outputs."""
     import io
 
     out = Path(out)
     buf = io.StringIO()
     w = csv.DictWriter(buf, fieldnames=SUMMARY_FIELDS, extrasaction="ignore")
     w.writeheader()
-    for row in _summary_rows(targets, out, infos):
+    rows = _summary_rows(targets, out, infos)
+    for row in rows:
         w.writerow(row)
-    return write_text(out / "summary.csv", buf.getvalue())
+    from rvkep.report.index import render_index
+
+    path = write_text(out / "summary.csv", buf.getvalue())
+    write_text(out / "index.html", render_index(out, [r for r in rows if r["row"] == "target"]))
+    return path
 
 
 #: Thread counts a local worker starts with: one each, the pool being the parallelism

@@ -11,6 +11,7 @@ from __future__ import annotations
 import argparse
 import errno
 import json
+import shlex
 import sys
 from collections.abc import Sequence
 
@@ -298,6 +299,7 @@ def _analyze_options(args: argparse.Namespace, out: str):
         timings=getattr(args, "timings", False),
         figures=getattr(args, "figures", "all"),
         search=getattr(args, "search", "auto"),
+        command=" ".join(["rvkep", *map(shlex.quote, getattr(args, "argv", []))]),
         bootstrap=getattr(args, "bootstrap", None),
     )
 
@@ -900,10 +902,34 @@ def _add_limits(sub) -> None:
     p.set_defaults(run=_run_limits)
 
 
+def _run_report(args: argparse.Namespace) -> int:
+    from rvkep.results import Results
+
+    res = Results.load(args.run_dir)
+    path = res.write_report(args.run_dir)
+    if not args.quiet:
+        print(f"report: {path}")
+    return 0
+
+
+def _add_report(sub) -> None:
+    p = sub.add_parser(
+        "report",
+        help="write report.html for a finished run (one self-contained page)",
+        description="Read a finished run and write RUN_DIR/report.html: the verdict, the "
+        "warnings, the figures found in the folder (embedded), the parameter table, "
+        "instruments, comparisons, search, sampler, priors, detection limits and how to "
+        "make the run again, in one file with no outside requests.",
+    )
+    p.add_argument("run_dir", metavar="RUN_DIR")
+    p.add_argument("--quiet", action="store_true")
+    p.set_defaults(run=_run_report)
+
+
 # each entry adds one subcommand: add(subparsers) -> None, setting defaults(run=...)
 _SUBCOMMANDS: list = [
     _add_check, _add_periodogram, _add_analyze, _add_demo, _add_sample, _add_batch,
-    _add_predict, _add_events, _add_plan, _add_limits,
+    _add_predict, _add_events, _add_plan, _add_limits, _add_report,
 ]  # fmt: skip
 
 
@@ -919,6 +945,7 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``rvkep`` console script; returns the exit status."""
     parser = build_parser()
     args = parser.parse_args(argv)
+    args.argv = list(sys.argv[1:] if argv is None else argv)
     if not getattr(args, "run", None):
         parser.print_help()
         return 0

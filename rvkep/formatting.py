@@ -6,7 +6,18 @@ import math
 
 import numpy as np
 
-__all__ = ["format_uncertain", "latex_value", "text_value", "text_estimate"]
+__all__ = [
+    "format_uncertain",
+    "scaled_uncertain",
+    "latex_value",
+    "text_value",
+    "text_estimate",
+    "SMALL",
+]
+
+#: Values smaller than this (in magnitude, not zero) are written as a mantissa times a
+#: power of ten in tables and reports, not as 0.000000000259.
+SMALL = 1e-3
 
 
 def _sig_round(x: float, sig: int = 2) -> int:
@@ -31,18 +42,30 @@ def format_uncertain(value: float, minus: float, plus: float) -> tuple[str, str,
     return fmt(value), fmt(minus), fmt(plus)
 
 
+def scaled_uncertain(value: float, minus: float, plus: float) -> tuple[str, str, str, int | None]:
+    """:func:`format_uncertain`, with a value smaller than :data:`SMALL` (and its
+    errors) first divided by its power of ten, returned as the fourth item (None when
+    not scaled)."""
+    if value != 0 and np.isfinite(value) and abs(value) < SMALL:
+        k = int(math.floor(math.log10(abs(value))))
+        scale = 10.0**k
+        return (*format_uncertain(value / scale, minus / scale, plus / scale), k)
+    return (*format_uncertain(value, minus, plus), None)
+
+
 def latex_value(value: float, minus: float, plus: float) -> str:
-    """``$v^{+p}_{-m}$`` or ``$v \\pm e$`` when both round to the same."""
-    v, m, p = format_uncertain(value, minus, plus)
-    if m == p:
-        return rf"${v} \pm {m}$"
-    return rf"${v}^{{+{p}}}_{{-{m}}}$"
+    """``$v^{+p}_{-m}$`` or ``$v \\pm e$`` when both round to the same; a tiny value as
+    ``$(v^{+p}_{-m}) \\times 10^{k}$``."""
+    v, m, p, k = scaled_uncertain(value, minus, plus)
+    body = rf"{v} \pm {m}" if m == p else rf"{v}^{{+{p}}}_{{-{m}}}"
+    return f"${body}$" if k is None else rf"$({body}) \times 10^{{{k}}}$"
 
 
 def text_value(value: float, minus: float, plus: float) -> str:
-    """``v +- e`` or ``v +p -m`` for plain text."""
-    v, m, p = format_uncertain(value, minus, plus)
-    return f"{v} +- {m}" if m == p else f"{v} +{p} -{m}"
+    """``v +- e`` or ``v +p -m`` for plain text; a tiny value as ``(v +- e)e-10``."""
+    v, m, p, k = scaled_uncertain(value, minus, plus)
+    body = f"{v} +- {m}" if m == p else f"{v} +{p} -{m}"
+    return body if k is None else f"({body})e{k}"
 
 
 def text_estimate(estimate: dict) -> str:

@@ -68,6 +68,7 @@ class AnalyzeOptions:
     circular: str = "no"  # "auto": refit circular the orbits consistent with circular
     timings: bool = False  # print the stage timings (always in results.json)
     search: str = "auto"  # periodogram of the search: sine, keplerian or auto (rvkep.search)
+    command: str | None = None  # the command line that asked for the run (reports)
     bootstrap: int | None = None  # redraws of the Keplerian periodogram's false alarms
 
 
@@ -378,6 +379,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
         t3 = time.perf_counter()
         timings.update(sampling=t1 - t0, derived=t2 - t1, eccentricity=t3 - t2)
         results.timings = timings
+        results.provenance = provenance(files or (spec.files if spec else []), opts, seed)
         paths = write_outputs(results, out, opts)
     _say(opts, str(results))
     if opts.timings:
@@ -387,6 +389,27 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
                f"({paths['json'].name}, {paths['summary'].name}, {paths['latex'].name}, "
                "figures)")  # fmt: skip
     return results
+
+
+def provenance(files, opts: AnalyzeOptions, seed: int) -> dict:
+    """How to make the run again: the command (or the Python call), the seed, and each
+    input file's SHA-256 (and the model file's)."""
+    import hashlib
+
+    def digest(path) -> dict:
+        try:
+            return {
+                "file": str(path),
+                "sha256": hashlib.sha256(Path(path).read_bytes()).hexdigest(),
+            }
+        except OSError:
+            return {"file": str(path), "sha256": None}
+
+    inputs = [digest(f) for f in files]
+    if opts.model_file:
+        inputs.append(digest(opts.model_file))
+    return {"command": opts.command or "Python: rvkep.pipeline.analyze", "seed": seed,
+            "inputs": inputs}  # fmt: skip
 
 
 def read_data(files, opts: AnalyzeOptions, spec=None) -> tuple[RVData, list[str]]:
@@ -736,6 +759,11 @@ def write_figures(results, out: str | Path, fmt: str = "png", which: str = "all"
     marked = bool(results.run_marks())
 
     def save_figure(fig, path):  # every figure says what kind of run drew it
+        engine = fig.get_layout_engine()
+        if engine is not None and hasattr(engine, "set"):  # room for the footer line
+            engine.set(rect=(0, 0.022, 1, 0.978))
+        else:
+            fig.subplots_adjust(bottom=max(fig.subplotpars.bottom, 0.09))
         fig.text(0.995, 0.003, footer, ha="right", va="bottom", fontsize=6.5,
                  color="#b2182b" if marked else "0.45")  # fmt: skip
         key = "Subject" if str(path).endswith(".pdf") else "Description"

@@ -1,8 +1,10 @@
 """Figures. Each function returns a matplotlib Figure and can draw into a given one.
 
-Colours are the Okabe & Ito (2008) colour-blind-safe palette; each instrument keeps its
-colour and marker in every figure (by its order in the data). Axes carry units.
-matplotlib is imported inside the functions so the rest of rvkep starts fast.
+They share rvkep's look (:mod:`rvkep.style`): each companion keeps its colour and each
+instrument its marker and ink in every figure; residual panels ("left over") sit over a
+band of +-1 median error; binned phase points are bars with error strokes in the
+companion's colour. Axes carry units. matplotlib is imported inside the functions so
+the rest of rvkep starts fast.
 """
 
 from __future__ import annotations
@@ -10,6 +12,18 @@ from __future__ import annotations
 import math
 
 import numpy as np
+
+from rvkep.style import (
+    BAND,
+    INK,
+    INSTRUMENT_INKS,
+    INSTRUMENT_MARKERS,
+    RESIDUAL_LABEL,
+    VELOCITY_LABEL,
+    companion_colour,
+    figure_style,
+    instrument_style,
+)
 
 __all__ = [
     "timeseries_figure",
@@ -26,23 +40,27 @@ __all__ = [
     "plot_limits",
 ]
 
-#: Okabe & Ito (2008), "Color Universal Design": blue, vermillion, bluish green,
-#: reddish purple, orange, sky blue, yellow, black.
-INSTRUMENT_COLOURS = (
-    "#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#F0E442", "#000000",
-)  # fmt: skip
-INSTRUMENT_MARKERS = ("o", "s", "^", "D", "v", "P", "X", "h")
-MODEL_COLOUR = "#222222"
-BAND_COLOUR = "#999999"
-ACTIVITY_COLOUR = "#E69F00"  # Okabe & Ito orange: the stellar-activity signal
+#: The instruments' inks and markers and the other colours: rvkep's look
+#: (:mod:`rvkep.style`), the same in every figure and in the HTML report.
+INSTRUMENT_COLOURS = INSTRUMENT_INKS
+MODEL_COLOUR = INK
+BAND_COLOUR = BAND
+ACTIVITY_COLOUR = "#8a8f3a"  # olive: the stellar-activity signal, apart from companions
+LEVEL_COLOUR = "#8c2f39"  # false-alarm levels
+#: Opacity of the 68% posterior bands (a test keeps it visible).
+BAND_ALPHA = 0.35
 
 
-def instrument_style(index: int) -> dict:
-    """Colour and marker of the instrument with this index (stable across figures)."""
-    return {
-        "color": INSTRUMENT_COLOURS[index % len(INSTRUMENT_COLOURS)],
-        "marker": INSTRUMENT_MARKERS[index % len(INSTRUMENT_MARKERS)],
-    }
+def _styled(func):
+    """Draw inside rvkep's figure style (:func:`rvkep.style.figure_style`)."""
+    import functools
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        with figure_style():
+            return func(*args, **kwargs)
+
+    return wrapper
 
 
 def _figure(fig, nrows, height_ratios=None, figsize=(8, 6), sharex=True):
@@ -62,41 +80,54 @@ def _figure(fig, nrows, height_ratios=None, figsize=(8, 6), sharex=True):
     return fig, axes
 
 
+@_styled
 def plot_periodograms(result, fig=None, activity: bool = True):
     """Periodogram of the data, of the residuals after each signal, and the window.
+
+    Each panel names its series above the axes (so no level line crosses the name);
+    the false-alarm levels' legend sits above the first panel, outside the data, so a
+    peak's tag never lands on it; the accepted periods are marked in their companions'
+    colours.
 
     Parameters
     ----------
     result : rvkep.search.SearchResult
     fig : matplotlib Figure, optional
-        Drawn into (cleared first) instead of a new one.
+        Drawn into instead of a new one.
     activity : bool
         Add one panel per activity indicator.
     """
     pgs = list(result.periodograms)
     extra = list(result.activity.values()) if activity else []
     n = len(pgs) + len(extra) + 1
-    fig, axes = _figure(fig, n, figsize=(8, 1.7 * n + 0.6))
+    fig, axes = _figure(fig, n, figsize=(8, 1.9 * n + 0.8))
     found = [c for c in result.candidates if c.significant]
     for k, (ax, pg) in enumerate(zip(axes, pgs + extra, strict=False)):
         ax.plot(pg.period, pg.power, lw=0.7, color=MODEL_COLOUR)
         for (fap, level), ls in zip(pg.fap_levels.items(), (":", "--", "-."), strict=False):
-            ax.axhline(level, color=INSTRUMENT_COLOURS[1], lw=0.8, ls=ls, label=f"FAP {fap:g}")
+            ax.axhline(level, color=LEVEL_COLOUR, lw=0.8, ls=ls, label=f"FAP {fap:g}")
+        top = max([1.05 * float(pg.power.max()), *(1.1 * v for v in pg.fap_levels.values())])
+        ax.set_ylim(0, top * 1.12)
         if k < len(pgs) and k < len(result.candidates):
             c = result.candidates[k]
-            ax.plot([c.period], [c.power], "v", color=INSTRUMENT_COLOURS[0], ms=6)
-            tag = f"{c.period:.4g} d, FAP {c.fap:.1e}"
-            ax.annotate(tag, (c.period, c.power), xytext=(4, -2), textcoords="offset points",
-                        fontsize=8, va="top")  # fmt: skip
-        ax.text(0.01, 0.95, pg.label, transform=ax.transAxes, va="top", fontsize=9)
+            ax.plot([c.period], [c.power], "v", color=MODEL_COLOUR, ms=6)
+            lo, hi = np.log(pg.period.min()), np.log(pg.period.max())
+            right = (np.log(c.period) - lo) / max(hi - lo, 1e-12) > 0.7
+            ax.annotate(f"{c.period:.4g} d, FAP {c.fap:.1e}", (c.period, c.power),
+                        xytext=(-6 if right else 6, 0), textcoords="offset points",
+                        fontsize=8, va="center", ha="right" if right else "left",
+                        bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none",
+                              "alpha": 0.85})  # fmt: skip
+        ax.set_title(pg.label, fontsize=9, loc="left", fontweight="normal")
         ax.set_ylabel("power")
-        ax.set_ylim(0, max(1.05 * float(pg.power.max()), 1.1 * max(pg.fap_levels.values())))
-        for c in found:
-            ax.axvline(c.period, color=INSTRUMENT_COLOURS[2], lw=0.6, alpha=0.6)
-    axes[0].legend(loc="upper right", fontsize=7, frameon=False)
+        for q, c in enumerate(found):
+            ax.axvline(c.period, color=companion_colour(q), lw=0.8, alpha=0.7)
+    if pgs and pgs[0].fap_levels:
+        axes[0].legend(loc="lower right", bbox_to_anchor=(1.0, 1.0), ncol=3, fontsize=7,
+                       borderaxespad=0.2)  # fmt: skip
     ax = axes[-1]
-    ax.plot(1.0 / result.frequency, result.window, lw=0.7, color=INSTRUMENT_COLOURS[4])
-    ax.text(0.01, 0.95, "spectral window", transform=ax.transAxes, va="top", fontsize=9)
+    ax.plot(1.0 / result.frequency, result.window, lw=0.7, color="#6b6b6b")
+    ax.set_title("spectral window", fontsize=9, loc="left", fontweight="normal")
     ax.set_ylabel("window")
     ax.set_xscale("log")
     ax.set_xlabel("period [d]")
@@ -111,9 +142,25 @@ def _time_offset(t):
     return 0.0
 
 
+def _left_over(ax, x, residuals, data, k_styles, xlim=None):
+    """A residual panel in rvkep's look: the points over a band of +-1 median error."""
+    scale = float(np.median(data.err))
+    lo, hi = (np.min(x), np.max(x)) if xlim is None else xlim
+    ax.fill_between([lo, hi], -scale, scale, color="#e9ecee", lw=0, zorder=0,
+                    label="+-1 median error")  # fmt: skip
+    ax.axhline(0, color=MODEL_COLOUR, lw=0.7, ls=":")
+    for m, st in k_styles:
+        ax.errorbar(x[m], residuals[m], data.err[m], ls="none", ms=3.5, mec="white", mew=0.3,
+                    elinewidth=0.6, **st)  # fmt: skip
+    ax.set_ylabel(RESIDUAL_LABEL)
+
+
+@_styled
 def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=None, fig=None,
-                    activity=None):  # fmt: skip
-    """Velocities per instrument with the model and its posterior band; residuals below.
+                    activity=None, removed: str = ""):  # fmt: skip
+    """Velocities per instrument with the model and its posterior band; below, the
+    band's width over time (the model's spread: where the orbit is least pinned down),
+    and what is left over.
 
     Parameters
     ----------
@@ -130,32 +177,39 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
         A correlated signal apart from the companions (``time``, ``mean``, ``band``,
         and ``data``, the data minus offsets, trend and companions;
         :func:`rvkep.curves.timeseries_curves`): drawn in a panel of its own.
+    removed : str
+        What was taken out of the velocities besides the offsets (e.g. the trend),
+        said on the figure.
     """
-    panels = [3] + ([1.6] if activity is not None else []) + ([1] if residuals is not None else [])
+    panels = ([3] + ([1.6] if activity is not None else []) + ([0.7] if band is not None else [])
+              + ([1] if residuals is not None else []))  # fmt: skip
     fig, axes = _figure(fig, len(panels), height_ratios=panels if len(panels) > 1 else None,
-                        figsize=(9, 5.5 + 1.6 * (activity is not None)))  # fmt: skip
+                        figsize=(9, 5.8 + 1.6 * (activity is not None)))  # fmt: skip
     t0 = _time_offset(data.time)
     ax = axes[0]
     if band is not None:
-        ax.fill_between(curve_t - t0, band[0], band[1], color=BAND_COLOUR, alpha=0.4, lw=0,
-                        label="68% posterior band")  # fmt: skip
-    ax.plot(curve_t - t0, curve, color=MODEL_COLOUR, lw=0.8,
+        ax.fill_between(curve_t - t0, band[0], band[1], color=BAND_COLOUR, alpha=BAND_ALPHA,
+                        lw=0.6, edgecolor=BAND_COLOUR, label="68% of the posterior")  # fmt: skip
+    ax.plot(curve_t - t0, curve, color=MODEL_COLOUR, lw=0.9,
             label="model" if activity is None else "companions' model")  # fmt: skip
+    styles = []
     for k, name in enumerate(data.instruments):
         m = data.instrument == name
         off = offsets.get(name, 0.0) if offsets else 0.0
         st = instrument_style(k)
+        styles.append((m, st))
         ax.errorbar(data.time[m] - t0, data.rv[m] - off, data.err[m], ls="none", ms=4,
                     mec="white", mew=0.4, elinewidth=0.8, label=name, **st)  # fmt: skip
         if activity is not None:
             axes[1].errorbar(data.time[m] - t0, activity["data"][m], data.err[m], ls="none",
                              ms=4, mec="white", mew=0.4, elinewidth=0.8, **st)  # fmt: skip
-        if residuals is not None:
-            axes[-1].errorbar(data.time[m] - t0, residuals[m], data.err[m], ls="none", ms=4,
-                              mec="white", mew=0.4, elinewidth=0.8, **st)  # fmt: skip
-    ax.set_ylabel("radial velocity [m/s]")
-    ax.legend(fontsize=8, frameon=False, ncol=4, loc="upper left")
+    ax.set_ylabel(VELOCITY_LABEL)
+    ax.legend(ncol=5, loc="lower left", bbox_to_anchor=(0.0, 1.0), borderaxespad=0.2)
+    what = "instrument offsets" + (f" and {removed}" if removed else "")
+    ax.text(0.995, 0.02, f"{what} removed", transform=ax.transAxes, ha="right", va="bottom",
+            fontsize=8, color="#5a6268")  # fmt: skip
     xlabel = f"time - {t0:.0f} [d]" if t0 else "time [d]"
+    row = 1
     if activity is not None:
         a_ax = axes[1]
         lo, hi = activity["band"]
@@ -163,36 +217,46 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
         a_ax.plot(activity["time"] - t0, activity["mean"], color=ACTIVITY_COLOUR, lw=0.9,
                   label="activity (Gaussian process) given the data, +-1 sigma")  # fmt: skip
         a_ax.set_ylabel("minus companions [m/s]")
-        a_ax.legend(fontsize=8, frameon=False, loc="upper left")
+        a_ax.legend(fontsize=8, loc="upper left")
+        row = 2
+    if band is not None:
+        s_ax = axes[row]
+        s_ax.fill_between(curve_t - t0, 0, band[1] - band[0], color=BAND_COLOUR,
+                          alpha=BAND_ALPHA, lw=0.8, edgecolor=BAND_COLOUR)  # fmt: skip
+        s_ax.set_ylabel("model spread\n68% [m/s]", fontsize=8)
+        s_ax.set_ylim(bottom=0)
     if residuals is not None:
-        axes[-1].axhline(0, color=MODEL_COLOUR, lw=0.8)
-        axes[-1].set_ylabel("O - C [m/s]")
+        _left_over(axes[-1], data.time - t0, residuals, data, styles,
+                   (curve_t[0] - t0, curve_t[-1] - t0))  # fmt: skip
     axes[-1].set_xlabel(xlabel)
     return fig
 
 
+@_styled
 def plot_phase(data, phase, velocity, curve_phase, curve, label, period, band=None,
-               n_bins: int = 12, fig=None, ax=None):  # fmt: skip
-    """One companion's phase-folded curve, the other signals and offsets removed.
+               n_bins: int = 12, fig=None, ax=None, colour: str | None = None):  # fmt: skip
+    """One companion's phase-folded curve, the other signals and offsets removed, and
+    (on a figure of its own) what is left over below it.
 
     ``phase`` (in [0, 1), 0 at conjunction) and ``velocity`` are the points;
     ``curve_phase``/``curve`` the model; binned weighted means are drawn over the
-    points.
+    points as bars with their error strokes, in the companion's ``colour``. Given
+    ``ax``, draws the upper panel alone into it.
     """
-    import matplotlib.pyplot as plt
-
+    colour = colour or companion_colour(0)
     if ax is None:
-        if fig is None:
-            fig = plt.figure(figsize=(6, 4), layout="constrained")
-        ax = fig.add_subplot(1, 1, 1)
+        fig, axes = _figure(fig, 2, height_ratios=[3, 1], figsize=(6, 4.8))
+        ax, rax = axes
     else:
-        fig = ax.figure
+        fig, rax = ax.figure, None
     if band is not None:
-        ax.fill_between(curve_phase, band[0], band[1], color=BAND_COLOUR, alpha=0.4, lw=0)
-    ax.plot(curve_phase, curve, color=MODEL_COLOUR, lw=1.0)
+        ax.fill_between(curve_phase, band[0], band[1], color=colour, alpha=BAND_ALPHA, lw=0)
+    ax.plot(curve_phase, curve, color=colour, lw=1.4)
+    styles = []
     for k, name in enumerate(data.instruments):
         m = data.instrument == name
         st = instrument_style(k)
+        styles.append((m, st))
         ax.errorbar(phase[m], velocity[m], data.err[m], ls="none", ms=3.5, alpha=0.6,
                     mec="white", mew=0.3, elinewidth=0.6, label=name, **st)  # fmt: skip
     edges = np.linspace(0, 1, n_bins + 1)
@@ -204,19 +268,29 @@ def plot_phase(data, phase, velocity, curve_phase, curve, label, period, band=No
             centres.append(0.5 * (lo + hi))
             means.append(np.sum(w[m] * velocity[m]) / np.sum(w[m]))
             errs.append(np.std(velocity[m]) / math.sqrt(m.sum()))
-    ax.errorbar(centres, means, errs, fmt="o", color="black", mfc="white", ms=6, zorder=5,
-                label="binned")  # fmt: skip
+    ax.errorbar(centres, means, errs, fmt="_", color=colour, ms=16, mew=2.6, elinewidth=1.6,
+                capsize=0, zorder=5, label=f"binned, {1 / n_bins:.2g} in phase")  # fmt: skip
     ax.set_xlim(0, 1)
-    ax.set_xlabel("phase from conjunction")
-    ax.set_ylabel("radial velocity [m/s]")
-    ax.set_title(f"{label}: P = {period:.5g} d", fontsize=10)
-    ax.legend(fontsize=7, frameon=False)
+    ax.set_ylabel(VELOCITY_LABEL)
+    ax.set_title(f"{label}: P = {period:.5g} d")
+    ax.legend(fontsize=7, ncol=2)
+    if rax is not None:
+        model_here = np.interp(phase, curve_phase, curve)
+        _left_over(rax, phase, velocity - model_here, data, styles, (0.0, 1.0))
+        rax.set_xlim(0, 1)
+        rax.set_xlabel("orbital phase (0 = conjunction)")
+    else:
+        ax.set_xlabel("orbital phase (0 = conjunction)")
     return fig
 
 
-def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None, fig=None):
-    """Corner plot (corner) of the named posterior columns.
+@_styled
+def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None, fig=None,
+                colour: str | None = None):  # fmt: skip
+    """Corner plot (corner) of the named posterior columns; ``labels`` may be math text.
 
+    Each diagonal panel's title gives the median and the 68% interval as math text
+    (superscript and subscript errors), with room kept above the top panel for it.
     Columns that do not vary (fixed parameters, and quantities derived from them
     alone) have no distribution to draw: they are left out of the panels and listed
     with their value in the figure's title line instead. With fewer than one varying
@@ -227,7 +301,7 @@ def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None,
     import corner
     import matplotlib.pyplot as plt
 
-    from rvkep.formatting import text_value
+    from rvkep.formatting import format_uncertain
 
     columns = {n: np.asarray(samples[n], float) for n in names}
     constant = [(n, lab) for n, lab in zip(names, labels, strict=True) if np.ptp(columns[n]) == 0]
@@ -244,19 +318,24 @@ def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None,
     level = corner_log.level
     corner_log.setLevel(logging.ERROR)
     try:
-        fig = corner.corner(
-            x, labels=[lab for _, lab in keep], truths=truths, fig=fig,
-            quantiles=[0.16, 0.5, 0.84], label_kwargs={"fontsize": 9},
-            color=INSTRUMENT_COLOURS[0],
-        )  # fmt: skip
+        with plt.rc_context({"axes.grid": False}):  # a grid would cross the contours
+            fig = corner.corner(
+                x, labels=[lab for _, lab in keep], truths=truths, fig=fig,
+                quantiles=[0.16, 0.5, 0.84], label_kwargs={"fontsize": 10},
+                color=colour or companion_colour(0),
+            )  # fmt: skip
     finally:
         corner_log.setLevel(level)
     axes = np.array(fig.axes).reshape(len(keep), len(keep))
-    for i, (_, label) in enumerate(keep):  # titles rounded to the uncertainty
+    for i, (_, label) in enumerate(keep):  # titles rounded to the uncertainty, math text
         lo, med, hi = np.percentile(x[:, i], [15.87, 50.0, 84.13])
-        axes[i, i].set_title(f"{label} = {text_value(med, med - lo, hi - med)}", fontsize=8)
+        v, m, p = format_uncertain(med, med - lo, hi - med)
+        value = rf"${v} \pm {m}$" if m == p else rf"${v}^{{+{p}}}_{{-{m}}}$"
+        name = label.split(" [")[0]
+        axes[i, i].set_title(f"{name} = {value}", fontsize=8.5, loc="center")
+    fig.subplots_adjust(top=1.0 - 0.6 / fig.get_figheight(), right=0.97)
     if fixed_text:
-        fig.text(0.99, 0.99, fixed_text, ha="right", va="top", fontsize=8)
+        fig.text(0.99, 0.995, fixed_text, ha="right", va="top", fontsize=8)
     return fig
 
 
@@ -265,39 +344,62 @@ def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None,
 # draw into) and returns the figure; the curves come from rvkep.curves.
 
 
+def _removed(results) -> str:
+    """What the time series takes out of the velocities besides the offsets."""
+    p, parts = results.fit.params, []
+    if "trend.slope" in p:
+        parts.append(f"trend ({p['trend.slope']:+.3g} m/s/yr"
+                     + (f", {p['trend.curvature']:+.3g} m/s/yr^2" if "trend.curvature" in p else "")
+                     + ")")  # fmt: skip
+    if getattr(results, "decorrelation_terms", None):
+        parts.append("activity-indicator terms")
+    return " and ".join(parts)
+
+
 def timeseries_figure(results, fig=None):
-    """The time series of a :class:`rvkep.results.Results`: data, model, 68% band and
-    residuals (:func:`rvkep.curves.timeseries_curves`, :func:`plot_timeseries`)."""
+    """The time series of a :class:`rvkep.results.Results`: data, model, 68% band, the
+    band's width and what is left over (:func:`rvkep.curves.timeseries_curves`,
+    :func:`plot_timeseries`); a fitted trend is removed from the points and said."""
     from rvkep.curves import timeseries_curves
 
     ts = timeseries_curves(results)
     return plot_timeseries(ts["data"], ts["time"], ts["curve"], ts["band"], ts["residuals"],
-                           ts["offsets"], fig=fig, activity=ts["activity"])  # fmt: skip
+                           ts["offsets"], fig=fig, activity=ts["activity"],
+                           removed=_removed(results))  # fmt: skip
 
 
 def phase_figure(results, label: str, fig=None, ax=None):
-    """One companion's phase-folded curve from a Results (:func:`plot_phase`)."""
+    """One companion's phase-folded curve from a Results (:func:`plot_phase`), in the
+    companion's own colour."""
     from rvkep.curves import phase_curves
 
     ph = phase_curves(results, label)
+    colour = companion_colour(results.labels.index(label))
     return plot_phase(results.data, ph["phase"], ph["velocity"], ph["grid"], ph["curve"],
-                      f"companion {label}", ph["period"], ph["band"], fig=fig, ax=ax)  # fmt: skip
+                      f"companion {label}", ph["period"], ph["band"], fig=fig, ax=ax,
+                      colour=colour)  # fmt: skip
 
 
-#: The columns of a companion's corner plot and their axis labels.
-CORNER_COLUMNS = [("period", "P [d]"), ("K", "K [m/s]"), ("ecc", "e"),
-                  ("omega_deg", "omega [deg]"), ("msini_mjup", "m sin i [M_Jup]")]  # fmt: skip
+#: The columns of a companion's corner plot and their axis labels (math text).
+CORNER_COLUMNS = [("period", r"$P$ [d]"), ("K", r"$K$ [m s$^{-1}$]"), ("ecc", r"$e$"),
+                  ("omega_deg", r"$\omega$ [deg]"),
+                  ("msini_mjup", r"$m\,\sin i$ [$M_\mathrm{J}$]")]  # fmt: skip
 
 
 def corner_figure(results, label: str, fig=None):
-    """One companion's posterior (P, K, e, omega, m sin i) from a Results."""
+    """One companion's posterior (P, K, e, omega, m sin i) from a Results, in the
+    companion's own colour."""
     post = results.posterior
     chosen = [(f"{label}.{c}", text) for c, text in CORNER_COLUMNS if f"{label}.{c}" in post]
-    fig = plot_corner(post.columns, [n for n, _ in chosen], [t for _, t in chosen], fig=fig)
-    fig.suptitle(f"companion {label}", fontsize=11)
+    colour = companion_colour(results.labels.index(label))
+    fig = plot_corner(post.columns, [n for n, _ in chosen], [t for _, t in chosen], fig=fig,
+                      colour=colour)  # fmt: skip
+    fig.suptitle(f"companion {label}", fontsize=11, x=0.02, ha="left", color=colour,
+                 fontweight="bold")  # fmt: skip
     return fig
 
 
+@_styled
 def plan_figure(plan, fig=None):
     """An observing plan (:class:`rvkep.plan.Plan`): above, the score of every
     observable time before any epoch is chosen, night by night, with the chosen epochs
@@ -329,6 +431,7 @@ def plan_figure(plan, fig=None):
     return fig
 
 
+@_styled
 def plot_limits(limits, companions=(), fig=None):
     """A completeness map (:class:`rvkep.limits.Limits`): the share of injected
     companions recovered in each period and M sin i cell, the 50% and 95% curves, and

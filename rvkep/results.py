@@ -53,6 +53,7 @@ class Results:
     ecc_tests: dict = field(default_factory=dict)  # label: rvkep.eccentricity test
     timings: dict = field(default_factory=dict)  # stage: seconds (analyze fills it)
     saved: dict | None = None  # results.json of a run read back by Results.load
+    provenance: dict = field(default_factory=dict)  # command, seed, input checksums
 
     # -- building -------------------------------------------------------------
 
@@ -405,6 +406,7 @@ class Results:
             },
             "search": search,
             "search_method": getattr(self.search, "kind", None),
+            **({"provenance": self.provenance} if self.provenance else {}),
             "sampler": sampler,
             "star": {
                 "mass_msun": star.mass,
@@ -483,6 +485,14 @@ class Results:
 
     # -- writing --------------------------------------------------------------
 
+    def write_report(self, out: str | Path) -> Path:
+        """report.html in ``out``: the self-contained page of :mod:`rvkep.report.html`,
+        with the figures found there."""
+        from rvkep.outputs import write_text
+        from rvkep.report.html import render
+
+        return write_text(Path(out) / "report.html", render(self, out))
+
     def write(self, out: str | Path) -> dict[str, Path]:
         """Write results.json, summary.md, parameters.tex/.csv and the samples."""
         from rvkep.outputs import write_text
@@ -505,6 +515,7 @@ class Results:
             paths["model"] = write_text(out / "model.json", json.dumps(_clean(model)) + "\n")
         if self.saved is None:  # a fresh run: the time its tables took
             self.timings["tables"] = time.perf_counter() - t_start
+        paths["report"] = self.write_report(out)
         # results.json last: its presence marks a complete result folder
         paths["json"] = write_text(
             out / "results.json", json.dumps(_clean(self.to_dict()), indent=2) + "\n"

@@ -50,13 +50,13 @@ def test_figures_are_drawn_from_a_results_into_a_given_figure():
         run = rvkep.fit(data, [9.4]).sample(seed=3, max_steps=300, progress=False)
     res = rvkep.Results.from_sampling(run)
     fig = timeseries_figure(res)
-    assert len(fig.axes) == 2  # velocities and residuals
+    assert len(fig.axes) == 3  # velocities, the model's spread and what is left over
     # a second run drawn into the same figure: over the first one, not instead of it
     n_lines = len(fig.axes[0].get_lines())
-    assert timeseries_figure(res, fig=fig) is fig and len(fig.axes) == 2
+    assert timeseries_figure(res, fig=fig) is fig and len(fig.axes) == 3
     assert len(fig.axes[0].get_lines()) == 2 * n_lines
-    crowded, _ = plt.subplots(3, 1)
-    with pytest.raises(ValueError, match="the figure has 3 panels; this plot draws 2"):
+    crowded, _ = plt.subplots(4, 1)
+    with pytest.raises(ValueError, match="the figure has 4 panels; this plot draws 3"):
         timeseries_figure(res, fig=crowded)
     own, ax = plt.subplots()
     ax.plot([0, 1], [0, 1], label="drawn before")

@@ -205,4 +205,4 @@ def test_figures_draw_the_activity_apart_and_remove_it_from_the_phase_plot():
     # the phase plot's points: data minus offsets minus the activity's conditional mean
     assert white + act["at_data"] == pytest.approx(data.rv - model.linear_part(fit.params))
     fig = timeseries_figure(res)
-    assert len(fig.axes) == 3 and "activity" in fig.axes[1].get_legend().texts[0].get_text()
+    assert len(fig.axes) == 4 and "activity" in fig.axes[1].get_legend().texts[0].get_text()

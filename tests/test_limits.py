@@ -156,3 +156,23 @@ def test_limits_command_writes_its_tables_and_resumes_after_a_kill(run_dir, tmp_
     assert again.returncode == 0 and "resuming" not in again.stderr
     assert (killed / "limits.csv").read_text() != (whole / "limits.csv").read_text()
     assert os.path.exists(killed / "limits_curves.csv")
+
+
+@pytest.mark.integration
+def test_the_same_table_on_local_processes_and_a_dask_cluster(tmp_path):
+    distributed = pytest.importorskip("distributed")
+    t, resid, dy = _white(8)
+    setup = _setup(t, resid, dy, np.geomspace(2, 200, 5), np.geomspace(1, 50, 6), 6, seed=1,
+                   circular=False)  # fmt: skip
+    here = run_limits(setup, tmp_path / "here", quiet=True)
+    pool = run_limits(setup, tmp_path / "pool", workers=2, quiet=True)
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+        dashboard_address="127.0.0.1:0", local_directory=str(tmp_path / "dask"),
+    ) as cluster:  # fmt: skip
+        dask = run_limits(setup, tmp_path / "dask_out", scheduler=cluster.scheduler_address,
+                          quiet=True)  # fmt: skip
+    for other in (pool, dask):
+        assert np.array_equal(other.recovered, here.recovered)
+        assert np.array_equal(other.K, here.K)
+    assert here.tried.sum() == 4 * 5 * 6

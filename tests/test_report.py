@@ -44,6 +44,6 @@ def test_every_table_shows_every_row():
 
 
 def test_formats_are_registered():
-    assert available_formats() == ["markdown", "latex", "csv"]
-    with pytest.raises(ValueError, match="unknown report format 'html'"):
-        render(Stub(), "html")
+    assert available_formats() == ["markdown", "latex", "csv", "html"]
+    with pytest.raises(ValueError, match="unknown report format 'docx'"):
+        render(Stub(), "docx")

@@ -16,6 +16,7 @@ RENDERERS = {
     "markdown": "rvkep.report.markdown",
     "latex": "rvkep.report.latex",
     "csv": "rvkep.report.csv",
+    "html": "rvkep.report.html",
 }
 
 

@@ -5,7 +5,7 @@ from __future__ import annotations
 
 from rvkep import __version__
 from rvkep.formatting import latex_value
-from rvkep.report.rows import parameter_rows
+from rvkep.report.rows import TEQ_ASSUMPTIONS, parameter_rows
 
 __all__ = ["render", "latex_escape"]
 
@@ -36,5 +36,8 @@ def render(results) -> str:
         e = row.estimate
         value = latex_value(e["median"], e["minus"], e["plus"])
         lines.append(f"{row.object} & {row.symbol} & {value} & {row.unit} \\\\")
-    lines += [r"\hline", r"\end{tabular}", r"\end{table}"]
+    lines += [r"\hline", r"\end{tabular}"]
+    if any(r.key == "teq_k" for r in parameter_rows(results)):
+        lines.append(r"\par\smallskip{\footnotesize " + latex_escape(TEQ_ASSUMPTIONS) + ".}")
+    lines.append(r"\end{table}")
     return "\n".join(lines) + "\n"

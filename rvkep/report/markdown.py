@@ -4,6 +4,7 @@ search, companion-number and trend comparisons, sampler and priors."""
 from __future__ import annotations
 
 from rvkep.formatting import text_estimate
+from rvkep.report.rows import TEQ_ASSUMPTIONS
 
 __all__ = ["render"]
 
@@ -50,6 +51,17 @@ def render(results) -> str:
                          f"{t['lucy_sweeney_p']:.3g}; BIC circular - eccentric = "
                          f"{t['delta_bic_circular_minus_eccentric']:.1f}).")  # fmt: skip
         if any("ecc_test" in p for p in d["planets"]):
+            lines.append("")
+        for p in d["planets"]:
+            derived = [f"{name} {text_estimate(p[k])}{unit}" for k, name, unit in (
+                ("transit_probability", "a priori transit probability", ""),
+                ("teq_k", "equilibrium temperature", " K"),
+                ("insolation_earth", "insolation", " S_Earth")) if k in p]  # fmt: skip
+            if derived:
+                lines.append(f"Companion {p['label']}: " + ", ".join(derived) + ".")
+        if any("teq_k" in p for p in d["planets"]):
+            lines.append(f"({TEQ_ASSUMPTIONS}.)")
+        if any(k in p for p in d["planets"] for k in ("transit_probability", "teq_k")):
             lines.append("")
     else:
         lines += ["No significant companion.", ""]

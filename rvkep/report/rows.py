@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-__all__ = ["ParameterRow", "parameter_rows", "PLANET_COLUMNS", "plain_unit"]
+__all__ = ["ParameterRow", "parameter_rows", "PLANET_COLUMNS", "plain_unit", "TEQ_ASSUMPTIONS"]
 
 PLANET_COLUMNS = [
     # (results.json key, posterior column, unit, LaTeX symbol)
@@ -17,8 +17,8 @@ PLANET_COLUMNS = [
     ("K_mps", "K", "m s$^{-1}$", r"$K$"),
     ("ecc", "ecc", "", r"$e$"),
     ("omega_deg", "omega_deg", "deg", r"$\omega_\star$"),
-    ("tp_bjd", "tp", "d", r"$t_\mathrm{p}$"),
-    ("tc_bjd", "tc", "d", r"$t_\mathrm{c}$"),
+    ("tp_bjd", "tp", "", r"$t_\mathrm{p}$"),  # an epoch in the data's time system: no unit
+    ("tc_bjd", "tc", "", r"$t_\mathrm{c}$"),
     ("msini_mjup", "msini_mjup", "M$_\\mathrm{J}$", r"$m \sin i$"),
     ("msini_mearth", "msini_mearth", "M$_\\oplus$", r"$m \sin i$"),
     ("a_au", "a_au", "au", r"$a$"),
@@ -29,6 +29,13 @@ PLANET_COLUMNS = [
     ("teq_k", "teq_k", "K", r"$T_\mathrm{eq}$"),
     ("insolation_earth", "insolation_earth", "S$_\\oplus$", r"$S$"),
 ]
+
+
+#: What the equilibrium temperature assumes (said wherever it is shown).
+TEQ_ASSUMPTIONS = (
+    "T_eq assumes a Bond albedo of 0 and full heat redistribution over the planet, with "
+    "the orbit-averaged flux (Mendez & Rivera-Valentin 2017)"
+)
 
 
 def plain_unit(unit: str) -> str:
