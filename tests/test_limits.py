@@ -118,6 +118,7 @@ def run_dir(tmp_path_factory):
     return out
 
 
+@pytest.mark.integration
 def test_limits_command_writes_its_tables_and_resumes_after_a_kill(run_dir, tmp_path):
     from rvkep.cli import main
 
