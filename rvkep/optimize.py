@@ -453,15 +453,24 @@ MAX_FULL_FITS = 5
 AMBIGUOUS_DLNL = 3.0
 
 
+#: a candidate period whose best linear-grid chi-square is worse than the best
+#: period's by more than this is not fitted in full: the grid's chi-square bounds its
+#: fit from above, and closing a gap of 50 (a likelihood ratio of e^25) would need the
+#: full fit to gain more there than the grid's coarseness in e and phase allows (the
+#: demo star's model choice: 138 -> 75 full fits over its three trend degrees, every
+#: comparison's ln L the same to 1e-4)
+GRID_SCREEN_DCHI2 = 50.0
+
+
 def _grid_by_period(data, resid, weights, design, periods, n_starts, keep):
-    """Grid starts of the ``keep`` periods whose best linear-grid chi2 is lowest, as
-    (period, starts) in the given order (each period's grid is solved once)."""
+    """Grid starts of the ``keep`` periods whose best linear-grid chi2 is lowest (and
+    within :data:`GRID_SCREEN_DCHI2` of the lowest), as (period, starts) in the given
+    order (each period's grid is solved once)."""
     grids = [(P, grid_starts(data, resid, weights, design, float(P), n_best=n_starts))
              for P in periods]  # fmt: skip
-    if len(grids) <= keep:
-        return grids
-    best = sorted(np.argsort([g[0]["chi2"] for _, g in grids])[:keep])
-    return [grids[i] for i in best]
+    chi2 = np.array([g[0]["chi2"] for _, g in grids])
+    order = [int(i) for i in np.argsort(chi2)[:keep] if chi2[i] <= chi2.min() + GRID_SCREEN_DCHI2]
+    return [grids[i] for i in sorted(order)]
 
 
 def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitResult:
