@@ -421,7 +421,7 @@ def _run_demo(args: argparse.Namespace) -> int:
         )
     analyze(files, _analyze_options(args, args.out))
     if not args.quiet:
-        print(f"open {args.out}/summary.md and the figures there")
+        print(f"open {args.out}/report.html in a browser (or summary.md and the figures)")
     return 0
 
 

@@ -386,8 +386,8 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
         print("timings: " + ", ".join(f"{k.replace('_', ' ')} {v:.2f} s"
                                       for k, v in results.timings.items()), flush=True)  # fmt: skip
     _say(opts, f"done in {time.perf_counter() - t_start:.1f} s; results in {out}/ "
-               f"({paths['json'].name}, {paths['summary'].name}, {paths['latex'].name}, "
-               "figures)")  # fmt: skip
+               f"({paths['report'].name}, {paths['json'].name}, {paths['summary'].name}, "
+               f"{paths['latex'].name}, figures)")  # fmt: skip
     return results
 
 

@@ -93,8 +93,9 @@ def _context(results, folder: Path | None, name: str | None) -> dict:
         cells = [_estimate(p.get(key), f"{p['label']}.{key}") for key, _, _ in _VERDICT]
         planets.append({"label": p["label"], "colour": companion_colour(k), "cells": cells})
     warnings = list(results.run_marks())
-    for note in d.get("notes", []):
-        warnings.append(note)
+    for note in d.get("notes", []):  # the run's own notes, less what the marks said
+        if not (results.quick and note.lower().startswith("quick mode")):
+            warnings.append(note)
     for k, c in enumerate(d.get("search", []), 1):
         if c.get("significant") and c.get("aliases_flagged"):
             warnings.append(f"signal {k} ({c['period_d']:.5g} d): alias candidates "
