@@ -620,13 +620,11 @@ def _prediction_times(args: argparse.Namespace, data_time=None):
         start, end = ends
         if not end > start or not args.step > 0:
             raise OptionError("--from T --to T needs T(to) > T(from) and a positive --step")
-        n = int(np.floor((end - start) / args.step + 1e-9)) + 1
-        dates = all(isinstance(v, str) for v in given)
-        steps = _utc_steps(given[0], given[1], args.step) if dates else None
-        n = len(steps) if dates else n  # between two dates: steps of UTC days
-        if n > MAX_PREDICT_TIMES:
-            raise OptionError(f"{n:,} times: more than {MAX_PREDICT_TIMES:,}; raise --step")
-        t = _to_data_times(steps, args, data_time)[0] if dates else start + args.step * np.arange(n)
+        if all(isinstance(v, str) for v in given):  # between two dates: steps of UTC days
+            t = _to_data_times(_utc_steps(given[0], given[1], args.step), args, data_time)[0]
+        else:
+            n = _step_count(end - start, args.step)
+            t = start + args.step * np.arange(n)
     if t.size == 0 or not np.all(np.isfinite(t)):
         raise OptionError("no finite prediction times given")
     if t.size > MAX_PREDICT_TIMES:
@@ -644,10 +642,19 @@ def _utc_steps(first: str, last: str, step: float) -> list[str]:
 
     with offline_astropy():
         a, b = (Time(x, format="isot", scale="utc").jd for x in (first, last))
-        n = int((b - a) / step + 1e-9) + 1
-        if n > MAX_PREDICT_TIMES:
-            return [first] * n  # counted, then refused by the caller
+        n = _step_count(b - a, step)
         return list(Time(a + step * np.arange(n), format="jd", scale="utc").isot)
+
+
+def _step_count(span: float, step: float) -> int:
+    """How many times from a start to ``span`` after it every ``step`` (both ends in),
+    refused beyond MAX_PREDICT_TIMES."""
+    from rvkep.errors import OptionError
+
+    n = int(span / step + 1e-9) + 1
+    if n > MAX_PREDICT_TIMES:
+        raise OptionError(f"{n:,} times: more than {MAX_PREDICT_TIMES:,}; raise --step")
+    return n
 
 
 def _write_csv(out: str | None, comment: str, fields: list[str], rows: list[dict]) -> None:
