@@ -47,7 +47,6 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import os
 import sys
 import time
 from dataclasses import dataclass
@@ -55,6 +54,7 @@ from pathlib import Path
 
 import numpy as np
 
+from rvkep.defaults import DEFAULT_MIN_PERIOD
 from rvkep.errors import OptionError
 from rvkep.physics import M_EARTH as _M_EARTH
 from rvkep.physics import M_JUP as _M_JUP
@@ -124,13 +124,6 @@ def _search_grid(setup: LimitsSetup):
     return freq, pg
 
 
-def _level(pg, fap: float) -> float:
-    """The power of the highest peak whose Baluev false-alarm probability is ``fap``."""
-    ls = pg._ls()
-    return float(ls.false_alarm_level(fap, method="baluev", minimum_frequency=pg.frequency[0],
-                                      maximum_frequency=pg.frequency[-1]))  # fmt: skip
-
-
 def _screen_prefers(setup, y, peak_power, freq, P_true) -> bool:
     """The search's candidate periods for a significant peak that missed the injected
     period: is the injected one among them, and does the joint fit's linear start grid
@@ -164,7 +157,7 @@ def row_injections(setup: LimitsSetup, row: int) -> dict:
     start = time.perf_counter()
     freq, pg = _search_grid(setup)
     basis = PowerBasis(setup.time, setup.dy, setup.instrument, freq)
-    level = _level(pg, setup.fap)
+    level = pg.level(setup.fap)
     rng = np.random.default_rng([setup.seed, row])
     n = setup.n_injections
     p_lo, p_hi = np.log(setup.period_edges[row : row + 2])
@@ -203,7 +196,6 @@ def _run_row(setup: LimitsSetup, row: int, folder: str) -> dict:
     """One row in a worker: computed, then written atomically (the resume point)."""
     from rvkep.outputs import write_text
 
-    os.environ.setdefault("OMP_NUM_THREADS", "1")
     out = row_injections(setup, row)
     write_text(_row_file(Path(folder), row), json.dumps(out))
     return out
@@ -334,7 +326,7 @@ def setup_from_results(results, *, n_injections: int = 20, periods: tuple | None
     data = results.data
     resid, dy = residual_velocities(results.fit)
     baseline = float(np.ptp(data.time))
-    lo, hi = periods if periods is not None else (1.2, baseline)
+    lo, hi = periods if periods is not None else (DEFAULT_MIN_PERIOD, baseline)
     if not 0 < lo < hi:
         raise OptionError(f"--periods MIN:MAX needs 0 < MIN < MAX, got {lo:g}:{hi:g}")
     star = results.star.mass if results.star is not None else 1.0
@@ -342,7 +334,7 @@ def setup_from_results(results, *, n_injections: int = 20, periods: tuple | None
         freq = frequency_grid(data.time, lo, hi)
         pg = periodogram(data.time, resid, dy, data.instrument, freq)
         sigma = float(np.sqrt(np.mean(dy**2)))
-        k50 = k50_white_noise(sigma, len(data), _level(pg, fap), len(data.instruments))
+        k50 = k50_white_noise(sigma, len(data), pg.level(fap), len(data.instruments))
         m_lo = float(minimum_mass(lo, k50 / 3.0, 0.0, star)) * EARTH_PER_JUPITER
         m_hi = float(minimum_mass(hi, k50 * 5.0, 0.0, star)) * EARTH_PER_JUPITER
     else:

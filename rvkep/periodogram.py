@@ -126,6 +126,14 @@ class Periodogram:
             maximum_frequency=self.frequency[-1],
         )
 
+    def level(self, fap: float) -> float:
+        """The power whose Baluev (2008) false-alarm probability over this grid's range
+        is ``fap``."""
+        f = self.frequency
+        level = self._ls().false_alarm_level(fap, method="baluev", minimum_frequency=f[0],
+                                             maximum_frequency=f[-1])  # fmt: skip
+        return float(level)
+
     def peaks(self, n: int = 5, min_separation: float = 0.0) -> list[tuple[float, float]]:
         """The ``n`` highest local maxima as (period, power), highest first.
 

@@ -16,7 +16,6 @@ from test_sampling import one_planet, planet_model
 from rvkep.limits import (
     EARTH_PER_JUPITER,
     LimitsSetup,
-    _level,
     _search_grid,
     completeness_curves,
     k50_white_noise,
@@ -66,7 +65,7 @@ def test_fifty_percent_curve_matches_the_closed_form_in_white_noise():
         t, resid, dy = _white(seed)
         _, pg = _search_grid(_setup(t, resid, dy, [5.0, 6.0], [1.0, 2.0], 1))
         left = float(np.sum(((resid - resid.mean()) / 2.0) ** 2)) - 2.0
-        k50 = k50_white_noise(2.0, t.size, _level(pg, 1e-3), leftover=left)
+        k50 = k50_white_noise(2.0, t.size, pg.level(1e-3), leftover=left)
         assert 1.0 < k50 < 3.0  # about 2 m/s for 60 points of 2 m/s
         masses = [float(minimum_mass(15.0, k50 * x, 0.0, 1.0)) * EARTH_PER_JUPITER
                   for x in np.geomspace(0.4, 2.5, 13)]  # fmt: skip
