@@ -483,7 +483,7 @@ def write_summary(targets: list[Target], out: str | Path, infos: dict[str, dict]
     from rvkep.report.index import render_index
 
     path = write_text(out / "summary.csv", buf.getvalue())
-    write_text(out / "index.html", render_index(out, [r for r in rows if r["row"] == "target"]))
+    write_text(out / "index.html", render_index(out, rows))
     return path
 
 

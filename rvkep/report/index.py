@@ -8,40 +8,40 @@ so the output folder can be moved or archived whole.
 
 from __future__ import annotations
 
-import json
 from pathlib import Path
 
 __all__ = ["render_index"]
 
 
-def render_index(out: str | Path, targets: list[dict], title: str | None = None) -> str:
-    """The index page of a batch folder ``out``; ``targets`` are the summary's target
-    rows (``name``, ``status``, ``n_planets``, ``seconds``, ``error``, ``converged``)."""
+def render_index(out: str | Path, rows: list[dict], title: str | None = None) -> str:
+    """The index page of a batch folder ``out`` from the summary's rows
+    (:func:`rvkep.batch.write_summary`): each ``target`` row (``name``, ``status``,
+    ``n_planets``, ``seconds``, ``error``, ``converged``) with the periods and M sin i of
+    its ``companion`` rows."""
     from rvkep import __version__
     from rvkep.report.html import environment
 
     out = Path(out)
-    rows = []
-    for t in targets:
+    companions: dict[str, list[dict]] = {}
+    for r in rows:
+        if r["row"] == "companion":
+            companions.setdefault(r["name"], []).append(r)
+    shown = []
+    for t in (r for r in rows if r["row"] == "target"):
         folder = out / t["name"]
-        periods, msini = [], []
-        if t.get("status") == "done":
-            try:
-                res = json.loads((folder / "results.json").read_text())
-            except (OSError, ValueError):
-                res = {}
-            periods = [p["period_d"]["median"] for p in res.get("planets", [])]
-            msini = [p["msini_mjup"]["median"] for p in res.get("planets", [])]
-        rows.append({
+        own = companions.get(t["name"], [])
+        shown.append({
             "name": t["name"], "status": t.get("status", ""), "n_planets": t.get("n_planets", ""),
             "seconds": t.get("seconds", ""), "error": t.get("error", ""),
-            "converged": t.get("converged", ""), "periods": periods, "msini": msini,
+            "converged": t.get("converged", ""),
+            "periods": [float(c["period_d"]) for c in own],
+            "msini": [float(c["msini_mjup"]) for c in own],
             "report": f"{t['name']}/report.html" if (folder / "report.html").exists() else "",
             "thumb": f"{t['name']}/timeseries.png" if (folder / "timeseries.png").exists() else "",
         })  # fmt: skip
-    n_done = sum(r["status"] == "done" for r in rows)
-    n_failed = sum(r["status"] == "failed" for r in rows)
+    n_done = sum(r["status"] == "done" for r in shown)
+    n_failed = sum(r["status"] == "failed" for r in shown)
     return environment().get_template("index.html.j2").render(
-        title=title or out.resolve().name, rows=rows, version=__version__, n_done=n_done,
+        title=title or out.resolve().name, rows=shown, version=__version__, n_done=n_done,
         n_failed=n_failed,
     )  # fmt: skip
