@@ -7,11 +7,10 @@ import os
 import subprocess
 import sys
 import time
-import warnings
 
 import numpy as np
 import pytest
-from test_sampling import one_planet, planet_model
+from test_sampling import finished_run
 
 from rvkep.limits import (
     EARTH_PER_JUPITER,
@@ -105,16 +104,7 @@ def test_companions_above_the_95_percent_curve_are_recovered_on_a_held_out_star(
 
 @pytest.fixture(scope="module")
 def run_dir(tmp_path_factory):
-    from rvkep.results import Results
-    from rvkep.sampling import UnconvergedWarning
-
-    fit = planet_model(one_planet(n=60))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UnconvergedWarning)
-        sampled = fit.sample(seed=4, max_steps=2000, check_every=500, progress=False)
-    out = tmp_path_factory.mktemp("limits") / "run"
-    Results.from_sampling(sampled).write(out)
-    return out
+    return finished_run(tmp_path_factory.mktemp("limits") / "run", n=60)
 
 
 @pytest.mark.integration

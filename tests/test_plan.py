@@ -8,12 +8,11 @@ import warnings
 
 import numpy as np
 import pytest
-from test_sampling import one_planet, planet_model
+from test_sampling import finished_run
 
 from rvkep.orbit import radial_velocity
 from rvkep.plan import choose_epochs, plan_epochs
 from rvkep.results import Results
-from rvkep.sampling import UnconvergedWarning
 from rvkep.sky import SkyGrid, altitudes, observing_grid
 
 SITE = (-29.26, -70.73, 2400.0)  # a southern mountain site (invented use of a real place)
@@ -182,13 +181,7 @@ def test_the_plan_picks_the_phases_a_practitioner_would(aim, near):
 
 @pytest.fixture(scope="module")
 def run_dir(tmp_path_factory):
-    fit = planet_model(one_planet())
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UnconvergedWarning)
-        sampled = fit.sample(seed=4, max_steps=2000, check_every=500, progress=False)
-    out = tmp_path_factory.mktemp("plan") / "run"
-    Results.from_sampling(sampled).write(out)
-    return out
+    return finished_run(tmp_path_factory.mktemp("plan") / "run")
 
 
 def test_plan_command_writes_observable_epochs_and_a_figure(run_dir, tmp_path, capsys):

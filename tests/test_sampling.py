@@ -90,6 +90,22 @@ def planet_model(data):
     return fit_companions(data, [[9.4]])
 
 
+def finished_run(folder, n=40):
+    """A short sampled run of one_planet(n) written to ``folder`` (a run folder for the
+    commands that read one back); returns the folder."""
+    import warnings
+
+    from rvkep.results import Results
+    from rvkep.sampling import UnconvergedWarning
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        sampled = planet_model(one_planet(n=n)).sample(seed=4, max_steps=2000,
+                                                       check_every=500, progress=False)  # fmt: skip
+    Results.from_sampling(sampled).write(folder)
+    return folder
+
+
 SCRIPT = r"""
 import sys, warnings
 import numpy as np
