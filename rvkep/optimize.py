@@ -141,11 +141,15 @@ def _bounds(model: SystemModel) -> list[tuple[float, float]]:
             lo, hi = c.tc.bounds
             ep = model.data.epoch
             out.append((lo - ep if np.isfinite(lo) else None, hi - ep if np.isfinite(hi) else None))
+        elif f in ("h", "k") and c.steep:  # radius sqrt(-ln(1 - e)) up to the prior's e
+            e_hi = c.ecc.bounds[1]
+            r = math.sqrt(-math.log1p(-e_hi)) if e_hi < 1.0 else None
+            out.append((-r if r else None, r))
         elif f in ("h", "k"):
             out.append((-1.0, 1.0))
-        else:
+        else:  # K, or for a steep companion K sqrt(1 - e^2), which is at most K
             lo, hi = c.K.bounds
-            out.append((max(lo, 0.0), hi if np.isfinite(hi) else None))
+            out.append((0.0 if c.steep else max(lo, 0.0), hi if np.isfinite(hi) else None))
     return out
 
 

@@ -55,6 +55,7 @@ __all__ = [
     "run_sampler",
     "sample",
     "initial_ball",
+    "steep_coordinates",
     "MOVES",
 ]
 
@@ -106,6 +107,9 @@ class SamplerOptions:
     progress: bool | None = None  # None: only on a terminal
     checkpoint: str | Path | None = None
     resume: bool = True
+    # a companion whose start eccentricity is at least this is sampled in the steep
+    # coordinates (rvkep.model); None: never
+    steep_eccentricity: float | None = 0.5
 
     def n_walkers(self, ndim: int) -> int:
         """The number of walkers for ``ndim`` parameters: ``walkers`` if given, else
@@ -334,6 +338,9 @@ class SamplingResult:
     moves: str
     history: list[tuple[int, float]] = field(default_factory=list)  # (step, max tau)
     fit: object | None = None  # the best fit it started from (FitResult.sample sets it)
+    # the model whose coordinates the walkers moved in, one per column of tau (None:
+    # ``model`` itself; another when a steep orbit had its own: steep_coordinates)
+    sampled_model: SystemModel | None = None
 
     def posterior(self, rng: np.random.Generator | int | None = 0):
         """The kept samples in physical parameters, offsets and trend drawn back
@@ -364,11 +371,13 @@ class SamplingResult:
         return float((self.steps - self.burn) * self.walkers / max(np.max(self.tau), 1.0))
 
     def diagnostics(self) -> dict:
+        moved = self.sampled_model or self.model
         return {
             "walkers": self.walkers,
             "steps": self.steps,
             "autocorr_steps": float(np.max(self.tau)),
-            "autocorr_by_parameter": dict(zip(self.model.names, map(float, self.tau), strict=True)),
+            "autocorr_by_parameter": dict(zip(moved.names, map(float, self.tau), strict=True)),
+            "steep_coordinates": [c.label for c in moved.companions if c.steep],
             "converged": bool(self.converged),
             "burn_in": self.burn,
             "thin": self.thin,
@@ -576,6 +585,8 @@ def run_sampler(
     post = posterior if posterior is not None else LogPosterior(model)
     if post.model is not model:
         raise ValueError("the posterior belongs to another model")
+    caller = model
+    model, start, post = steep_coordinates(post, start, opts.steep_eccentricity)
     ndim = model.ndim
     if ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")
@@ -630,10 +641,50 @@ def run_sampler(
             UnconvergedWarning,
             stacklevel=2,
         )
-    return SamplingResult(
-        model, chain, log_prob, tau, np.asarray(acceptance, float), converged, burn, thin,
-        time.perf_counter() - t0, opts.moves, history,
+    if model is not caller:  # back to the caller's coordinates, density and all
+        chain, log_prob = _recoordinate(model, caller, chain, log_prob)
+    result = SamplingResult(
+        caller, chain, log_prob, tau, np.asarray(acceptance, float), converged, burn, thin,
+        time.perf_counter() - t0, opts.moves, history, sampled_model=model,
     )  # fmt: skip
+    return result
+
+
+def _recoordinate(src: SystemModel, dst: SystemModel, chain, log_prob):
+    """A chain of ``src``'s coordinates as ``dst``'s (the same physical points) and
+    its log posterior as a density in ``dst``'s coordinates."""
+    flat = chain.reshape(-1, chain.shape[-1])
+    arr = src.orbit_arrays(flat)
+    out = dst.from_physical(src.as_dict(arr)).reshape(chain.shape)
+    ecc = arr["ecc"]
+    shift = dst.coordinate_log_jacobian(ecc) - src.coordinate_log_jacobian(ecc)
+    return out, log_prob + shift.reshape(log_prob.shape)
+
+
+def steep_coordinates(post, start: np.ndarray, threshold: float | None):
+    """(model, start, posterior) to sample: with every eccentric companion whose
+    eccentricity at ``start`` is at least ``threshold`` in the steep-orbit coordinates
+    (:mod:`rvkep.model`: the same posterior, sampled where it is close to Gaussian),
+    the start mapped to them and the posterior rebuilt alike; unchanged when none
+    qualifies, ``threshold`` is None, or ``post`` is not a :class:`LogPosterior` with
+    its prior (a likelihood alone, flat in whatever coordinates are sampled, would
+    be another distribution in others)."""
+    from dataclasses import replace
+
+    model = post.model
+    if threshold is None or not isinstance(post, LogPosterior) or not post.include_prior:
+        return model, start, post
+    phys = model.to_physical(np.asarray(start, float)[None, :])
+    turn = [not c.circular and not c.steep and phys[f"{c.label}.ecc"][0] >= threshold
+            for c in model.companions]  # fmt: skip
+    if not any(turn):
+        return model, start, post
+    comps = [replace(c, steep=True) if t else c
+             for c, t in zip(model.companions, turn, strict=True)]  # fmt: skip
+    steep = replace(model, companions=comps)
+    new = LogPosterior(steep, linear=post.linear, noise=post.noise,
+                       include_prior=post.include_prior)  # fmt: skip
+    return steep, steep.from_physical(phys)[0], new
 
 
 def _steps(sampler, state, steps, converged, tau_prev, chains, logps, history, backend, bar,
