@@ -269,6 +269,8 @@ def keplerian_power(t, y, w, starts, X, n_inst, G, freq, ecc, n_phase, table):
     m = X.shape[1]
     L = table.shape[1] - 1
     mask = L - 1
+    XT = np.ascontiguousarray(X.T)  # trend columns as rows: contiguous inner loops
+    wy = w * y
     drop = np.zeros(F)
     best_e = np.zeros(F, dtype=np.int64)
     best_phase = np.zeros(F)
@@ -278,48 +280,64 @@ def keplerian_power(t, y, w, starts, X, n_inst, G, freq, ecc, n_phase, table):
         for i in range(npts):
             x = f * t[i]
             p[i] = (x - math.floor(x)) * L
+        c = np.empty(npts)
+        s = np.empty(npts)
+        wc = np.empty(npts)
+        ws = np.empty(npts)
         pc = np.zeros(m)
         ps = np.zeros(m)
         for ei in range(ecc.size):
             e = ecc[ei]
             nph = n_phase[ei]
             for j in range(nph):
-                shift = L * j / nph
+                # the two curves at every point: first the anomalies, then the sums
+                if e == 0.0:
+                    for i in range(npts):
+                        ang = _TWO_PI * p[i] / L
+                        c[i] = math.cos(ang)
+                        s[i] = -math.sin(ang)
+                else:
+                    shift = L * j / nph
+                    for i in range(npts):
+                        u = p[i] - shift + L
+                        fl = math.floor(u)
+                        fr = u - fl
+                        q = np.int64(fl) & mask
+                        c[i] = table[ei, q, 0] + fr * (table[ei, q + 1, 0] - table[ei, q, 0])
+                        s[i] = table[ei, q, 1] + fr * (table[ei, q + 1, 1] - table[ei, q, 1])
                 scc = 0.0
                 sss = 0.0
                 scs = 0.0
                 scy = 0.0
                 ssy = 0.0
+                for i in range(npts):
+                    ci = c[i]
+                    si = s[i]
+                    wci = w[i] * ci
+                    wsi = w[i] * si
+                    wc[i] = wci
+                    ws[i] = wsi
+                    scc += wci * ci
+                    sss += wsi * si
+                    scs += wci * si
+                    scy += wy[i] * ci
+                    ssy += wy[i] * si
                 for k in range(n_inst):
                     ck = 0.0
                     sk = 0.0
                     for i in range(starts[k], starts[k + 1]):
-                        if e == 0.0:
-                            ang = _TWO_PI * p[i] / L
-                            c = math.cos(ang)
-                            s = -math.sin(ang)
-                        else:
-                            u = p[i] - shift + L
-                            fl = math.floor(u)
-                            fr = u - fl
-                            q = np.int64(fl) & mask
-                            c = table[ei, q, 0] + fr * (table[ei, q + 1, 0] - table[ei, q, 0])
-                            s = table[ei, q, 1] + fr * (table[ei, q + 1, 1] - table[ei, q, 1])
-                        wi = w[i]
-                        wc = wi * c
-                        ws = wi * s
-                        scc += wc * c
-                        sss += ws * s
-                        scs += wc * s
-                        scy += wc * y[i]
-                        ssy += ws * y[i]
-                        ck += wc
-                        sk += ws
-                        for a in range(n_inst, m):
-                            pc[a] += wc * X[i, a]
-                            ps[a] += ws * X[i, a]
+                        ck += wc[i]
+                        sk += ws[i]
                     pc[k] = ck
                     ps[k] = sk
+                for a in range(n_inst, m):
+                    ca = 0.0
+                    sa = 0.0
+                    for i in range(npts):
+                        ca += wc[i] * XT[a, i]
+                        sa += ws[i] * XT[a, i]
+                    pc[a] = ca
+                    ps[a] = sa
                 a11 = scc
                 a12 = scs
                 a22 = sss
@@ -332,9 +350,6 @@ def keplerian_power(t, y, w, starts, X, n_inst, G, freq, ecc, n_phase, table):
                     a11 -= pc[a] * gc
                     a12 -= pc[a] * gs
                     a22 -= ps[a] * gs
-                for a in range(n_inst, m):
-                    pc[a] = 0.0
-                    ps[a] = 0.0
                 det = a11 * a22 - a12 * a12
                 if det > 1e-12 * (a11 * a22 + 1e-300):
                     d = (a22 * scy * scy - 2.0 * a12 * scy * ssy + a11 * ssy * ssy) / det
