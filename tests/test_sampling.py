@@ -349,6 +349,23 @@ def test_steep_coordinates_sample_the_prior_when_data_say_nothing():
     assert stats.kstest(phys["b.K"], stats.uniform(10.0, 20.0).cdf).pvalue > 1e-3
 
 
+def test_steep_orbit_checkpoint_resumes_to_the_same_chain(tmp_path):
+    # the checkpoint holds the steep coordinates' chain (keyed on them); a run cut at
+    # 500 steps and continued to 1,000 returns what one uninterrupted run does
+    model = steep_star()
+    path = tmp_path / "chain.h5"
+    runs = []
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UnconvergedWarning)
+        for steps, checkpoint in ((500, path), (1000, path), (1000, None)):
+            opts = SamplerOptions(seed=2, max_steps=steps, progress=False, checkpoint=checkpoint)
+            runs.append(run_sampler(model, model.start_theta(), opts))
+    with h5py.File(path) as f:
+        assert "K_sqrt_1_minus_e2" in f["mcmc"].attrs["rvkep_model"]
+    assert runs[1].steps == 1000 and np.array_equal(runs[1].chain, runs[2].chain)
+    assert np.array_equal(runs[1].log_prob, runs[2].log_prob)
+
+
 @pytest.mark.slow
 def test_calibration_of_steep_orbits():
     # Simulation-based calibration (Talts et al. 2018) of orbits sampled in the steep
