@@ -27,7 +27,14 @@ from rvkep._constants import PI as _PI
 from rvkep._constants import SMALL_E as _SMALL_E
 from rvkep._constants import TWO_PI as _TWO_PI
 
-__all__ = ["ecc_anom_flat", "rv_flat", "rv_rows", "white_noise_loglike", "keplerian_power"]
+__all__ = [
+    "ecc_anom_flat",
+    "rv_flat",
+    "rv_rows",
+    "white_noise_loglike",
+    "white_noise_logpost",
+    "keplerian_power",
+]
 
 # Taylor coefficients of sin and cos; on |x| <= pi/2 the first omitted terms are below
 # 2e-18, so these reproduce libm to rounding (tested against numpy).
@@ -186,64 +193,203 @@ def white_noise_loglike(t, y, err2, inst, n_inst, X, tp, n, e, cosw, sinw, K, ji
     b = np.zeros(m)
     L = np.zeros((m, m))
     for s in range(S):
+        out[s, 0], out[s, 1] = _white_row(
+            t, y, err2, inst, n_inst, X, tp[s], n[s], e[s], cosw[s], sinw[s], K[s], jit[s],
+            resid, w, A, b, L,
+        )  # fmt: skip
+    return out
+
+
+@njit(cache=cache, error_model="numpy", inline="always")
+def _white_row(t, y, err2, inst, n_inst, X, tp, n, e, cosw, sinw, K, jit, resid, w, A, b, L):
+    """One parameter set of :func:`white_noise_loglike` (companions' parameters (n_comp,),
+    ``jit`` (n_inst,)), in the scratch arrays given; returns its two columns."""
+    npts = t.size
+    m = X.shape[1]
+    for i in range(npts):
+        resid[i] = y[i]
+    for c in range(tp.size):
+        ec = e[c]
+        root = math.sqrt(1.0 - ec * ec)
+        tpc, nc, cc, sc, Kc = tp[c], n[c], cosw[c], sinw[c], K[c]
         for i in range(npts):
-            resid[i] = y[i]
-        for c in range(n_comp):
-            ec = e[s, c]
-            root = math.sqrt(1.0 - ec * ec)
-            tpc, nc, cc, sc, Kc = tp[s, c], n[s, c], cosw[s, c], sinw[s, c], K[s, c]
-            for i in range(npts):
-                resid[i] -= rv_point(t[i], tpc, nc, ec, cc, sc, Kc, root)
-        for a in range(m):
-            b[a] = 0.0
-            for c2 in range(m):
-                A[a, c2] = 0.0
-        chi2 = 0.0
-        for i in range(npts):
-            k = inst[i]
-            jj = jit[s, k]
-            wi = 1.0 / (err2[i] + jj * jj)
-            w[i] = wi
-            wr = wi * resid[i]
-            chi2 += wr * resid[i]
-            b[k] += wr
-            A[k, k] += wi
-            for a in range(n_inst, m):  # trend columns
-                xa = X[i, a]
-                b[a] += wr * xa
-                A[a, k] += wi * xa
-                for c2 in range(n_inst, a + 1):
-                    A[a, c2] += wi * xa * X[i, c2]
-        logw = 0.0
-        i = 0
-        while i < npts:
-            prod = 1.0
-            stop = min(i + 16, npts)
-            for q in range(i, stop):
-                prod *= w[q]
-            logw += math.log(prod)
-            i = stop
-        # Cholesky A = L L^T (lower), then z = L^-1 b: b^T A^-1 b = z^T z
-        logdet = 0.0
-        red = 0.0
-        for a in range(m):
-            for c2 in range(a + 1):
-                acc = A[a, c2]
-                for q in range(c2):
-                    acc -= L[a, q] * L[c2, q]
-                if a == c2:
-                    L[a, a] = math.sqrt(acc)
-                else:
-                    L[a, c2] = acc / L[c2, c2]
-            logdet += 2.0 * math.log(L[a, a])
-        for a in range(m):
-            acc = b[a]
-            for q in range(a):
-                acc -= L[a, q] * b[q]
-            b[a] = acc / L[a, a]  # b now holds z
-            red += b[a] * b[a]
-        out[s, 0] = -0.5 * (chi2 - red) + 0.5 * logw
-        out[s, 1] = -0.5 * logdet
+            resid[i] -= rv_point(t[i], tpc, nc, ec, cc, sc, Kc, root)
+    for a in range(m):
+        b[a] = 0.0
+        for c2 in range(m):
+            A[a, c2] = 0.0
+    chi2 = 0.0
+    for i in range(npts):
+        k = inst[i]
+        jj = jit[k]
+        wi = 1.0 / (err2[i] + jj * jj)
+        w[i] = wi
+        wr = wi * resid[i]
+        chi2 += wr * resid[i]
+        b[k] += wr
+        A[k, k] += wi
+        for a in range(n_inst, m):  # trend columns
+            xa = X[i, a]
+            b[a] += wr * xa
+            A[a, k] += wi * xa
+            for c2 in range(n_inst, a + 1):
+                A[a, c2] += wi * xa * X[i, c2]
+    logw = 0.0
+    i = 0
+    while i < npts:
+        prod = 1.0
+        stop = min(i + 16, npts)
+        for q in range(i, stop):
+            prod *= w[q]
+        logw += math.log(prod)
+        i = stop
+    # Cholesky A = L L^T (lower), then z = L^-1 b: b^T A^-1 b = z^T z
+    logdet = 0.0
+    red = 0.0
+    for a in range(m):
+        for c2 in range(a + 1):
+            acc = A[a, c2]
+            for q in range(c2):
+                acc -= L[a, q] * L[c2, q]
+            if a == c2:
+                L[a, a] = math.sqrt(acc)
+            else:
+                L[a, c2] = acc / L[c2, c2]
+        logdet += 2.0 * math.log(L[a, a])
+    for a in range(m):
+        acc = b[a]
+        for q in range(a):
+            acc -= L[a, q] * b[q]
+        b[a] = acc / L[a, a]  # b now holds z
+        red += b[a] * b[a]
+    return -0.5 * (chi2 - red) + 0.5 * logw, -0.5 * logdet
+
+
+_E_CAP = 1.0 - 1e-12  # as rvkep.model: e >= 1 rows are refused; keep their tp finite
+_HALF_LOG_2PI = 0.5 * math.log(2.0 * math.pi)
+
+
+@njit(cache=cache, error_model="numpy")
+def white_noise_logpost(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fill,
+                        kind, pa, pb, pc, period_jac, epoch, t, y, err2, inst, n_inst, X,
+                        marginalize, include_prior, const):  # fmt: skip
+    """The log posterior of a white-noise model in one compiled pass per parameter set:
+    sampled coordinates -> elements (as ``SystemModel.orbit_arrays``) -> log prior (as
+    ``SystemModel.log_prior`` for uniform, log-uniform and normal priors) -> the
+    likelihood of :func:`white_noise_loglike`.
+
+    ``cols`` (5, n_comp): the theta column of ln P, tc (minus the epoch), the two
+    eccentricity coordinates and K, or -1 for the value in ``fill``; ``circular``,
+    ``steep``, ``steep_k`` (n_comp,) as the model's flags; ``jit_cols``/``jit_fill``
+    alike per instrument. The prior of value j of [P | tc | e | K | jitter] has
+    ``kind[j]`` (0 none, 1 uniform on [pa, pb], 2 log-uniform on [pa, pb], 3 normal with
+    mean pa and sd pb) and log normalization ``pc[j]``; ``period_jac`` marks the
+    sampled periods (Jacobian P). Invalid sets give -inf.
+    """
+    S = theta.shape[0]
+    nc = cols.shape[1]
+    ni = jit_cols.size
+    npts = t.size
+    m = X.shape[1]
+    out = np.empty(S)
+    resid = np.empty(npts)
+    w = np.empty(npts)
+    A = np.zeros((m, m))
+    b = np.zeros(m)
+    L = np.zeros((m, m))
+    tp = np.empty(nc)
+    nn = np.empty(nc)
+    e = np.empty(nc)
+    cw = np.empty(nc)
+    sw = np.empty(nc)
+    K = np.empty(nc)
+    jit = np.empty(ni)
+    V = np.empty(4 * nc + ni)
+    vals = np.empty(5)
+    for s in range(S):
+        ok = True
+        lp = 0.0
+        for c in range(nc):
+            for f in range(5):
+                j = cols[f, c]
+                vals[f] = theta[s, j] if j >= 0 else fill[f, c]
+            h = vals[2]
+            k = vals[3]
+            ec = h * h + k * k
+            Kc = vals[4]
+            if steep[c]:
+                ec = -math.expm1(-ec)
+                if steep_k[c]:
+                    Kc = Kc / math.sqrt(1.0 - ec * ec)
+            if circular[c]:
+                om = 0.5 * _PI
+            else:
+                om = math.atan2(k, h)
+                if om < 0.0:
+                    om += _TWO_PI
+            P = math.exp(vals[0])
+            tc = vals[1]
+            ecap = min(ec, _E_CAP)
+            x = 1.5 * _PI - om
+            x = x - math.floor(x / _TWO_PI) * _TWO_PI
+            half_nu = 0.5 * (x - _PI)
+            E = 2.0 * math.atan2(math.sqrt(1.0 - ecap) * math.sin(half_nu),
+                                 math.sqrt(1.0 + ecap) * math.cos(half_nu))  # fmt: skip
+            Mc = E - ecap * math.sin(E)
+            tp[c] = tc - P * Mc / _TWO_PI
+            nn[c] = _TWO_PI / P
+            e[c] = ec
+            cw[c] = math.cos(om)
+            sw[c] = math.sin(om)
+            K[c] = Kc
+            V[c] = P
+            V[nc + c] = tc + epoch
+            V[2 * nc + c] = ec
+            V[3 * nc + c] = Kc
+            if not (ec < 1.0) or not (Kc >= 0.0):
+                ok = False
+            if period_jac[c]:
+                lp += math.log(P) if P > 0.0 else 0.0
+        for q in range(ni):
+            j = jit_cols[q]
+            jq = theta[s, j] if j >= 0 else jit_fill[q]
+            jit[q] = jq
+            V[4 * nc + q] = jq
+            if not (jq >= 0.0):
+                ok = False
+        for j in range(V.size):
+            kd = kind[j]
+            v = V[j]
+            if kd == 1:
+                if not (v >= pa[j] and v <= pb[j]):
+                    ok = False
+                lp += pc[j]
+            elif kd == 2:
+                if not (v >= pa[j] and v <= pb[j]):
+                    ok = False
+                lp += pc[j] - math.log(v if v > 0.0 else 1.0)
+            elif kd == 3:
+                z = (v - pa[j]) / pb[j]
+                lp += pc[j] - 0.5 * z * z
+        if not ok:
+            out[s] = -np.inf
+            continue
+        for c in range(nc):
+            if steep[c]:
+                lp += math.log1p(-e[c])
+                if steep_k[c]:
+                    lp -= 0.5 * math.log1p(-(e[c] * e[c]))
+        if not math.isfinite(lp):
+            out[s] = -np.inf
+            continue
+        ll0, ll1 = _white_row(t, y, err2, inst, n_inst, X, tp, nn, e, cw, sw, K, jit,
+                              resid, w, A, b, L)  # fmt: skip
+        value = ll0 + const
+        if marginalize:
+            value += ll1
+        if include_prior:
+            value += lp
+        out[s] = value if math.isfinite(value) else -np.inf
     return out
 
 

@@ -62,6 +62,7 @@ class LogPosterior:
         self.linear = linear
         self.noise = noise or model.noise_model
         self.include_prior = include_prior
+        self._fused_args = False  # not looked for yet (see _fused)
 
     def _prepare(self, theta: np.ndarray):
         """(theta as rows, orbit arrays, log prior) of a call."""
@@ -72,6 +73,10 @@ class LogPosterior:
         return theta, arr, lp
 
     def __call__(self, theta: np.ndarray) -> np.ndarray:
+        fused = self._fused()
+        if fused is not None:
+            theta = np.ascontiguousarray(np.atleast_2d(np.asarray(theta, dtype=float)))
+            return fused(theta)
         theta, arr, lp = self._prepare(theta)
         model = self.model
         ok = lp > -np.inf
@@ -89,6 +94,28 @@ class LogPosterior:
         out = np.full(theta.shape[0], -np.inf)
         out[rows] = value
         return out
+
+    def _fused(self):
+        """The whole log posterior in one compiled pass (coordinates, prior, white-noise
+        likelihood: :func:`rvkep._kepler_numba.white_noise_logpost`) as a function of
+        theta when the model allows it (:meth:`SystemModel.compiled_plan`), else None.
+        Its arguments are gathered once (and pickle with the posterior)."""
+        from rvkep.noise.white import _constant, _fused_logpost
+
+        if self._fused_args is False:
+            self._fused_args = None
+            model = self.model
+            plan = model.compiled_plan() if type(self.noise) is WhiteNoise else None
+            if plan is not None and _fused_logpost is not None:
+                self._fused_args = (
+                    *plan, model.t, model.y, model.err2, model.inst_index,
+                    len(model.instruments), model.design, self.linear == "marginalize",
+                    self.include_prior, _constant(model, self.linear),
+                )  # fmt: skip
+        if self._fused_args is None:
+            return None
+        args = self._fused_args
+        return lambda theta: _fused_logpost(theta, *args)
 
     def evaluate(self, theta: np.ndarray):
         """(values, details) where details holds residuals, weights and the linear fit

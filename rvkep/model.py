@@ -323,6 +323,7 @@ class SystemModel:
             [i.jitter.value if i.jitter.is_fixed else np.nan for i in self.instruments]
         )
         self._plan = None  # the prior plan, built on first use by log_prior
+        self._compiled = None  # compiled_plan's tables (() when it does not apply)
         self._jit_gather = self._owned("instrument")
         self._noise_fill = np.array(
             [p.prior.value if p.prior.is_fixed else np.nan for p in self.noise_parameters]
@@ -775,6 +776,48 @@ class SystemModel:
                 lp += self.coordinate_log_jacobian(np.where(ok[:, None], arr["ecc"], 0.0))
         lp[~ok | ~np.isfinite(lp)] = -np.inf
         return lp
+
+    def compiled_plan(self) -> tuple | None:
+        """The coordinate and prior tables of the compiled log posterior
+        (:func:`rvkep._kepler_numba.white_noise_logpost`, arguments ``cols`` to
+        ``epoch``), or None when the model needs the general path: a prior other than
+        uniform, log-uniform or normal, or a noise model's own parameters."""
+        if self._compiled is not None:
+            return self._compiled or None
+        nc, ni = len(self.companions), len(self.instruments)
+        plan, jac = self._plan if self._plan is not None else self._prior_plan()
+        self._plan = (plan, jac)
+        if plan["other"] or self.noise_parameters:
+            self._compiled = ()
+            return None
+        fields = ("ln_period", "tc_rel", "h", "k", "K")
+        cols = np.full((5, nc), -1, dtype=np.int64)
+        fill = np.zeros((5, nc))
+        for f, name in enumerate(fields):
+            fill[f] = np.nan_to_num(self._fill[name])
+            j, ci = self._gather[name]
+            cols[f, ci] = j
+        jit_cols = np.full(ni, -1, dtype=np.int64)
+        jit_cols[self._jit_gather[1]] = self._jit_gather[0]
+        nv = 4 * nc + ni
+        kind = np.zeros(nv, dtype=np.int64)
+        pa, pb, pc = np.zeros(nv), np.ones(nv), np.zeros(nv)
+        if "uniform" in plan:
+            cc, lo, hi, _ = plan["uniform"]
+            kind[cc], pa[cc], pb[cc], pc[cc] = 1, lo, hi, -np.log(hi - lo)
+        if "loguniform" in plan:
+            cc, lo, hi, _ = plan["loguniform"]
+            kind[cc], pa[cc], pb[cc], pc[cc] = 2, lo, hi, -np.log(np.log(hi / lo))
+        if "normal" in plan:
+            cc, mu, sd, _ = plan["normal"]
+            kind[cc], pa[cc], pb[cc] = 3, mu, sd
+            pc[cc] = -np.log(sd) - 0.5 * math.log(2 * math.pi)
+        period_jac = np.zeros(nc, dtype=bool)
+        period_jac[jac] = True
+        self._compiled = (cols, fill, self._circular, self._steep, self._steep_K, jit_cols,
+                          np.nan_to_num(self._jit_fill), kind, pa, pb, pc, period_jac,
+                          float(self.data.epoch))  # fmt: skip
+        return self._compiled
 
     def coordinate_log_jacobian(self, ecc: np.ndarray) -> np.ndarray:
         """What the steep companions' coordinates add to the log prior, (n_sets,),

@@ -15,8 +15,9 @@ from rvkep.noise.base import NoiseModel
 
 if BACKEND == "numba":
     from rvkep._kepler_numba import white_noise_loglike as _fused_loglike
+    from rvkep._kepler_numba import white_noise_logpost as _fused_logpost
 else:  # pragma: no cover - exercised with RVKEP_PURE_NUMPY=1
-    _fused_loglike = None
+    _fused_loglike = _fused_logpost = None
 
 __all__ = ["WhiteNoise", "linear_solve"]
 
