@@ -413,3 +413,24 @@ def test_calibration_of_steep_orbits():
     rate = inside / total
     print(f"steep orbits: 68% interval coverage over {total} pairs: {rate:.3f}")
     assert 0.5 <= rate <= 0.85, rate
+
+
+def test_autocorrelation_times_are_emcees():
+    # the stopping rule's tau against emcee.autocorr.integrated_time (the reference
+    # estimator) on chains with short and long memory, one of them constant in one
+    # parameter, and a chain shorter than its window
+    import emcee
+
+    from rvkep.sampling import _autocorr
+
+    rng = np.random.default_rng(0)
+    for shape in ((500, 48, 12), (3000, 32, 5), (7, 4, 3)):
+        x = rng.standard_normal(shape).cumsum(axis=0) * 0.05 + rng.standard_normal(shape)
+        want = emcee.autocorr.integrated_time(x, tol=0)
+        assert np.allclose(_autocorr(x), want, rtol=1e-12, atol=0)
+    x[:, :, 1] = 2.0  # a fixed column: NaN in both
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        want = emcee.autocorr.integrated_time(x, tol=0)
+    got = _autocorr(x)
+    assert np.isnan(got[1]) and np.isnan(want[1]) and np.allclose(got[[0, 2]], want[[0, 2]])
