@@ -74,13 +74,52 @@ class CheckpointWriteError(RvkepError):
     still holds every step of the previous flush."""
 
 
+def snooker_proposal(s, z, z1, z2, gamma: float):
+    """The differential-evolution snooker update of walkers ``s`` (n, ndim) from the
+    chosen walkers ``z`` (the snooker's centre) and ``z1``, ``z2`` (the difference),
+    with emcee's arithmetic (``emcee.moves.DESnookerMove``; ter Braak & Vrugt 2008):
+    u = (s - z) / sqrt|s - z|, q = s + gamma u (u.z1 - u.z2), and the log Metropolis
+    factor (ndim - 1)/2 ln(|q - z| / |s - z|). Returns (q, factors)."""
+    delta = s - z
+    norm = np.sqrt(np.einsum("ij,ij->i", delta, delta))
+    u = delta / np.sqrt(norm)[:, None]
+    q = s + u * (gamma * (np.einsum("ij,ij->i", u, z1) - np.einsum("ij,ij->i", u, z2)))[:, None]
+    d = q - z
+    ratio = np.log(np.sqrt(np.einsum("ij,ij->i", d, d))) - np.log(norm)
+    return q, 0.5 * (s.shape[1] - 1.0) * ratio
+
+
+_SNOOKER_CLASS = None
+
+
+def _snooker():
+    """emcee's snooker move with its proposals drawn for all walkers at once: for each
+    walker one walker from each of the three other quarters of the ensemble, their
+    roles (centre, first, second) in a uniformly random order, as emcee draws them one
+    walker at a time; the same proposal distribution, about 8x fewer Python steps."""
+    global _SNOOKER_CLASS
+    if _SNOOKER_CLASS is None:
+        from emcee.moves import DESnookerMove
+
+        class _Snooker(DESnookerMove):
+            def get_proposal(self, s, c, random):
+                n = len(s)
+                picks = np.stack([cj[random.randint(len(cj), size=n)] for cj in c])
+                order = np.argsort(random.rand(n, 3), axis=1)  # a uniform permutation each
+                z = picks[order.T, np.arange(n)]  # z[r, i] = picks[order[i, r], i]
+                return snooker_proposal(s, z[0], z[1], z[2], self.gammas)
+
+        _SNOOKER_CLASS = _Snooker
+    return _SNOOKER_CLASS()
+
+
 def _moves(kind: str):
     import emcee
 
     if kind == "stretch":
         return emcee.moves.StretchMove()
     if kind == "de":
-        return [(emcee.moves.DEMove(), 0.8), (emcee.moves.DESnookerMove(), 0.2)]
+        return [(emcee.moves.DEMove(), 0.8), (_snooker(), 0.2)]
     if kind == "de+stretch":
         return [(emcee.moves.DEMove(), 0.8), (emcee.moves.StretchMove(), 0.2)]
     raise ValueError(f"unknown moves {kind!r}; choose from {', '.join(MOVES)}")
@@ -393,6 +432,9 @@ class SamplingResult:
 #: SamplerOptions fields that change the chain (max_steps does not: a longer cap
 #: continues the same chain exactly)
 _KEYED_OPTIONS = ("walkers", "seed", "moves", "check_every", "tau_factor", "tau_rtol")
+#: the moves' own version: a chain written by moves that drew their proposals from
+#: another random stream (2: the snooker draws for all walkers at once) is not resumed
+_MOVES_VERSION = 2
 
 
 def checkpoint_key(model: SystemModel, options: SamplerOptions, walkers: int) -> tuple[str, str]:
@@ -405,7 +447,8 @@ def checkpoint_key(model: SystemModel, options: SamplerOptions, walkers: int) ->
     doc = {
         "model": model.canonical(),
         "parameters": list(model.names),
-        "sampler": {k: getattr(options, k) for k in _KEYED_OPTIONS} | {"walkers": walkers},
+        "sampler": {k: getattr(options, k) for k in _KEYED_OPTIONS}
+        | {"walkers": walkers, "moves_version": _MOVES_VERSION},
     }
     text = json.dumps(doc, sort_keys=True, default=repr)
     return hashlib.sha256(text.encode()).hexdigest(), text

@@ -434,3 +434,60 @@ def test_autocorrelation_times_are_emcees():
         want = emcee.autocorr.integrated_time(x, tol=0)
     got = _autocorr(x)
     assert np.isnan(got[1]) and np.isnan(want[1]) and np.allclose(got[[0, 2]], want[[0, 2]])
+
+
+def test_snooker_update_is_emcees():
+    # rvkep's snooker draws its walkers for the whole ensemble at once; the update
+    # itself must be emcee's DESnookerMove.get_proposal (the reference) for the same
+    # chosen walkers: a stub random state forces emcee's choice (indices 2, 0, 1 of
+    # the three quarters, no shuffle)
+    from emcee.moves import DESnookerMove
+
+    from rvkep.sampling import snooker_proposal
+
+    class Forced:
+        def __init__(self):
+            self.next = iter([2, 0, 1] * 100)
+
+        def randint(self, n):
+            return next(self.next)
+
+        def shuffle(self, x):
+            pass
+
+    rng = np.random.default_rng(3)
+    s = rng.standard_normal((6, 5))
+    c = [rng.standard_normal((6, 5)) for _ in range(3)]
+    want_q, want_f = DESnookerMove().get_proposal(s, c, Forced())
+    n = len(s)
+    q, f = snooker_proposal(s, np.repeat(c[0][[2]], n, 0), np.repeat(c[1][[0]], n, 0),
+                            np.repeat(c[2][[1]], n, 0), 1.7)  # fmt: skip
+    assert np.allclose(q, want_q, rtol=1e-13, atol=1e-13)
+    assert np.allclose(f, want_f, rtol=1e-12, atol=1e-12)
+
+
+def test_snooker_picks_one_walker_of_each_other_quarter_in_random_roles(monkeypatch):
+    # each proposal's (centre, first, second) are one walker from each of the three
+    # other quarters, every one of the 6 role orders about equally often (chi-square
+    # against uniform, scipy.stats)
+    from scipy import stats
+
+    from rvkep.sampling import _snooker
+
+    move = _snooker()
+    c = [np.full((4, 2), float(j)) + np.arange(4)[:, None] * 0.1 for j in range(3)]
+    s = np.full((3000, 2), 10.0)
+    captured = {}
+
+    def spy(s_, z, z1, z2, gamma):
+        captured["roles"] = np.stack([np.floor(z[:, 0]), np.floor(z1[:, 0]), np.floor(z2[:, 0])], 1)
+        captured["member"] = np.round((z[:, 0] % 1) * 10)
+        return s_, np.zeros(len(s_))
+
+    monkeypatch.setattr("rvkep.sampling.snooker_proposal", spy)
+    move.get_proposal(s, c, np.random.RandomState(0))
+    roles = captured["roles"]
+    assert (np.sort(roles, axis=1) == [0, 1, 2]).all()  # one walker of each quarter
+    perms, counts = np.unique(roles, axis=0, return_counts=True)
+    assert len(perms) == 6 and stats.chisquare(counts).pvalue > 1e-3
+    assert stats.chisquare(np.bincount(captured["member"].astype(int), minlength=4)).pvalue > 1e-3
