@@ -76,6 +76,9 @@ class LogPosterior:
         fused = self._fused()
         if fused is not None:
             theta = np.ascontiguousarray(np.atleast_2d(np.asarray(theta, dtype=float)))
+            if theta.ndim != 2 or theta.shape[1] != self.model.ndim:  # compiled: no checks
+                raise ValueError(f"need rows of {self.model.ndim} coordinates, got shape "
+                                 f"{theta.shape}")  # fmt: skip
             return fused(theta)
         theta, arr, lp = self._prepare(theta)
         model = self.model

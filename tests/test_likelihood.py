@@ -198,3 +198,5 @@ def test_one_compiled_pass_equals_the_model_and_noise_model_step_by_step():
                 assert np.array_equal(np.isinf(got), np.isinf(want)) and np.isinf(got[3:6]).all()
                 ok = np.isfinite(want)
                 assert np.allclose(got[ok], want[ok], rtol=1e-12, atol=1e-9)
+    with pytest.raises(ValueError, match="coordinates"):  # the compiled pass reads no bounds
+        post(theta[:, :-1])
