@@ -45,7 +45,7 @@ from periastron, which pins K sqrt(1 - e^2) (proportional to m sin i at a given 
 while K alone follows e along a narrow curved ridge, and sqrt(e) piles up against the
 edge of the unit disc; in the stretched coordinates the posterior is close to Gaussian.
 On a seeded e = 0.9 star (60 points) the largest autocorrelation time fell from about
-1,560 steps (unconverged at 40,000) to 170 (converged at 8,500), same posterior. The
+1,560 steps (unconverged at 40,000) to 170 (converged at about 9,000), same posterior. The
 prior is the same distribution in either set of coordinates: the log densities differ
 by the log Jacobian, which :meth:`SystemModel.log_prior` adds. Near e = 0 the
 stretched pair equals the sqrt(e) pair to first order.
@@ -499,7 +499,7 @@ class SystemModel:
         k = self._matrix(theta, "k")
         e = h * h + k * k
         K = self._matrix(theta, "K")
-        if self._steep.any():  # e = 1 - exp(-(a^2 + b^2)); K = K sqrt(1 - e^2) / sqrt(...)
+        if self._steep.any():  # e = 1 - exp(-(a^2 + b^2)); K from the sampled K sqrt(1 - e^2)
             s = self._steep
             e[:, s] = -np.expm1(-e[:, s])
             with np.errstate(invalid="ignore", divide="ignore"):
