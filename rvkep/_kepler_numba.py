@@ -504,3 +504,251 @@ def keplerian_power(t, y, w, starts, X, n_inst, G, freq, ecc, n_phase, table):
                         best_e[fi] = ei
                         best_phase[fi] = j / nph
     return drop, best_e, best_phase
+
+
+@njit(cache=cache, error_model="numpy")
+def white_noise_profile_grad(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fill,
+                             kind, pa, pb, pc, period_jac, epoch, t, y, err2, inst, n_inst, X,
+                             const):  # fmt: skip
+    """The best fit's objective and its gradient: the log posterior with the linear
+    part profiled out (offsets and trend at their best values) and its derivatives with
+    respect to the sampled coordinates ``theta`` (ndim,), same tables as
+    :func:`white_noise_logpost`. Returns (value, gradient); value -inf (gradient
+    zeros) outside the prior.
+
+    The derivatives: the profiled linear part drops out (its own derivative vanishes
+    at the best values), so d ln L = sum_i w_i rho_i dv_i (rho the residual after the
+    linear fit) plus, per instrument, sum (j w^2 rho^2 - j w) for its jitter j. Each
+    Keplerian's dv through the mean anomaly (dnu/dM = (1 + e cos nu)^2 / (1-e^2)^1.5,
+    dnu/de at fixed M = sin nu (2 + e cos nu) / (1 - e^2); Murray & Dermott 1999
+    sec. 2.4-2.5) and the shift from conjunction to periastron time
+    (tp = tc - P M_c(e, omega) / 2 pi, M_c the mean anomaly at nu = pi/2 - omega),
+    then through the sampled coordinates (ln P; the sqrt(e) or stretched pair; K or
+    K sqrt(1 - e^2)); the prior's own terms added likewise.
+    """
+    ndim = theta.size
+    nc = cols.shape[1]
+    ni = jit_cols.size
+    npts = t.size
+    m = X.shape[1]
+    grad = np.zeros(ndim)
+    vals = np.empty((nc, 5))
+    P = np.empty(nc)
+    nn = np.empty(nc)
+    tp = np.empty(nc)
+    e = np.empty(nc)
+    om = np.empty(nc)
+    K = np.empty(nc)
+    Mc = np.empty(nc)
+    jit = np.empty(ni)
+    V = np.empty(4 * nc + ni)
+    ok = True
+    lp = 0.0
+    for c in range(nc):
+        for f in range(5):
+            j = cols[f, c]
+            vals[c, f] = theta[j] if j >= 0 else fill[f, c]
+        h = vals[c, 2]
+        k = vals[c, 3]
+        ec = h * h + k * k
+        Kc = vals[c, 4]
+        if steep[c]:
+            ec = -math.expm1(-ec)
+            if steep_k[c]:
+                Kc = Kc / math.sqrt(1.0 - ec * ec)
+        if circular[c]:
+            w = 0.5 * _PI
+        else:
+            w = math.atan2(k, h)
+            if w < 0.0:
+                w += _TWO_PI
+        Pc = math.exp(vals[c, 0])
+        ecap = min(ec, _E_CAP)
+        x = 1.5 * _PI - w
+        x = x - math.floor(x / _TWO_PI) * _TWO_PI
+        half_nu = 0.5 * (x - _PI)
+        E = 2.0 * math.atan2(math.sqrt(1.0 - ecap) * math.sin(half_nu),
+                             math.sqrt(1.0 + ecap) * math.cos(half_nu))  # fmt: skip
+        Mc[c] = E - ecap * math.sin(E)
+        tp[c] = vals[c, 1] - Pc * Mc[c] / _TWO_PI
+        P[c] = Pc
+        nn[c] = _TWO_PI / Pc
+        e[c] = ec
+        om[c] = w
+        K[c] = Kc
+        V[c] = Pc
+        V[nc + c] = vals[c, 1] + epoch
+        V[2 * nc + c] = ec
+        V[3 * nc + c] = Kc
+        if not (ec < 1.0) or not (Kc >= 0.0):
+            ok = False
+        if period_jac[c]:
+            lp += math.log(Pc) if Pc > 0.0 else 0.0
+    for q in range(ni):
+        j = jit_cols[q]
+        jq = theta[j] if j >= 0 else jit_fill[q]
+        jit[q] = jq
+        V[4 * nc + q] = jq
+        if not (jq >= 0.0):
+            ok = False
+    dV = np.zeros(V.size)  # d ln prior / d V
+    for j in range(V.size):
+        kd = kind[j]
+        v = V[j]
+        if kd == 1:
+            if not (v >= pa[j] and v <= pb[j]):
+                ok = False
+            lp += pc[j]
+        elif kd == 2:
+            if not (v >= pa[j] and v <= pb[j]):
+                ok = False
+            lp += pc[j] - math.log(v if v > 0.0 else 1.0)
+            dV[j] = -1.0 / v if v > 0.0 else 0.0
+        elif kd == 3:
+            z = (v - pa[j]) / pb[j]
+            lp += pc[j] - 0.5 * z * z
+            dV[j] = -z / pb[j]
+    if not ok:
+        return -np.inf, grad
+    for c in range(nc):
+        if steep[c]:
+            lp += math.log1p(-e[c])
+            if steep_k[c]:
+                lp -= 0.5 * math.log1p(-(e[c] * e[c]))
+    if not math.isfinite(lp):
+        return -np.inf, grad
+    # residuals, weights and the profiled linear part
+    resid = np.empty(npts)
+    w_ = np.empty(npts)
+    for i in range(npts):
+        resid[i] = y[i]
+    for c in range(nc):
+        ec = e[c]
+        root = math.sqrt(1.0 - ec * ec)
+        cw, sw = math.cos(om[c]), math.sin(om[c])
+        for i in range(npts):
+            resid[i] -= rv_point(t[i], tp[c], nn[c], ec, cw, sw, K[c], root)
+    A = np.zeros((m, m))
+    b = np.zeros(m)
+    chi2 = 0.0
+    for i in range(npts):
+        k = inst[i]
+        jj = jit[k]
+        wi = 1.0 / (err2[i] + jj * jj)
+        w_[i] = wi
+        wr = wi * resid[i]
+        chi2 += wr * resid[i]
+        b[k] += wr
+        A[k, k] += wi
+        for a in range(n_inst, m):
+            xa = X[i, a]
+            b[a] += wr * xa
+            A[a, k] += wi * xa
+            for c2 in range(n_inst, a + 1):
+                A[a, c2] += wi * xa * X[i, c2]
+    logw = 0.0
+    for i in range(npts):
+        logw += math.log(w_[i])
+    L = np.zeros((m, m))
+    for a in range(m):
+        for c2 in range(a + 1):
+            acc = A[a, c2]
+            for q in range(c2):
+                acc -= L[a, q] * L[c2, q]
+            if a == c2:
+                L[a, a] = math.sqrt(acc)
+            else:
+                L[a, c2] = acc / L[c2, c2]
+    z = np.empty(m)
+    red = 0.0
+    for a in range(m):
+        acc = b[a]
+        for q in range(a):
+            acc -= L[a, q] * z[q]
+        z[a] = acc / L[a, a]
+        red += z[a] * z[a]
+    beta = np.empty(m)
+    for a in range(m - 1, -1, -1):
+        acc = z[a]
+        for q in range(a + 1, m):
+            acc -= L[q, a] * beta[q]
+        beta[a] = acc / L[a, a]
+    value = -0.5 * (chi2 - red) + 0.5 * logw + const + lp
+    if not math.isfinite(value):
+        return -np.inf, grad
+    # weighted residuals after the linear fit, and the jitters' derivatives
+    wrho = np.empty(npts)
+    for i in range(npts):
+        k = inst[i]
+        rho = resid[i] - beta[k]
+        for a in range(n_inst, m):
+            rho -= X[i, a] * beta[a]
+        wrho[i] = w_[i] * rho
+        j = jit_cols[k]
+        if j >= 0:
+            jj = jit[k]
+            grad[j] += jj * wrho[i] * wrho[i] - jj * w_[i]
+    for q in range(ni):
+        j = jit_cols[q]
+        if j >= 0:
+            grad[j] += dV[4 * nc + q]
+    # each companion: d ln post / d (P, tc, e, omega, K), then the coordinates
+    for c in range(nc):
+        ec = e[c]
+        Pc, nc_, Kc, w = P[c], nn[c], K[c], om[c]
+        cw, sw = math.cos(w), math.sin(w)
+        one_e2 = 1.0 - ec * ec
+        root = math.sqrt(one_e2)
+        # the shift to periastron: dM_c/d omega and dM_c/de at nu_c = pi/2 - omega
+        dnudM_c = (1.0 + ec * sw) ** 2 / (one_e2 * root)
+        dMc_dw = -1.0 / dnudM_c
+        dMc_de = -(cw * (2.0 + ec * sw) / one_e2) / dnudM_c
+        gP = gtc = ge = gw = gK = 0.0
+        for i in range(npts):
+            Mu = nc_ * (t[i] - tp[c])
+            M = Mu - math.floor((Mu + _PI) / _TWO_PI) * _TWO_PI
+            _, sE, cE = markley(M, ec)
+            den = 1.0 - ec * cE
+            cnu = (cE - ec) / den
+            snu = root * sE / den
+            S = snu * cw + cnu * sw
+            shape = cnu * cw - snu * sw + ec * cw  # v / K
+            dnudM = (1.0 + ec * cnu) ** 2 / (one_e2 * root)
+            dvdM = -Kc * S * dnudM
+            dv_de = Kc * (-S * snu * (2.0 + ec * cnu) / one_e2 + cw) + dvdM * dMc_de
+            dv_dw = -Kc * (S + ec * sw) + dvdM * dMc_dw
+            r = wrho[i]
+            gP += r * dvdM * (Mc[c] - Mu) / Pc
+            gtc += r * dvdM * (-nc_)
+            ge += r * dv_de
+            gw += r * dv_dw
+            gK += r * shape
+        gP += dV[c]
+        gtc += dV[nc + c]
+        ge += dV[2 * nc + c]
+        gK += dV[3 * nc + c]
+        j = cols[0, c]
+        if j >= 0:
+            grad[j] += gP * Pc + (1.0 if period_jac[c] else 0.0)
+        j = cols[1, c]
+        if j >= 0:
+            grad[j] += gtc
+        if not circular[c]:
+            h = vals[c, 2]
+            k = vals[c, 3]
+            r2 = h * h + k * k
+            if steep[c]:
+                ge += -1.0 / (1.0 - ec)  # the stretched pair's Jacobian ln(1 - e)
+                if steep_k[c]:
+                    ge += gK * Kc * ec / one_e2  # K = K sqrt(1-e^2) / sqrt(1 - e^2)
+                    ge += ec / one_e2  # and its Jacobian -ln sqrt(1 - e^2)
+                de_dr2 = 1.0 - ec
+            else:
+                de_dr2 = 1.0
+            if r2 > 0.0:
+                grad[cols[2, c]] += ge * 2.0 * h * de_dr2 - gw * k / r2
+                grad[cols[3, c]] += ge * 2.0 * k * de_dr2 + gw * h / r2
+        j = cols[4, c]
+        if j >= 0:
+            grad[j] += gK / root if steep_k[c] else gK
+    return value, grad

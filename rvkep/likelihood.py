@@ -120,6 +120,28 @@ class LogPosterior:
         args = self._fused_args
         return lambda theta: _fused_logpost(theta, *args)
 
+    def gradient_function(self):
+        """A function theta (ndim,) -> (log posterior, its gradient) for best fits: the
+        profiled log posterior with the prior, in one compiled pass
+        (:func:`rvkep._kepler_numba.white_noise_profile_grad`); None where that pass
+        does not apply (another noise model or prior, a marginalized linear part, or
+        the likelihood alone)."""
+        from rvkep._kepler_numba import white_noise_profile_grad
+
+        if self.linear != "profile" or not self.include_prior or self._fused() is None:
+            return None
+        args = self._fused_args
+        tables, data, const = args[:13], args[13:19], args[-1]
+        ndim = self.model.ndim
+
+        def value_and_gradient(theta):
+            theta = np.ascontiguousarray(theta, dtype=float)
+            if theta.shape != (ndim,):
+                raise ValueError(f"need {ndim} coordinates, got shape {theta.shape}")
+            return white_noise_profile_grad(theta, *tables, *data, const)
+
+        return value_and_gradient
+
     def evaluate(self, theta: np.ndarray):
         """(values, details) where details holds residuals, weights and the linear fit
         for the valid rows (used by the best fit and the posterior of the offsets)."""

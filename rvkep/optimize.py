@@ -187,7 +187,8 @@ def _minimize(
     post: LogPosterior, theta0: np.ndarray, bounds, ftol: float = FTOL
 ) -> tuple[np.ndarray, float, bool, str]:
     """L-BFGS-B in coordinates rescaled by the local curvature, restarted once with
-    scales re-measured at the first optimum."""
+    scales re-measured at the first optimum. Gradients are analytic where the model
+    allows (:meth:`LogPosterior.gradient_function`), else central differences."""
     from scipy.optimize import minimize
 
     ndim = theta0.size
@@ -195,6 +196,7 @@ def _minimize(
     hi = np.array([b[1] if b[1] is not None else np.inf for b in bounds])
     penalty = 1e6
     h = 1e-6  # finite-difference step in the rescaled coordinates
+    gradient = post.gradient_function()  # analytic where the compiled pass applies
     x = theta0.copy()
     res = None
     for _ in range(2):
@@ -204,6 +206,13 @@ def _minimize(
         last = [np.zeros(ndim), float(-post(x0[None, :])[0])]
 
         def value_and_grad(u, x0=x0, scale=scale, ulo=ulo, uhi=uhi, last=last):
+            if gradient is not None:
+                f, g = gradient(x0 + u * scale)
+                if not np.isfinite(f):  # outside the prior: the bowl below
+                    d = u - last[0]
+                    return last[1] + penalty * (1.0 + d @ d), 2.0 * penalty * d
+                last[0], last[1] = u.copy(), -f
+                return -f, -g * scale
             pts = np.repeat(u[None, :], 2 * ndim + 1, axis=0)
             for j in range(ndim):  # steps stay inside the bounds
                 pts[1 + 2 * j, j] = min(u[j] + h, uhi[j])

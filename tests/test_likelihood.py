@@ -166,24 +166,9 @@ def test_one_compiled_pass_equals_the_model_and_noise_model_step_by_step():
     # normal priors, a fixed period and a fixed tc, a circular and a steep companion,
     # a fixed jitter, trends 0-2, both linear treatments, with and without the prior,
     # and rows outside the prior or with e >= 1.
-    from rvkep.model import Companion, Instrument
-    from rvkep.priors import Fixed, LogUniform, Normal, Uniform
-
-    data = synthetic()
-    comps = [
-        Companion("b", LogUniform(10, 40), Uniform(2459000, 2459030), Normal(15, 4),
-                  Uniform(0, 0.95), start={"period": 23.0, "tc": 2459012.0, "K": 14.0,
-                                           "ecc": 0.25, "omega": 1.2}),
-        Companion("c", Fixed(61.0), Normal(2459020, 5), Uniform(0, 20), Fixed(0.0),
-                  start={"tc": 2459021.0, "K": 3.0}),
-        Companion("d", Normal(5.1, 0.2), Fixed(2459002.5), LogUniform(0.5, 30),
-                  Uniform(0, 0.99), start={"period": 5.1, "K": 2.0, "ecc": 0.7, "omega": 4.0},
-                  steep=True),
-    ]  # fmt: skip
-    insts = [Instrument("north", Uniform(0, 8), 1.0), Instrument("south", Fixed(2.0))]
     rng = np.random.default_rng(3)
     for trend in (0, 1, 2):
-        model = SystemModel(data, comps, insts, trend=trend)
+        model = mixed_white_model(trend)
         assert model.compiled_plan() is not None
         theta = model.start_theta() + 0.02 * rng.standard_normal((40, model.ndim))
         theta[3, model.names.index("b.sqrt_e_cos_omega")] = 1.1  # e >= 1
@@ -200,3 +185,52 @@ def test_one_compiled_pass_equals_the_model_and_noise_model_step_by_step():
                 assert np.allclose(got[ok], want[ok], rtol=1e-12, atol=1e-9)
     with pytest.raises(ValueError, match="coordinates"):  # the compiled pass reads no bounds
         post(theta[:, :-1])
+
+
+def mixed_white_model(trend):
+    """Invented data and a white-noise model with uniform, log-uniform and normal priors,
+    fixed values, a circular and a steep companion, one fixed jitter."""
+    from rvkep.model import Companion, Instrument
+    from rvkep.priors import Fixed, LogUniform, Normal, Uniform
+
+    data = synthetic()
+    comps = [
+        Companion("b", LogUniform(10, 40), Uniform(2459000, 2459030), Normal(15, 4),
+                  Uniform(0, 0.95), start={"period": 23.0, "tc": 2459012.0, "K": 14.0,
+                                           "ecc": 0.25, "omega": 1.2}),
+        Companion("c", Fixed(61.0), Normal(2459020, 5), Uniform(0, 20), Fixed(0.0),
+                  start={"tc": 2459021.0, "K": 3.0}),
+        Companion("d", Normal(5.1, 0.2), Fixed(2459002.5), LogUniform(0.5, 30),
+                  Uniform(0, 0.99), start={"period": 5.1, "K": 2.0, "ecc": 0.7, "omega": 4.0},
+                  steep=True),
+    ]  # fmt: skip
+    insts = [Instrument("north", Uniform(0, 8), 1.0), Instrument("south", Fixed(2.0))]
+    return SystemModel(data, comps, insts, trend=trend)
+
+
+def test_best_fit_gradient_against_central_differences():
+    # The analytic gradient of the profiled log posterior (the best fit's objective)
+    # against central differences of the log posterior itself (numerical
+    # differentiation, step 1e-6 of each coordinate), with every coordinate kind:
+    # ln P, tc, the sqrt(e) and stretched pairs, K and K sqrt(1 - e^2), a jitter,
+    # priors of three kinds, trends 0 and 2; the value is the posterior's own.
+    rng = np.random.default_rng(3)
+    for trend in (0, 2):
+        model = mixed_white_model(trend)
+        post = LogPosterior(model, linear="profile")
+        grad_of = post.gradient_function()
+        for _ in range(3):
+            theta = model.start_theta() + 0.01 * rng.standard_normal(model.ndim)
+            value, grad = grad_of(theta)
+            assert value == pytest.approx(post(theta[None])[0], abs=1e-9)
+            want = np.empty(model.ndim)
+            for j in range(model.ndim):
+                step = np.zeros(model.ndim)
+                step[j] = 1e-6 * max(1.0, abs(theta[j]))
+                up, down = post(np.array([theta + step, theta - step]))
+                want[j] = (up - down) / (2 * step[j])
+            assert np.allclose(grad, want, rtol=2e-5, atol=1e-3)
+    assert LogPosterior(model).gradient_function() is None  # marginalized: no
+    outside = model.start_theta()
+    outside[model.names.index("b.ln_period")] = np.log(45.0)
+    assert grad_of(outside)[0] == -np.inf
