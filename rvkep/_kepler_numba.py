@@ -266,7 +266,90 @@ def _white_row(t, y, err2, inst, n_inst, X, tp, n, e, cosw, sinw, K, jit, resid,
 
 
 _E_CAP = 1.0 - 1e-12  # as rvkep.model: e >= 1 rows are refused; keep their tp finite
-_HALF_LOG_2PI = 0.5 * math.log(2.0 * math.pi)
+
+
+@njit(cache=cache, error_model="numpy", inline="always")
+def _row_elements(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fill, kind, pa,
+                  pb, pc, period_jac, epoch, vals, P, tp, e, om, K, Mc, jit, V, dV):  # fmt: skip
+    """One parameter set's elements and log prior, shared by the compiled log posterior
+    and the best fit's gradient: fills ``vals`` (n_comp, 5: the coordinates or fixed
+    values of ln P, tc, the pair and K), ``P``, ``tp``, ``e``, ``om``, ``K``, ``Mc``
+    (the mean anomaly at conjunction), ``jit``, ``V`` ([P | tc | e | K | jitter]) and
+    ``dV`` (d ln prior / d V); returns (valid, ln prior with the Jacobians)."""
+    nc = cols.shape[1]
+    ni = jit_cols.size
+    ok = True
+    lp = 0.0
+    for c in range(nc):
+        for f in range(5):
+            j = cols[f, c]
+            vals[c, f] = theta[j] if j >= 0 else fill[f, c]
+        h = vals[c, 2]
+        k = vals[c, 3]
+        ec = h * h + k * k
+        Kc = vals[c, 4]
+        if steep[c]:
+            ec = -math.expm1(-ec)
+            if steep_k[c]:
+                Kc = Kc / math.sqrt(1.0 - ec * ec)
+        if circular[c]:
+            w = 0.5 * _PI
+        else:
+            w = math.atan2(k, h)
+            if w < 0.0:
+                w += _TWO_PI
+        Pc = math.exp(vals[c, 0])
+        ecap = min(ec, _E_CAP)
+        x = 1.5 * _PI - w
+        x = x - math.floor(x / _TWO_PI) * _TWO_PI
+        half_nu = 0.5 * (x - _PI)
+        E = 2.0 * math.atan2(math.sqrt(1.0 - ecap) * math.sin(half_nu),
+                             math.sqrt(1.0 + ecap) * math.cos(half_nu))  # fmt: skip
+        Mc[c] = E - ecap * math.sin(E)
+        tp[c] = vals[c, 1] - Pc * Mc[c] / _TWO_PI
+        P[c] = Pc
+        e[c] = ec
+        om[c] = w
+        K[c] = Kc
+        V[c] = Pc
+        V[nc + c] = vals[c, 1] + epoch
+        V[2 * nc + c] = ec
+        V[3 * nc + c] = Kc
+        if not (ec < 1.0) or not (Kc >= 0.0):
+            ok = False
+        if period_jac[c]:
+            lp += math.log(Pc) if Pc > 0.0 else 0.0
+    for q in range(ni):
+        j = jit_cols[q]
+        jq = theta[j] if j >= 0 else jit_fill[q]
+        jit[q] = jq
+        V[4 * nc + q] = jq
+        if not (jq >= 0.0):
+            ok = False
+    for j in range(V.size):
+        kd = kind[j]
+        v = V[j]
+        dV[j] = 0.0
+        if kd == 1:
+            if not (v >= pa[j] and v <= pb[j]):
+                ok = False
+            lp += pc[j]
+        elif kd == 2:
+            if not (v >= pa[j] and v <= pb[j]):
+                ok = False
+            lp += pc[j] - math.log(v if v > 0.0 else 1.0)
+            dV[j] = -1.0 / v if v > 0.0 else 0.0
+        elif kd == 3:
+            z = (v - pa[j]) / pb[j]
+            lp += pc[j] - 0.5 * z * z
+            dV[j] = -z / pb[j]
+    if ok:
+        for c in range(nc):
+            if steep[c]:
+                lp += math.log1p(-e[c])
+                if steep_k[c]:
+                    lp -= 0.5 * math.log1p(-(e[c] * e[c]))
+    return ok, lp
 
 
 @njit(cache=cache, error_model="numpy")
@@ -297,91 +380,30 @@ def white_noise_logpost(theta, cols, fill, circular, steep, steep_k, jit_cols, j
     A = np.zeros((m, m))
     b = np.zeros(m)
     L = np.zeros((m, m))
+    vals = np.empty((nc, 5))
+    P = np.empty(nc)
     tp = np.empty(nc)
     nn = np.empty(nc)
     e = np.empty(nc)
+    om = np.empty(nc)
     cw = np.empty(nc)
     sw = np.empty(nc)
     K = np.empty(nc)
+    Mc = np.empty(nc)
     jit = np.empty(ni)
     V = np.empty(4 * nc + ni)
-    vals = np.empty(5)
+    dV = np.empty(4 * nc + ni)
     for s in range(S):
-        ok = True
-        lp = 0.0
-        for c in range(nc):
-            for f in range(5):
-                j = cols[f, c]
-                vals[f] = theta[s, j] if j >= 0 else fill[f, c]
-            h = vals[2]
-            k = vals[3]
-            ec = h * h + k * k
-            Kc = vals[4]
-            if steep[c]:
-                ec = -math.expm1(-ec)
-                if steep_k[c]:
-                    Kc = Kc / math.sqrt(1.0 - ec * ec)
-            if circular[c]:
-                om = 0.5 * _PI
-            else:
-                om = math.atan2(k, h)
-                if om < 0.0:
-                    om += _TWO_PI
-            P = math.exp(vals[0])
-            tc = vals[1]
-            ecap = min(ec, _E_CAP)
-            x = 1.5 * _PI - om
-            x = x - math.floor(x / _TWO_PI) * _TWO_PI
-            half_nu = 0.5 * (x - _PI)
-            E = 2.0 * math.atan2(math.sqrt(1.0 - ecap) * math.sin(half_nu),
-                                 math.sqrt(1.0 + ecap) * math.cos(half_nu))  # fmt: skip
-            Mc = E - ecap * math.sin(E)
-            tp[c] = tc - P * Mc / _TWO_PI
-            nn[c] = _TWO_PI / P
-            e[c] = ec
-            cw[c] = math.cos(om)
-            sw[c] = math.sin(om)
-            K[c] = Kc
-            V[c] = P
-            V[nc + c] = tc + epoch
-            V[2 * nc + c] = ec
-            V[3 * nc + c] = Kc
-            if not (ec < 1.0) or not (Kc >= 0.0):
-                ok = False
-            if period_jac[c]:
-                lp += math.log(P) if P > 0.0 else 0.0
-        for q in range(ni):
-            j = jit_cols[q]
-            jq = theta[s, j] if j >= 0 else jit_fill[q]
-            jit[q] = jq
-            V[4 * nc + q] = jq
-            if not (jq >= 0.0):
-                ok = False
-        for j in range(V.size):
-            kd = kind[j]
-            v = V[j]
-            if kd == 1:
-                if not (v >= pa[j] and v <= pb[j]):
-                    ok = False
-                lp += pc[j]
-            elif kd == 2:
-                if not (v >= pa[j] and v <= pb[j]):
-                    ok = False
-                lp += pc[j] - math.log(v if v > 0.0 else 1.0)
-            elif kd == 3:
-                z = (v - pa[j]) / pb[j]
-                lp += pc[j] - 0.5 * z * z
-        if not ok:
+        ok, lp = _row_elements(theta[s], cols, fill, circular, steep, steep_k, jit_cols,
+                               jit_fill, kind, pa, pb, pc, period_jac, epoch, vals, P, tp, e,
+                               om, K, Mc, jit, V, dV)  # fmt: skip
+        if not ok or not math.isfinite(lp):
             out[s] = -np.inf
             continue
         for c in range(nc):
-            if steep[c]:
-                lp += math.log1p(-e[c])
-                if steep_k[c]:
-                    lp -= 0.5 * math.log1p(-(e[c] * e[c]))
-        if not math.isfinite(lp):
-            out[s] = -np.inf
-            continue
+            nn[c] = _TWO_PI / P[c]
+            cw[c] = math.cos(om[c])
+            sw[c] = math.sin(om[c])
         ll0, ll1 = _white_row(t, y, err2, inst, n_inst, X, tp, nn, e, cw, sw, K, jit,
                               resid, w, A, b, L)  # fmt: skip
         value = ll0 + const
@@ -534,7 +556,6 @@ def white_noise_profile_grad(theta, cols, fill, circular, steep, steep_k, jit_co
     grad = np.zeros(ndim)
     vals = np.empty((nc, 5))
     P = np.empty(nc)
-    nn = np.empty(nc)
     tp = np.empty(nc)
     e = np.empty(nc)
     om = np.empty(nc)
@@ -542,138 +563,35 @@ def white_noise_profile_grad(theta, cols, fill, circular, steep, steep_k, jit_co
     Mc = np.empty(nc)
     jit = np.empty(ni)
     V = np.empty(4 * nc + ni)
-    ok = True
-    lp = 0.0
-    for c in range(nc):
-        for f in range(5):
-            j = cols[f, c]
-            vals[c, f] = theta[j] if j >= 0 else fill[f, c]
-        h = vals[c, 2]
-        k = vals[c, 3]
-        ec = h * h + k * k
-        Kc = vals[c, 4]
-        if steep[c]:
-            ec = -math.expm1(-ec)
-            if steep_k[c]:
-                Kc = Kc / math.sqrt(1.0 - ec * ec)
-        if circular[c]:
-            w = 0.5 * _PI
-        else:
-            w = math.atan2(k, h)
-            if w < 0.0:
-                w += _TWO_PI
-        Pc = math.exp(vals[c, 0])
-        ecap = min(ec, _E_CAP)
-        x = 1.5 * _PI - w
-        x = x - math.floor(x / _TWO_PI) * _TWO_PI
-        half_nu = 0.5 * (x - _PI)
-        E = 2.0 * math.atan2(math.sqrt(1.0 - ecap) * math.sin(half_nu),
-                             math.sqrt(1.0 + ecap) * math.cos(half_nu))  # fmt: skip
-        Mc[c] = E - ecap * math.sin(E)
-        tp[c] = vals[c, 1] - Pc * Mc[c] / _TWO_PI
-        P[c] = Pc
-        nn[c] = _TWO_PI / Pc
-        e[c] = ec
-        om[c] = w
-        K[c] = Kc
-        V[c] = Pc
-        V[nc + c] = vals[c, 1] + epoch
-        V[2 * nc + c] = ec
-        V[3 * nc + c] = Kc
-        if not (ec < 1.0) or not (Kc >= 0.0):
-            ok = False
-        if period_jac[c]:
-            lp += math.log(Pc) if Pc > 0.0 else 0.0
-    for q in range(ni):
-        j = jit_cols[q]
-        jq = theta[j] if j >= 0 else jit_fill[q]
-        jit[q] = jq
-        V[4 * nc + q] = jq
-        if not (jq >= 0.0):
-            ok = False
-    dV = np.zeros(V.size)  # d ln prior / d V
-    for j in range(V.size):
-        kd = kind[j]
-        v = V[j]
-        if kd == 1:
-            if not (v >= pa[j] and v <= pb[j]):
-                ok = False
-            lp += pc[j]
-        elif kd == 2:
-            if not (v >= pa[j] and v <= pb[j]):
-                ok = False
-            lp += pc[j] - math.log(v if v > 0.0 else 1.0)
-            dV[j] = -1.0 / v if v > 0.0 else 0.0
-        elif kd == 3:
-            z = (v - pa[j]) / pb[j]
-            lp += pc[j] - 0.5 * z * z
-            dV[j] = -z / pb[j]
-    if not ok:
+    dV = np.empty(4 * nc + ni)
+    ok, lp = _row_elements(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fill,
+                           kind, pa, pb, pc, period_jac, epoch, vals, P, tp, e, om, K, Mc, jit,
+                           V, dV)  # fmt: skip
+    if not ok or not math.isfinite(lp):
         return -np.inf, grad
-    for c in range(nc):
-        if steep[c]:
-            lp += math.log1p(-e[c])
-            if steep_k[c]:
-                lp -= 0.5 * math.log1p(-(e[c] * e[c]))
-    if not math.isfinite(lp):
-        return -np.inf, grad
-    # residuals, weights and the profiled linear part
+    # residuals, weights and the profiled linear part: _white_row leaves the residuals
+    # in resid, the weights in w_, the Cholesky factor of A in L and z = L^-1 b in z
     resid = np.empty(npts)
     w_ = np.empty(npts)
-    for i in range(npts):
-        resid[i] = y[i]
-    for c in range(nc):
-        ec = e[c]
-        root = math.sqrt(1.0 - ec * ec)
-        cw, sw = math.cos(om[c]), math.sin(om[c])
-        for i in range(npts):
-            resid[i] -= rv_point(t[i], tp[c], nn[c], ec, cw, sw, K[c], root)
     A = np.zeros((m, m))
-    b = np.zeros(m)
-    chi2 = 0.0
-    for i in range(npts):
-        k = inst[i]
-        jj = jit[k]
-        wi = 1.0 / (err2[i] + jj * jj)
-        w_[i] = wi
-        wr = wi * resid[i]
-        chi2 += wr * resid[i]
-        b[k] += wr
-        A[k, k] += wi
-        for a in range(n_inst, m):
-            xa = X[i, a]
-            b[a] += wr * xa
-            A[a, k] += wi * xa
-            for c2 in range(n_inst, a + 1):
-                A[a, c2] += wi * xa * X[i, c2]
-    logw = 0.0
-    for i in range(npts):
-        logw += math.log(w_[i])
+    z = np.zeros(m)
     L = np.zeros((m, m))
-    for a in range(m):
-        for c2 in range(a + 1):
-            acc = A[a, c2]
-            for q in range(c2):
-                acc -= L[a, q] * L[c2, q]
-            if a == c2:
-                L[a, a] = math.sqrt(acc)
-            else:
-                L[a, c2] = acc / L[c2, c2]
-    z = np.empty(m)
-    red = 0.0
-    for a in range(m):
-        acc = b[a]
-        for q in range(a):
-            acc -= L[a, q] * z[q]
-        z[a] = acc / L[a, a]
-        red += z[a] * z[a]
+    nn = np.empty(nc)
+    cws = np.empty(nc)
+    sws = np.empty(nc)
+    for c in range(nc):
+        nn[c] = _TWO_PI / P[c]
+        cws[c] = math.cos(om[c])
+        sws[c] = math.sin(om[c])
+    ll0, _ = _white_row(t, y, err2, inst, n_inst, X, tp, nn, e, cws, sws, K, jit, resid, w_,
+                        A, z, L)  # fmt: skip
     beta = np.empty(m)
     for a in range(m - 1, -1, -1):
         acc = z[a]
         for q in range(a + 1, m):
             acc -= L[q, a] * beta[q]
         beta[a] = acc / L[a, a]
-    value = -0.5 * (chi2 - red) + 0.5 * logw + const + lp
+    value = ll0 + const + lp
     if not math.isfinite(value):
         return -np.inf, grad
     # weighted residuals after the linear fit, and the jitters' derivatives
@@ -695,7 +613,8 @@ def white_noise_profile_grad(theta, cols, fill, circular, steep, steep_k, jit_co
     # each companion: d ln post / d (P, tc, e, omega, K), then the coordinates
     for c in range(nc):
         ec = e[c]
-        Pc, nc_, Kc, w = P[c], nn[c], K[c], om[c]
+        Pc, Kc, w = P[c], K[c], om[c]
+        nc_ = _TWO_PI / Pc
         cw, sw = math.cos(w), math.sin(w)
         one_e2 = 1.0 - ec * ec
         root = math.sqrt(one_e2)
