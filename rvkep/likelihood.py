@@ -24,7 +24,13 @@ import numpy as np
 
 from rvkep.model import SystemModel, keplerian_velocity, orbit_velocity
 from rvkep.noise.base import NoiseModel
-from rvkep.noise.white import WhiteNoise, linear_solve
+from rvkep.noise.white import (
+    WhiteNoise,
+    _constant,
+    _fused_logpost,
+    _fused_profile_grad,
+    linear_solve,
+)
 
 __all__ = [
     "WhiteNoise",
@@ -62,7 +68,7 @@ class LogPosterior:
         self.linear = linear
         self.noise = noise or model.noise_model
         self.include_prior = include_prior
-        self._fused_args = False  # not looked for yet (see _fused)
+        self._compiled = False  # not looked for yet (see _compiled_parts)
 
     def _prepare(self, theta: np.ndarray):
         """(theta as rows, orbit arrays, log prior) of a call."""
@@ -73,13 +79,14 @@ class LogPosterior:
         return theta, arr, lp
 
     def __call__(self, theta: np.ndarray) -> np.ndarray:
-        fused = self._fused()
-        if fused is not None:
+        parts = self._compiled_parts()
+        if parts is not None:
             theta = np.ascontiguousarray(np.atleast_2d(np.asarray(theta, dtype=float)))
             if theta.ndim != 2 or theta.shape[1] != self.model.ndim:  # compiled: no checks
                 raise ValueError(f"need rows of {self.model.ndim} coordinates, got shape "
                                  f"{theta.shape}")  # fmt: skip
-            return fused(theta)
+            tables, data, flags = parts
+            return _fused_logpost(theta, *tables, *data, *flags)
         theta, arr, lp = self._prepare(theta)
         model = self.model
         ok = lp > -np.inf
@@ -98,27 +105,25 @@ class LogPosterior:
         out[rows] = value
         return out
 
-    def _fused(self):
-        """The whole log posterior in one compiled pass (coordinates, prior, white-noise
-        likelihood: :func:`rvkep._kepler_numba.white_noise_logpost`) as a function of
-        theta when the model allows it (:meth:`SystemModel.compiled_plan`), else None.
-        Its arguments are gathered once (and pickle with the posterior)."""
-        from rvkep.noise.white import _constant, _fused_logpost
-
-        if self._fused_args is False:
-            self._fused_args = None
+    def _compiled_parts(self):
+        """(tables, data, flags) for the compiled passes (the log posterior
+        :func:`rvkep._kepler_numba.white_noise_logpost` and the best fit's
+        :func:`~rvkep._kepler_numba.white_noise_profile_grad`): the model's coordinate
+        and prior tables (:meth:`SystemModel.compiled_plan`), its data arrays and this
+        posterior's (marginalized?, with prior?, normalizing constant); None
+        when they do not apply (another noise model or prior kind, or no numba).
+        Gathered once; plain arrays, so the posterior still pickles."""
+        if self._compiled is False:
+            self._compiled = None
             model = self.model
             plan = model.compiled_plan() if type(self.noise) is WhiteNoise else None
             if plan is not None and _fused_logpost is not None:
-                self._fused_args = (
-                    *plan, model.t, model.y, model.err2, model.inst_index,
-                    len(model.instruments), model.design, self.linear == "marginalize",
-                    self.include_prior, _constant(model, self.linear),
-                )  # fmt: skip
-        if self._fused_args is None:
-            return None
-        args = self._fused_args
-        return lambda theta: _fused_logpost(theta, *args)
+                data = (model.t, model.y, model.err2, model.inst_index, len(model.instruments),
+                        model.design)  # fmt: skip
+                flags = (self.linear == "marginalize", self.include_prior,
+                         _constant(model, self.linear))  # fmt: skip
+                self._compiled = (plan, data, flags)
+        return self._compiled
 
     def gradient_function(self):
         """A function theta (ndim,) -> (log posterior, its gradient) for best fits: the
@@ -126,19 +131,17 @@ class LogPosterior:
         (:func:`rvkep._kepler_numba.white_noise_profile_grad`); None where that pass
         does not apply (another noise model or prior, a marginalized linear part, or
         the likelihood alone)."""
-        from rvkep._kepler_numba import white_noise_profile_grad
-
-        if self.linear != "profile" or not self.include_prior or self._fused() is None:
+        parts = self._compiled_parts()
+        if self.linear != "profile" or not self.include_prior or parts is None:
             return None
-        args = self._fused_args
-        tables, data, const = args[:13], args[13:19], args[-1]
+        tables, data, (_, _, const) = parts  # the profiled constant (linear is profile)
         ndim = self.model.ndim
 
         def value_and_gradient(theta):
             theta = np.ascontiguousarray(theta, dtype=float)
             if theta.shape != (ndim,):
                 raise ValueError(f"need {ndim} coordinates, got shape {theta.shape}")
-            return white_noise_profile_grad(theta, *tables, *data, const)
+            return _fused_profile_grad(theta, *tables, *data, const)
 
         return value_and_gradient
 

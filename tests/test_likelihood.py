@@ -177,7 +177,7 @@ def test_one_compiled_pass_equals_the_model_and_noise_model_step_by_step():
         for linear in ("marginalize", "profile"):
             for include_prior in (True, False):
                 post = LogPosterior(model, linear=linear, include_prior=include_prior)
-                assert post._fused() is not None
+                assert post._compiled_parts() is not None
                 want = post._general(*post._prepare(theta))[0]
                 got = post(theta)
                 assert np.array_equal(np.isinf(got), np.isinf(want)) and np.isinf(got[3:6]).all()

@@ -16,8 +16,9 @@ from rvkep.noise.base import NoiseModel
 if BACKEND == "numba":
     from rvkep._kepler_numba import white_noise_loglike as _fused_loglike
     from rvkep._kepler_numba import white_noise_logpost as _fused_logpost
+    from rvkep._kepler_numba import white_noise_profile_grad as _fused_profile_grad
 else:  # pragma: no cover - exercised with RVKEP_PURE_NUMPY=1
-    _fused_loglike = _fused_logpost = None
+    _fused_loglike = _fused_logpost = _fused_profile_grad = None
 
 __all__ = ["WhiteNoise", "linear_solve"]
 
