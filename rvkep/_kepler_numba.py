@@ -8,9 +8,9 @@ cube root (a bit-level first guess in single precision, refined by two Halley st
 double e < 1, well inside single precision). Branches are written as selects and
 numba's division checks are off (``error_model="numpy"``), so the loops vectorize.
 
-The functions are defined at module level so that numba's on-disk cache finds them;
-when no cache folder is writable (read-only package and home), caching is switched off
-instead of failing at import.
+The functions are defined at module level so that numba's on-disk cache finds them.
+The cache lives in a user folder (:mod:`rvkep._kernel_cache`), never in the package;
+when no folder is writable, the kernels compile in each process instead of failing.
 """
 
 import math
@@ -18,7 +18,7 @@ import math
 import numba
 import numpy as np
 from llvmlite import ir
-from numba import njit, types
+from numba import types
 from numba.extending import intrinsic
 
 from rvkep._constants import ALPHA_A as _ALPHA_A
@@ -26,6 +26,7 @@ from rvkep._constants import ALPHA_B as _ALPHA_B
 from rvkep._constants import PI as _PI
 from rvkep._constants import SMALL_E as _SMALL_E
 from rvkep._constants import TWO_PI as _TWO_PI
+from rvkep._kernel_cache import cache_folder, jit
 
 __all__ = [
     "ecc_anom_flat",
@@ -45,15 +46,9 @@ _HALF_PI = 0.5 * math.pi
 _CBRT_BIAS32 = 709921077
 
 
-def _probe():
-    return 0
-
-
-try:
-    njit(cache=True)(_probe)
-    cache = True
-except RuntimeError:  # "cannot cache function ...: no locator available"
-    cache = False
+#: The kernels are compiled once and cached in a user folder (see rvkep._kernel_cache),
+#: never in the package's own folder.
+KERNELS_FOLDER = cache_folder()
 
 
 @intrinsic
@@ -77,7 +72,7 @@ c0, c1, c2, c3, c4, c5, c6, c7, c8, c9, c10, c11 = _COS_C
 
 
 # fmt: off
-@njit(cache=cache, inline="always", error_model="numpy")
+@jit(inline="always", error_model="numpy")
 def sincos_0_pi(E):
     """(sin E, cos E) for 0 <= E <= pi, from Taylor series about pi/2 (Horner form)."""
     x = E - _HALF_PI
@@ -90,7 +85,7 @@ def sincos_0_pi(E):
 # fmt: on
 
 
-@njit(cache=cache, inline="always", error_model="numpy")
+@jit(inline="always", error_model="numpy")
 def two_thirds_power(x):
     bits = _as_int(np.float32(x))
     y = np.float64(_as_float(np.int32(bits // np.int32(3) + np.int32(_CBRT_BIAS32))))
@@ -101,7 +96,7 @@ def two_thirds_power(x):
     return y * y
 
 
-@njit(cache=cache, inline="always", error_model="numpy")
+@jit(inline="always", error_model="numpy")
 def markley(M, e):
     m = abs(M)
     sign = math.copysign(1.0, M)
@@ -136,7 +131,7 @@ def markley(M, e):
     return sign * (E1 + dE), sign * (s1 * cd + c1 * sd), c1 * cd - s1 * sd
 
 
-@njit(cache=cache, inline="always", error_model="numpy")
+@jit(inline="always", error_model="numpy")
 def rv_point(t, tp, n, e, cosw, sinw, K, root):
     M = n * (t - tp)
     M = M - math.floor((M + _PI) / _TWO_PI) * _TWO_PI
@@ -145,14 +140,14 @@ def rv_point(t, tp, n, e, cosw, sinw, K, root):
     return K * ((cE - e) * cosw - root * sE * sinw) / den + K * e * cosw
 
 
-@njit(cache=cache, error_model="numpy")
+@jit(error_model="numpy")
 def ecc_anom_flat(M, e, out):
     for i in range(M.size):
         k = math.floor((M[i] + _PI) / _TWO_PI)
         out[i] = markley(M[i] - k * _TWO_PI, e[i])[0] + k * _TWO_PI
 
 
-@njit(cache=cache, error_model="numpy")
+@jit(error_model="numpy")
 def rv_flat(t, tp, n, e, cosw, sinw, K, out):
     for i in range(t.size):
         out[i] = rv_point(
@@ -160,7 +155,7 @@ def rv_flat(t, tp, n, e, cosw, sinw, K, out):
         )
 
 
-@njit(cache=cache, error_model="numpy")
+@jit(error_model="numpy")
 def rv_rows(t, tp, n, e, cosw, sinw, K, out):
     for j in range(tp.size):
         root = math.sqrt(1.0 - e[j] * e[j])
@@ -169,7 +164,7 @@ def rv_rows(t, tp, n, e, cosw, sinw, K, out):
             out[j, i] = rv_point(t[i], tpj, nj, ej, cj, sj, Kj, root)
 
 
-@njit(cache=cache, error_model="numpy")
+@jit(error_model="numpy")
 def white_noise_loglike(t, y, err2, inst, n_inst, X, tp, n, e, cosw, sinw, K, jit):
     """Marginal and profile Gaussian log-likelihoods for many parameter sets at once.
 
@@ -200,7 +195,7 @@ def white_noise_loglike(t, y, err2, inst, n_inst, X, tp, n, e, cosw, sinw, K, ji
     return out
 
 
-@njit(cache=cache, error_model="numpy", inline="always")
+@jit(error_model="numpy", inline="always")
 def _white_row(t, y, err2, inst, n_inst, X, tp, n, e, cosw, sinw, K, jit, resid, w, A, b, L):
     """One parameter set of :func:`white_noise_loglike` (companions' parameters (n_comp,),
     ``jit`` (n_inst,)), in the scratch arrays given; returns its two columns."""
@@ -268,7 +263,7 @@ def _white_row(t, y, err2, inst, n_inst, X, tp, n, e, cosw, sinw, K, jit, resid,
 _E_CAP = 1.0 - 1e-12  # as rvkep.model: e >= 1 rows are refused; keep their tp finite
 
 
-@njit(cache=cache, error_model="numpy", inline="always")
+@jit(error_model="numpy", inline="always")
 def _row_elements(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fill, kind, pa,
                   pb, pc, period_jac, epoch, vals, P, tp, e, om, K, Mc, jit, V, dV):  # fmt: skip
     """One parameter set's elements and log prior, shared by the compiled log posterior
@@ -352,7 +347,7 @@ def _row_elements(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fil
     return ok, lp
 
 
-@njit(cache=cache, error_model="numpy")
+@jit(error_model="numpy")
 def white_noise_logpost(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fill,
                         kind, pa, pb, pc, period_jac, epoch, t, y, err2, inst, n_inst, X,
                         marginalize, include_prior, const):  # fmt: skip
@@ -415,7 +410,7 @@ def white_noise_logpost(theta, cols, fill, circular, steep, steep_k, jit_cols, j
     return out
 
 
-@njit(cache=cache, error_model="numpy", parallel=True)
+@jit(error_model="numpy", parallel=True)
 def keplerian_power(t, y, w, starts, X, n_inst, G, freq, ecc, n_phase, table):
     """Keplerian periodogram: at each frequency, the largest weighted chi-square drop
     of one Keplerian over a grid of eccentricities and periastron phases, its two
@@ -528,7 +523,7 @@ def keplerian_power(t, y, w, starts, X, n_inst, G, freq, ecc, n_phase, table):
     return drop, best_e, best_phase
 
 
-@njit(cache=cache, error_model="numpy")
+@jit(error_model="numpy")
 def white_noise_profile_grad(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fill,
                              kind, pa, pb, pc, period_jac, epoch, t, y, err2, inst, n_inst, X,
                              const):  # fmt: skip
@@ -671,3 +666,31 @@ def white_noise_profile_grad(theta, cols, fill, circular, steep, steep_k, jit_co
         if j >= 0:
             grad[j] += gK / root if steep_k[c] else gK
     return value, grad
+
+
+# ---------------------------------------------------------------------------
+# the argument types each kernel is called with, so that a first run can compile them
+# all at once, in parallel and with progress (rvkep._kernel_cache.prepare); a test
+# checks that a fit calls no other
+# ---------------------------------------------------------------------------
+_V, _M, _C = "float64[::1]", "float64[:, ::1]", "float64[:, :, ::1]"
+_IV, _IM, _BV = "int64[::1]", "int64[:, ::1]", "boolean[::1]"
+
+
+def _sig(*types: str) -> str:
+    return "(" + ", ".join(types) + ")"
+
+
+_PLAN = (_IM, _M, _BV, _BV, _BV, _IV, _V, _IV, _V, _V, _V, _BV, "float64",
+         _V, _V, _V, _IV, "int64", _M)  # fmt: skip
+
+#: kernel name -> the signatures rvkep calls it with
+SIGNATURES = {
+    "ecc_anom_flat": [_sig(_V, _V, _V)],
+    "rv_flat": [_sig(*[_V] * 8)],
+    "rv_rows": [_sig(*[_V] * 7, _M)],
+    "white_noise_loglike": [_sig(_V, _V, _V, _IV, "int64", _M, *[_M] * 7)],
+    "white_noise_logpost": [_sig(_M, *_PLAN, "boolean", "boolean", "float64")],
+    "white_noise_profile_grad": [_sig(_V, *_PLAN, "float64")],
+    "keplerian_power": [_sig(_V, _V, _V, _IV, _M, "int64", _M, _V, _V, _IV, _C)],
+}

@@ -3,7 +3,7 @@
 This is the hot kernel of rvkep. It takes and returns plain float arrays (no units),
 broadcasts like any numpy ufunc, and has two implementations of one algorithm:
 
-* a compiled one (numba ``vectorize``, cached on disk) used when numba loads, and
+* a compiled one (numba, cached on disk in a user folder) used when numba loads, and
 * a pure-numpy one, used when numba is missing or cannot load (set the environment
   variable ``RVKEP_PURE_NUMPY=1`` to force it); the tests check the two against each other.
 
@@ -312,3 +312,37 @@ def true_anomaly_from_eccentric(E: ArrayLike, e: ArrayLike) -> np.ndarray:
 def true_anomaly(M: ArrayLike, e: ArrayLike) -> np.ndarray:
     """True anomaly nu (radians) from the mean anomaly M and eccentricity e."""
     return true_anomaly_from_eccentric(eccentric_anomaly(M, e), e)
+
+
+def prepare_kernels(quiet: bool = False, stream=None) -> int:
+    """Compile the compiled kernels a run needs once, up front, when the on-disk cache
+    lacks them (the first run after an install, or after an upgrade of rvkep or numba).
+
+    Prints one line saying so, with progress, unless ``quiet``; the kernels compile side
+    by side in two processes where there are two cores. Returns how many were compiled
+    (0 when all were cached or numba is not in use). Later runs load them in about 1 s.
+    """
+    if BACKEND != "numba":
+        return 0
+    import sys
+    import time
+
+    from rvkep._kernel_cache import prepare
+
+    stream = stream or sys.stdout
+    tty = hasattr(stream, "isatty") and stream.isatty()
+    t0 = time.perf_counter()
+
+    def say(text, done, total):
+        if quiet:
+            return
+        if tty:
+            end = "\n" if done == total else ""
+            stream.write(f"\r{text}: {done}/{total}{end}")
+        elif done == 0:
+            stream.write(f"{text} ...\n")
+        elif done == total:
+            stream.write(f"compiled {total} kernel(s) in {time.perf_counter() - t0:.1f} s\n")
+        stream.flush()
+
+    return prepare(say)

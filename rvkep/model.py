@@ -318,7 +318,9 @@ class SystemModel:
         self._circular = np.array([c.circular for c in self.companions], dtype=bool)
         self._steep = np.array([c.steep for c in self.companions], dtype=bool)
         # a fixed K of a steep companion stays K: only a sampled K is scaled
-        self._steep_K = np.array([c.steep and not c.K.is_fixed for c in self.companions])
+        self._steep_K = np.array(
+            [c.steep and not c.K.is_fixed for c in self.companions], dtype=bool
+        )
         self._jit_fill = np.array(
             [i.jitter.value if i.jitter.is_fixed else np.nan for i in self.instruments]
         )

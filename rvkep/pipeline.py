@@ -26,6 +26,7 @@ import numpy as np
 from rvkep.data import DataWarning, RVData, check_size, load_rv
 from rvkep.defaults import TREND_DEGREES, parse_trend
 from rvkep.errors import OptionError, RvkepError
+from rvkep.kepler import prepare_kernels
 from rvkep.outputs import clean_temporaries, folder_lock
 from rvkep.physics import StarProperties
 
@@ -358,6 +359,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
     spec = read_model_file(opts.model_file) if opts.model_file else None
     data, data_notes = read_data(files, opts, spec)
     star = star_properties(opts, spec)
+    prepare_kernels(quiet=opts.quiet)  # the first run after an install compiles them
     timings = {"read": time.perf_counter() - t_start}
     out = Path(opts.out)
     out.mkdir(parents=True, exist_ok=True)

@@ -187,8 +187,10 @@ def test_pure_numpy_path_matches_compiled():
 
 def test_import_survives_read_only_cache(tmp_path):
     # numba's cache=True fails at decoration time without a writable cache folder;
-    # the module must fall back rather than fail at import.
-    env = dict(os.environ, NUMBA_CACHE_DIR="/proc/forbidden-cache")
+    # the module must fall back rather than fail at import (rvkep's own folder and
+    # numba's both unwritable).
+    env = dict(os.environ, NUMBA_CACHE_DIR="/proc/forbidden-cache",
+               RVKEP_CACHE_DIR="/proc/forbidden-cache")
     code = "from rvkep import kepler as k; print(k.BACKEND, float(k.eccentric_anomaly(1., .5)))"
     out = subprocess.run([sys.executable, "-c", code], env=env, capture_output=True, text=True)
     assert out.returncode == 0, out.stderr

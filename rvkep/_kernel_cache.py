@@ -1,0 +1,247 @@
+"""Where the compiled kernels are cached on disk: a user cache folder, never the package.
+
+numba's own ``cache=True`` writes its files into the package's ``__pycache__`` when that
+folder is writable. An installed package then owns files that pip did not install, so
+``pip uninstall`` leaves the folder behind, and that folder, with no ``__init__.py``,
+shadows a later editable install of the same package (``import rvkep`` finds an empty
+namespace). rvkep's kernels are therefore cached in a folder of the user's:
+
+1. ``$RVKEP_CACHE_DIR`` when set (used alone: a folder there or no cache);
+2. otherwise ``$XDG_CACHE_HOME/rvkep/kernels`` (``~/.cache/rvkep/kernels``), then a
+   per-user folder in the system's temporary folder;
+3. when none of these is writable, the kernels are compiled in each process and not
+   cached (the run is slower to start, never wrong).
+
+Inside the chosen folder each source file gets a subfolder named from its path's hash
+(numba's rule), and numba keys each entry on the source file's contents, the argument
+types and its own version, so a changed kernel or a second install never reads another's
+entry.
+"""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+__all__ = ["cache_folder", "jit", "kernels_cached"]
+
+
+def _candidates() -> list[Path]:
+    own = os.environ.get("RVKEP_CACHE_DIR", "")
+    if own:
+        return [Path(own).expanduser()]
+    xdg = os.environ.get("XDG_CACHE_HOME", "")
+    base = Path(xdg).expanduser() if xdg else Path.home() / ".cache"
+    try:
+        uid = str(os.getuid())
+    except AttributeError:  # pragma: no cover - not on POSIX
+        uid = "user"
+    return [base / "rvkep" / "kernels", Path(tempfile.gettempdir()) / f"rvkep-{uid}" / "kernels"]
+
+
+def _writable(folder: Path) -> bool:
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        tempfile.TemporaryFile(dir=folder).close()
+    except OSError:
+        return False
+    return True
+
+
+_FOLDER: Path | None | bool = False  # False: not looked up yet
+
+
+def cache_folder() -> Path | None:
+    """The folder the compiled kernels are cached in, or None when nothing is writable."""
+    global _FOLDER
+    if _FOLDER is False:
+        _FOLDER = next((c for c in _candidates() if _writable(c)), None)
+    return _FOLDER  # type: ignore[return-value]
+
+
+def _function_cache_class():
+    """numba's function cache with rvkep's one locator (None when numba lacks the hooks)."""
+    try:
+        from numba.core import caching
+    except ImportError:  # pragma: no cover - numba too old or too new
+        return None
+    folder = cache_folder()
+    if folder is None:
+        return None
+
+    class _Locator(caching._SourceFileBackedLocatorMixin, caching._CacheLocator):
+        def __init__(self, py_func, py_file):
+            self._py_file = py_file
+            self._lineno = py_func.__code__.co_firstlineno
+            self._cache_path = str(folder / self.get_suitable_cache_subpath(py_file))
+
+        def get_cache_path(self):
+            return self._cache_path
+
+    class _Impl(caching.CompileResultCacheImpl):
+        _locator_classes = [_Locator]
+
+    class _FunctionCache(caching.FunctionCache):
+        _impl_class = _Impl
+
+    return _FunctionCache
+
+
+_CACHE_CLASS = False  # False: not built yet
+
+
+def jit(**options):
+    """``numba.njit(**options)`` cached in :func:`cache_folder` (uncached where none).
+
+    Only the cache's location differs from ``njit(cache=True)``: what numba keys on and
+    how it loads are numba's own.
+    """
+    import numba
+
+    global _CACHE_CLASS
+    if _CACHE_CLASS is False:
+        _CACHE_CLASS = _function_cache_class()
+
+    def wrap(func):
+        dispatcher = numba.njit(cache=False, **options)(func)
+        if _CACHE_CLASS is not None:
+            try:
+                dispatcher._cache = _CACHE_CLASS(dispatcher.py_func)
+            except (RuntimeError, OSError):  # no locator: compile in each process
+                pass
+        return dispatcher
+
+    return wrap
+
+
+def kernels_cached(dispatchers) -> bool:
+    """Whether every dispatcher given has an index file in the cache (a hint, not a
+    promise: an index written for other argument types still compiles)."""
+    for d in dispatchers:
+        path = getattr(getattr(d, "_cache", None), "_index_path", None)
+        if path is None or not os.path.exists(path):
+            return False
+    return True
+
+
+def missing(module) -> list[tuple[str, str]]:
+    """The (kernel, signature) pairs of ``module.SIGNATURES`` that the cache lacks
+    (every pair when nothing is cached)."""
+    from numba.core import sigutils
+
+    out = []
+    for name, signatures in module.SIGNATURES.items():
+        dispatcher = getattr(module, name)
+        cache = dispatcher._cache
+        for sig in signatures:
+            try:
+                args, _ = sigutils.normalize_signature(sig)
+                key = cache._index_key(args, dispatcher.targetctx.codegen())
+                held = key in cache._cache_file._load_index()
+            except Exception:  # no cache (NullCache), or numba's internals moved
+                held = False
+            if not held:
+                out.append((name, sig))
+    return out
+
+
+def _compile_one(job: tuple[str, str]) -> str:
+    from numba.core import sigutils
+
+    from rvkep import _kepler_numba
+
+    name, sig = job
+    # as a tuple of types: numba keys the cache on the signature as given, and a call
+    # looks it up by the argument types
+    args, _ = sigutils.normalize_signature(sig)
+    getattr(_kepler_numba, name).compile(args)  # numba writes the cache entry
+    return name
+
+
+def _compile_listed(argv: list[str]) -> None:
+    """Worker: compile the ``name=signature`` jobs given, one line out per kernel done."""
+    for arg in argv:
+        name, sig = arg.split("=", 1)
+        _compile_one((name, sig))
+        print(name, flush=True)
+
+
+#: rough compile seconds of each kernel on one core, to share them out evenly
+_COST = {"white_noise_profile_grad": 3.0, "keplerian_power": 2.4, "white_noise_logpost": 2.3,
+         "white_noise_loglike": 1.5}  # fmt: skip
+
+
+def prepare(say=None, workers: int = 2) -> int:
+    """Compile the kernels the cache lacks, before a run needs them, and cache them.
+
+    With a cache folder and two cores or more the kernels compile side by side in
+    ``workers`` fresh Python processes (each writes its own cache entries; this process
+    then loads them as a warm run does); otherwise, or when a worker fails, they compile
+    here, one after the other. ``say(text, done, total)`` reports progress. Returns how
+    many kernels were missing.
+    """
+    import subprocess
+    import sys
+
+    from rvkep import _kepler_numba
+
+    jobs = sorted(missing(_kepler_numba), key=lambda j: -_COST.get(j[0], 0.5))
+    if not jobs:
+        return 0
+    folder = cache_folder()
+    where = f"cached in {folder}" if folder else "no writable cache folder: each run compiles"
+    text = f"compiling rvkep's kernels once (about 10 s; {where})"
+    done = 0
+
+    def tick():
+        if say:
+            say(text, done, len(jobs))
+
+    tick()
+    workers = min(workers, os.cpu_count() or 1, len(jobs))
+    if folder is not None and workers >= 2:
+        shares: list[list[tuple[str, str]]] = [[] for _ in range(workers)]
+        loads = [0.0] * workers
+        for job in jobs:  # longest first, each to the least loaded worker
+            k = loads.index(min(loads))
+            shares[k].append(job)
+            loads[k] += _COST.get(job[0], 0.5)
+        code = "import sys; from rvkep._kernel_cache import _compile_listed; " \
+            "_compile_listed(sys.argv[1:])"
+        procs = [
+            subprocess.Popen(
+                [sys.executable, "-c", code, *(f"{n}={s}" for n, s in share)],
+                stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True,
+            )
+            for share in shares
+        ]
+        try:
+            import selectors
+
+            sel = selectors.DefaultSelector()
+            for p in procs:
+                sel.register(p.stdout, selectors.EVENT_READ)
+            open_streams = len(procs)
+            while open_streams:
+                for key, _ in sel.select():
+                    line = key.fileobj.readline()
+                    if not line:
+                        sel.unregister(key.fileobj)
+                        open_streams -= 1
+                    else:
+                        done += 1
+                        tick()
+        finally:
+            for p in procs:
+                if p.poll() is None:
+                    p.kill()
+                p.wait()
+    # whatever the workers did not leave in the cache (or all, without workers)
+    rest = missing(_kepler_numba) if done else jobs
+    done = len(jobs) - len(rest)
+    for job in rest:
+        _compile_one(job)
+        done += 1
+        tick()
+    return len(jobs)
