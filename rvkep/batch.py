@@ -47,7 +47,8 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 from rvkep.errors import DataError, OptionError, RvkepError
-from rvkep.outputs import clean_temporaries, write_text
+from rvkep.names import csv_cell, name_problem, shown
+from rvkep.outputs import LOCK_NAME, clean_temporaries, write_text
 
 __all__ = ["Target", "read_targets", "run_target", "run_batch", "write_summary", "SUMMARY_FIELDS"]
 
@@ -103,33 +104,9 @@ def _bool(value: str, column: str) -> bool:
     raise DataError(f"{column}: expected true or false, got {value!r}")
 
 
-#: The longest target name (characters): it becomes a folder name, which most file
-#: systems cap at 255 bytes.
-MAX_NAME = 100
-
-
 def _name_problem(name: str) -> str | None:
     """Why ``name`` cannot name a target's folder, or None."""
-    import unicodedata
-
-    if not name:
-        return "empty target name"
-    if len(name) > MAX_NAME or len(name.encode("utf-8")) > 200:
-        return f"target name of {len(name)} characters (at most {MAX_NAME})"
-    bad = [c for c in name if unicodedata.category(c).startswith("C")]
-    if bad:
-        return f"target name {_shown(name)} holds a control character ({bad[0]!r})"
-    if "/" in name or "\\" in name:
-        return f"target name {_shown(name)} holds a path separator"
-    if name.startswith("."):
-        return f"target name {_shown(name)} starts with a dot"
-    return None
-
-
-def _shown(name: str, width: int = 40) -> str:
-    """A printable, bounded form of a name for messages and the summary."""
-    text = name.encode("unicode_escape").decode("ascii")
-    return repr(text if len(text) <= width else text[: width - 3] + "...")
+    return name_problem(name, "target name")
 
 
 def read_targets(path: str | Path) -> list[Target]:
@@ -181,10 +158,11 @@ def read_targets(path: str | Path) -> list[Target]:
         if problem is None and name in names:
             problem = f"target {name!r} listed twice"
         if problem is not None:
-            shown = _shown(name).strip("'") or f"line-{line}"
-            while shown in names:
-                shown += f"@line{line}"
-            name = shown
+            safe = shown(name).strip("'").replace("/", "_").replace("\\", "_").lstrip(".")
+            safe = safe or f"line-{line}"
+            while safe in names:
+                safe += f"@line{line}"
+            name = safe
         names.add(name)
         try:
             target = _target_from(rec, name, path.parent, line)
@@ -277,6 +255,9 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
     if info is not None:
         return {**info, "status": "skipped"}
     folder.mkdir(parents=True, exist_ok=True)
+    # the lock file marks the folder as an rvkep run's before the log is written into it
+    # (analyze takes the lock and removes the file when it ends)
+    (folder / LOCK_NAME).touch()
     with contextlib.suppress(FileNotFoundError):
         (folder / "error.txt").unlink()
     t0 = time.perf_counter()
@@ -478,8 +459,8 @@ def write_summary(targets: list[Target], out: str | Path, infos: dict[str, dict]
     w = csv.DictWriter(buf, fieldnames=SUMMARY_FIELDS, extrasaction="ignore")
     w.writeheader()
     rows = _summary_rows(targets, out, infos)
-    for row in rows:
-        w.writerow(row)
+    for row in rows:  # no name or error text of a target runs as a spreadsheet formula
+        w.writerow({k: csv_cell(v) for k, v in row.items()})
     from rvkep.report.index import render_index
 
     path = write_text(out / "summary.csv", buf.getvalue())
@@ -549,11 +530,12 @@ def run_batch(
     KeyboardInterrupt is re-raised. Tasks already running on a Dask cluster finish
     there; queued ones are cancelled.
     """
-    from rvkep.outputs import folder_lock
+    from rvkep.outputs import check_output_folder, folder_lock, make_output_folder
 
+    check_output_folder(out)
     targets = read_targets(targets_file)
     out = Path(out)
-    out.mkdir(parents=True, exist_ok=True)
+    make_output_folder(out)
     with folder_lock(out):
         clean_temporaries(out)
         infos = _run_targets(targets, out, workers, scheduler, seed, quiet, quick, executor)

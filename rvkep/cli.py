@@ -659,7 +659,10 @@ def _step_count(span: float, step: float) -> int:
 
 def _write_csv(out: str | None, comment: str, fields: list[str], rows: list[dict]) -> None:
     """The CSV of :func:`rvkep.outputs.write_csv` to ``out``, or to standard output."""
-    from rvkep.outputs import write_csv
+    from rvkep.outputs import check_output_file, write_csv
+
+    if out:
+        check_output_file(out)
 
     write_csv(out, comment, fields, rows, stream=sys.stdout)
 
@@ -863,7 +866,9 @@ def _run_limits(args: argparse.Namespace) -> int:
     if out.resolve() != Path(args.run_dir).resolve():
         import shutil
 
-        out.mkdir(parents=True, exist_ok=True)
+        from rvkep.outputs import make_output_folder
+
+        make_output_folder(out)
         for name in ("results.json", "summary.md"):
             shutil.copyfile(Path(args.run_dir) / name, out / name)
     limits = run_limits(setup, out, workers=args.workers, scheduler=args.scheduler,
@@ -948,6 +953,30 @@ _MACHINE_ERRORS = {
 }  # fmt: skip
 
 
+#: Where each subcommand writes: options naming a file, options naming a folder. Both
+#: are checked before any work (rvkep.outputs): a file's folder must exist, a folder must
+#: be new (its parent existing), empty, or one rvkep wrote.
+_FILE_OPTIONS = {"predict": ("out",), "events": ("out",), "plan": ("out", "figure")}
+_FOLDER_OPTIONS = {"analyze": "out", "demo": "out", "sample": "out", "batch": "out",
+                   "limits": "out"}  # fmt: skip
+
+
+def _check_outputs(args: argparse.Namespace) -> None:
+    from rvkep.outputs import check_output_file, check_output_folder
+
+    for name in _FILE_OPTIONS.get(args.command, ()):
+        if getattr(args, name, None):
+            check_output_file(getattr(args, name), "--" + name)
+    name = _FOLDER_OPTIONS.get(args.command)
+    if name and getattr(args, name, None):
+        check_output_folder(getattr(args, name), "--" + name)
+    if args.command == "periodogram":  # one figure, into a folder made if its parent exists
+        from pathlib import Path
+
+        out = Path(args.out)
+        check_output_file(out / "periodogram.png" if out.is_dir() else out, "--out")
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``rvkep`` console script; returns the exit status."""
     parser = build_parser()
@@ -957,6 +986,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return 0
     try:
+        _check_outputs(args)
         return int(args.run(args) or 0)
     except RvkepError as exc:
         print(f"rvkep {args.command}: error: {exc}", file=sys.stderr)

@@ -58,6 +58,7 @@ from rvkep import defaults
 from rvkep.data import RVData
 from rvkep.errors import ModelFileError
 from rvkep.model import Companion, Instrument, SystemModel, default_instrument
+from rvkep.names import name_problem
 from rvkep.physics import StarProperties
 from rvkep.priors import Fixed, Prior, prior_from_dict
 
@@ -287,6 +288,9 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
         raise ModelFileError(f"{_where(path, 'companions')}: must be a table of tables")
     for label, table in companions.items():
         where = _where(path, "companions", label)
+        problem = name_problem(label, "companion name")  # it names the figure files
+        if problem:
+            raise ModelFileError(f"{_where(path, 'companions')}: {problem}")
         _check_keys(table, _COMPANION, where)
         c = CompanionSpec(label=label)
         for key in ("period", "tc", "K", "ecc"):

@@ -12,15 +12,90 @@ import os
 import tempfile
 from pathlib import Path
 
-from rvkep.errors import FolderBusyError
+from rvkep.errors import FolderBusyError, OptionError
 
 __all__ = [
     "atomic_write", "write_text", "write_csv", "save_figure", "clean_temporaries", "current_umask",
-    "folder_lock", "LOCK_NAME",
+    "folder_lock", "LOCK_NAME", "RUN_MARKERS", "check_output_folder", "make_output_folder",
+    "check_output_file",
 ]  # fmt: skip
 
 #: The lock file of an output folder (see :func:`folder_lock`).
 LOCK_NAME = ".rvkep.lock"
+
+
+#: Files that mark a folder as rvkep's own (a run, a batch or a limits folder): an
+#: existing folder given as ``--out`` must be empty or hold one of them.
+RUN_MARKERS = (LOCK_NAME, "results.json", "model.json", "chain.h5", "summary.md",
+               "summary.csv", "index.html", "limits.csv")  # fmt: skip
+
+
+def check_output_folder(path: str | Path, option: str = "--out") -> Path:
+    """Refuse an output folder that rvkep should not write into, before any work.
+
+    An existing folder must be empty or one of rvkep's own (holding one of
+    :data:`RUN_MARKERS`), so that ``--out /`` or ``--out ~`` cannot scatter files among
+    others; a new folder is created later as the last component of the path only, so
+    its parent must exist. Raises :class:`~rvkep.errors.OptionError` naming the option.
+    """
+    p = Path(path)
+    if p.exists():
+        if not p.is_dir():
+            raise OptionError(f"{option} {p}: exists and is not a folder")
+        try:
+            names = set(os.listdir(p))
+        except OSError as exc:
+            raise OptionError(f"{option} {p}: cannot read the folder ({exc.strerror})") from None
+        if names and not names & set(RUN_MARKERS):
+            raise OptionError(
+                f"{option} {p}: the folder holds other files and no rvkep output; give a "
+                "new or empty folder, or one that rvkep wrote"
+            )
+        probe = p
+    else:
+        probe = p.absolute().parent
+        if not probe.is_dir():
+            raise OptionError(f"{option} {p}: the folder {probe} does not exist (rvkep "
+                              "creates only the last folder of the path)")  # fmt: skip
+    if not os.access(probe, os.W_OK | os.X_OK):
+        raise OptionError(f"{option} {p}: cannot write there ({probe} is not writable)")
+    return p
+
+
+def make_output_folder(path: str | Path, option: str = "--out") -> bool:
+    """Create the output folder checked by :func:`check_output_folder` (its last
+    component only); returns whether it was created (so a refused run can remove it)."""
+    p = Path(check_output_folder(path, option))
+    try:
+        p.mkdir()
+    except FileExistsError:
+        return False
+    except OSError as exc:
+        raise OptionError(f"{option} {p}: cannot create the folder ({exc.strerror})") from None
+    return True
+
+
+def remove_if_empty(path: str | Path) -> None:
+    """Remove a folder a refused run created, if nothing but its lock is left in it."""
+    p = Path(path)
+    with contextlib.suppress(OSError):
+        if set(os.listdir(p)) <= {LOCK_NAME}:
+            with contextlib.suppress(FileNotFoundError):
+                (p / LOCK_NAME).unlink()
+            p.rmdir()
+
+
+def check_output_file(path: str | Path, option: str = "--out") -> Path:
+    """Refuse an output file whose folder does not exist or that names a folder."""
+    p = Path(path)
+    if p.is_dir():
+        raise OptionError(f"{option} {p}: is a folder; give a file name")
+    parent = p.absolute().parent
+    if not parent.is_dir():
+        raise OptionError(f"{option} {p}: the folder {parent} does not exist")
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise OptionError(f"{option} {p}: cannot write there ({parent} is not writable)")
+    return p
 
 
 def current_umask() -> int:
@@ -118,8 +193,8 @@ def folder_lock(folder: str | Path):
     holder (process id, host, start time, command). The kernel releases it when the
     process ends, however it ends, so a killed run never leaves a stale lock. A second
     run into the same folder raises :class:`rvkep.errors.FolderBusyError` naming the
-    folder and the running process. Where ``fcntl`` does not exist (Windows) no lock
-    is taken.
+    folder and the running process. The file is removed when the run ends. Where
+    ``fcntl`` does not exist (Windows) no lock is taken.
     """
     try:
         import fcntl
@@ -132,16 +207,27 @@ def folder_lock(folder: str | Path):
 
     folder = Path(folder)
     path = folder / LOCK_NAME
-    fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o666 & ~current_umask())
-    try:
+    while True:
+        fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o666 & ~current_umask())
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except OSError:
             holder = os.pread(fd, 4096, 0).decode("utf-8", "replace").strip() or "unknown"
+            os.close(fd)
             raise FolderBusyError(
                 f"{folder}: another rvkep run is writing there ({holder}); wait for it to "
                 "finish or choose another --out"
             ) from None
+        # the run before may have removed the file between our open and our lock: then
+        # the lock is on a file nobody else sees, so take the one on disk instead
+        try:
+            same = os.stat(path).st_ino == os.fstat(fd).st_ino
+        except FileNotFoundError:
+            same = False
+        if same:
+            break
+        os.close(fd)
+    try:
         command = " ".join(["rvkep", *sys.argv[1:]])[:300]
         stamp = time.strftime("%Y-%m-%d %H:%M:%S")
         note = f"pid {os.getpid()} on {socket.gethostname()} since {stamp}: {command}\n"
@@ -150,8 +236,10 @@ def folder_lock(folder: str | Path):
         try:
             yield
         finally:
+            # removed while still held, so no run is left holding a lock on a removed
+            # file; no empty lock file stays behind in the folder
             with contextlib.suppress(OSError):
-                os.ftruncate(fd, 0)
+                os.unlink(path)
             fcntl.flock(fd, fcntl.LOCK_UN)
     finally:
         os.close(fd)

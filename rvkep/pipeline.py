@@ -27,7 +27,14 @@ from rvkep.data import DataWarning, RVData, check_size, load_rv
 from rvkep.defaults import TREND_DEGREES, parse_trend
 from rvkep.errors import OptionError, RvkepError
 from rvkep.kepler import prepare_kernels
-from rvkep.outputs import clean_temporaries, folder_lock
+from rvkep.names import name_problem
+from rvkep.outputs import (
+    check_output_folder,
+    clean_temporaries,
+    folder_lock,
+    make_output_folder,
+    remove_if_empty,
+)
 from rvkep.physics import StarProperties
 
 __all__ = ["AnalyzeOptions", "analyze", "BIC_THRESHOLD", "write_figures", "choose_companions"]
@@ -273,7 +280,6 @@ MIN_STEPS, MAX_STEPS = 100, 10_000_000
 def validate_options(opts: AnalyzeOptions) -> None:
     """Check every option value before any work (raises OptionError naming it)."""
     import math
-    import os
 
     def finite(name, value, positive=False, nonneg=False):
         if value is None:
@@ -331,12 +337,7 @@ def validate_options(opts: AnalyzeOptions) -> None:
         raise OptionError(
             f"--max-steps must lie between {MIN_STEPS} and {MAX_STEPS:,}, got {opts.max_steps}"
         )
-    out = Path(opts.out)
-    if out.exists() and not out.is_dir():
-        raise OptionError(f"--out {out}: exists and is not a folder")
-    probe = out if out.exists() else next((p for p in out.parents if p.exists()), Path("."))
-    if not os.access(probe, os.W_OK | os.X_OK):
-        raise OptionError(f"--out {out}: cannot write there ({probe} is not writable)")
+    check_output_folder(opts.out)
 
 
 def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **options):
@@ -362,7 +363,25 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
     prepare_kernels(quiet=opts.quiet)  # the first run after an install compiles them
     timings = {"read": time.perf_counter() - t_start}
     out = Path(opts.out)
-    out.mkdir(parents=True, exist_ok=True)
+    created = make_output_folder(out)
+    try:
+        results, paths = _run_in_folder(files, opts, spec, data, data_notes, star, out, timings)
+    except RvkepError:
+        if created:  # a refused run leaves no empty folder behind
+            remove_if_empty(out)
+        raise
+    _say(opts, str(results))
+    if opts.timings:
+        print("timings: " + ", ".join(f"{k.replace('_', ' ')} {v:.2f} s"
+                                      for k, v in results.timings.items()), flush=True)  # fmt: skip
+    _say(opts, f"done in {time.perf_counter() - t_start:.1f} s; results in {out}/ "
+               f"({paths['report'].name}, {paths['json'].name}, {paths['summary'].name}, "
+               f"{paths['latex'].name}, figures)")  # fmt: skip
+    return results
+
+
+def _run_in_folder(files, opts, spec, data, data_notes, star, out: Path, timings: dict):
+    """The stages that write into ``out``, under its lock; returns (results, paths)."""
     with folder_lock(out):  # one run per output folder
         clean_temporaries(out)  # left by a run that was killed
         _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
@@ -383,14 +402,7 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
         results.timings = timings
         results.provenance = provenance(files or (spec.files if spec else []), opts, seed)
         paths = write_outputs(results, out, opts)
-    _say(opts, str(results))
-    if opts.timings:
-        print("timings: " + ", ".join(f"{k.replace('_', ' ')} {v:.2f} s"
-                                      for k, v in results.timings.items()), flush=True)  # fmt: skip
-    _say(opts, f"done in {time.perf_counter() - t_start:.1f} s; results in {out}/ "
-               f"({paths['report'].name}, {paths['json'].name}, {paths['summary'].name}, "
-               f"{paths['latex'].name}, figures)")  # fmt: skip
-    return results
+    return results, paths
 
 
 def provenance(files, opts: AnalyzeOptions, seed: int) -> dict:
@@ -772,6 +784,10 @@ def write_figures(results, out: str | Path, fmt: str = "png", which: str = "all"
         return _save(fig, path, metadata={key: footer})
 
     kinds = FIGURE_SETS[which]
+    for L in results.labels:  # labels become file names: none may leave the folder
+        problem = name_problem(L, "companion name")
+        if problem:
+            raise OptionError(f"{out}: cannot name a figure after it: {problem}")
     written = []
     if "timeseries" in kinds:
         written.append(save_figure(timeseries_figure(results), out / f"timeseries.{fmt}"))

@@ -3,6 +3,7 @@ headless Chromium from the system's packages, driven by Selenium through the sys
 chromedriver. No console error, no request beyond the page's own folder, the numbers
 shown are results.json's, the index sorts and filters, the page is not blank."""
 
+import csv
 import io
 import json
 import shutil
@@ -166,3 +167,37 @@ def test_batch_index_sorts_filters_and_links(browser, tmp_path):
     link = d.find_element(By.CSS_SELECTOR, 'tr[data-name="star0"] a').get_attribute("href")
     assert link.endswith("star0/report.html") and (out / "star0" / "report.html").exists()
     _not_blank(d)
+
+
+def test_batch_index_links_of_hostile_names_run_no_script(browser, tmp_path):
+    # target names that are a script URL or spreadsheet formulas: the index links are
+    # relative paths into the batch folder and summary.csv cells are inert
+    from selenium.common.exceptions import NoAlertPresentException
+    from selenium.webdriver.common.by import By
+
+    make_targets(tmp_path / "in", 3)
+    hostile = ["javascript:alert(3)", "=1+1", "@SUM(1+1)"]
+    rows = ["name,data,star_mass,star_mass_err,max_planets"]
+    rows += [f'"{n}",star{k}.txt,1.0,0.05,1' for k, n in enumerate(hostile)]
+    targets = tmp_path / "in" / "hostile.csv"
+    targets.write_text("\n".join(rows) + "\n")
+    out = tmp_path / "out"
+    code = main(["batch", str(targets), "--out", str(out), "--quick", "--quiet", "--workers", "2"])
+    assert code == 0
+    with open(out / "summary.csv") as fh:
+        names = {r["name"] for r in csv.DictReader(fh) if r["row"] == "target"}
+    assert names == {"javascript:alert(3)", "'=1+1", "'@SUM(1+1)"}
+    page = out / "index.html"
+    assert 'href="javascript:' not in page.read_text()
+    root = out.resolve().as_uri()
+    d = _open(browser, page)
+    n_links = len(d.find_elements(By.CSS_SELECTOR, "#targets a"))
+    assert n_links >= 6  # a name link and a thumbnail link per target
+    for k in range(n_links):
+        d = _open(browser, page)
+        link = d.find_elements(By.CSS_SELECTOR, "#targets a")[k]
+        assert link.get_attribute("href").startswith(root + "/")
+        link.click()
+        with pytest.raises(NoAlertPresentException):
+            d.switch_to.alert.text  # noqa: B018  (no script ran)
+        assert d.current_url.startswith(root + "/")

@@ -3,7 +3,11 @@ a first line that says what kind of run made it."""
 
 from __future__ import annotations
 
+import csv
+import io
+
 from rvkep import __version__
+from rvkep.names import csv_cell
 from rvkep.report.rows import parameter_rows
 
 __all__ = ["render"]
@@ -12,12 +16,14 @@ SUFFIX = ".csv"
 
 
 def render(results) -> str:
-    out = [
-        f"# rvkep {__version__}: {results.run_label()}",
-        "object,parameter,median,minus,plus,unit",
-    ]
+    buf = io.StringIO()
+    buf.write(f"# rvkep {__version__}: {results.run_label()}\n")
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(["object", "parameter", "median", "minus", "plus", "unit"])
     for row in parameter_rows(results):
         e = row.estimate
-        out.append(f"{row.object},{row.key},{e['median']:.10g},{e['minus']:.6g},{e['plus']:.6g},"
-                   f"{row.unit_plain}")  # fmt: skip
-    return "\n".join(out) + "\n"
+        # names of the user's (instruments, companions) quoted as CSV needs and never
+        # read as a spreadsheet formula
+        w.writerow([csv_cell(row.object), csv_cell(row.key), f"{e['median']:.10g}",
+                    f"{e['minus']:.6g}", f"{e['plus']:.6g}", row.unit_plain])  # fmt: skip
+    return buf.getvalue()

@@ -2,13 +2,16 @@
 filterable by a few lines of inline script (no library), thumbnails of each star's
 time series linking to its report.html, failed targets with their one-line error.
 
-Links and thumbnails are relative (``<name>/report.html``, ``<name>/timeseries.png``),
+Links and thumbnails are relative (``./<name>/report.html``, ``./<name>/timeseries.png``,
+the name percent-encoded: no target name can become a scheme such as ``javascript:``),
 so the output folder can be moved or archived whole.
 """
 
 from __future__ import annotations
 
 from pathlib import Path
+
+from rvkep.names import relative_link
 
 __all__ = ["render_index"]
 
@@ -36,8 +39,10 @@ def render_index(out: str | Path, rows: list[dict], title: str | None = None) ->
             "converged": t.get("converged", ""),
             "periods": [float(c["period_d"]) for c in own],
             "msini": [float(c["msini_mjup"]) for c in own],
-            "report": f"{t['name']}/report.html" if (folder / "report.html").exists() else "",
-            "thumb": f"{t['name']}/timeseries.png" if (folder / "timeseries.png").exists() else "",
+            "report": relative_link(t["name"], "report.html")
+            if (folder / "report.html").exists() else "",
+            "thumb": relative_link(t["name"], "timeseries.png")
+            if (folder / "timeseries.png").exists() else "",
         })  # fmt: skip
     n_done = sum(r["status"] == "done" for r in shown)
     n_failed = sum(r["status"] == "failed" for r in shown)

@@ -5,18 +5,12 @@ from __future__ import annotations
 
 from rvkep import __version__
 from rvkep.formatting import latex_value
+from rvkep.names import latex_escape
 from rvkep.report.rows import TEQ_ASSUMPTIONS, parameter_rows
 
 __all__ = ["render", "latex_escape"]
 
 SUFFIX = ".tex"
-
-
-def latex_escape(text: str) -> str:
-    for a, b in (("\\", r"\textbackslash{}"), ("%", r"\%"), ("_", r"\_"), ("&", r"\&"),
-                 ("#", r"\#"), ("$", r"\$")):  # fmt: skip
-        text = text.replace(a, b)
-    return text
 
 
 def render(results) -> str:
@@ -35,7 +29,7 @@ def render(results) -> str:
     for row in parameter_rows(results):
         e = row.estimate
         value = latex_value(e["median"], e["minus"], e["plus"])
-        lines.append(f"{row.object} & {row.symbol} & {value} & {row.unit} \\\\")
+        lines.append(f"{latex_escape(row.object)} & {row.symbol} & {value} & {row.unit} \\\\")
     lines += [r"\hline", r"\end{tabular}"]
     if any(r.key == "teq_k" for r in parameter_rows(results)):
         lines.append(r"\par\smallskip{\footnotesize " + latex_escape(TEQ_ASSUMPTIONS) + ".}")

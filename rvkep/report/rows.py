@@ -9,6 +9,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from rvkep.names import latex_escape
+
 __all__ = ["ParameterRow", "parameter_rows", "PLANET_COLUMNS", "plain_unit", "TEQ_ASSUMPTIONS"]
 
 PLANET_COLUMNS = [
@@ -83,8 +85,9 @@ def parameter_rows(results) -> list[ParameterRow]:
             rows.append(ParameterRow(name, key, sym, est, "m s$^{-1}$", "m/s"))
     for ind, inst in getattr(results, "decorrelation_terms", []):
         est = results.estimate(f"decorr.{ind}.{inst}")
-        symbol = rf"$\partial v / \partial$ {ind}"
-        rows.append(ParameterRow(inst, f"decorr_{ind}", symbol, est, f"m s$^{{-1}}$ per {ind} unit",
+        tex = latex_escape(ind)  # a column name of the user's, as LaTeX text
+        symbol = rf"$\partial v / \partial$ {tex}"
+        rows.append(ParameterRow(inst, f"decorr_{ind}", symbol, est, f"m s$^{{-1}}$ per {tex} unit",
                                  f"m/s per {ind} unit"))  # fmt: skip
     for name in results.noise_names:
         unit, symbol = _NOISE_UNITS.get(name, ("", name.replace("_", " ")))
