@@ -112,7 +112,10 @@ def _run_periodogram(args: argparse.Namespace) -> int:
     from rvkep.plots import plot_periodograms
 
     check_size(data)
+    from rvkep.pipeline import check_bootstrap
     from rvkep.search import search
+
+    check_bootstrap(args.bootstrap)
 
     try:
         result = search(
@@ -159,7 +162,7 @@ def _add_periodogram(sub) -> None:
 def _add_bootstrap_arg(p: argparse.ArgumentParser) -> None:
     p.add_argument("--bootstrap", type=int, default=None, metavar="N",
                    help="redraws calibrating the Keplerian periodogram's false-alarm "
-                   "probability (default 50)")  # fmt: skip
+                   "probability (default 50, at least 10)")  # fmt: skip
 
 
 def _add_search_args(p: argparse.ArgumentParser) -> None:

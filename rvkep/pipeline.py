@@ -23,7 +23,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rvkep.data import DataWarning, RVData, check_size, load_rv
+from rvkep.data import MIN_POINTS, DataWarning, RVData, check_size, load_rv
 from rvkep.defaults import TREND_DEGREES, parse_trend
 from rvkep.errors import OptionError, RvkepError
 from rvkep.kepler import prepare_kernels
@@ -86,6 +86,10 @@ def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
     if not (isinstance(days, (int, float)) and math.isfinite(days) and days > 0):
         raise OptionError(f"--bin must be a positive number of days, got {days!r}")
     binned = data.binned(days)
+    if len(binned) < MIN_POINTS:
+        raise OptionError(f"--bin {days:g}: leaves {len(binned)} points of {len(data):,}, "
+                          f"fewer than the {MIN_POINTS} a fit needs; use narrower "
+                          "bins")  # fmt: skip
     note = (f"data averaged in {days:g}-day bins per instrument: {len(data):,} -> "
             f"{len(binned):,} points")  # fmt: skip
     return binned, note
@@ -277,6 +281,19 @@ def _comparison_rows(fits, chosen: int, search_result) -> list[dict]:
 MIN_STEPS, MAX_STEPS = 100, 10_000_000
 
 
+#: The fewest redraws that calibrate a Keplerian periodogram's false-alarm probability.
+MIN_BOOTSTRAP = 10
+
+
+def check_bootstrap(n) -> None:
+    """Refuse a bootstrap count that cannot calibrate a false-alarm probability."""
+    if n is None:
+        return
+    if isinstance(n, bool) or not isinstance(n, int) or not MIN_BOOTSTRAP <= n <= 100_000:
+        raise OptionError(f"--bootstrap must be a whole number from {MIN_BOOTSTRAP} to 100000, "
+                          f"got {n!r}")  # fmt: skip
+
+
 def validate_options(opts: AnalyzeOptions) -> None:
     """Check every option value before any work (raises OptionError naming it)."""
     import math
@@ -305,6 +322,16 @@ def validate_options(opts: AnalyzeOptions) -> None:
         finite(f"--star-{name}-err", err, nonneg=True)
         if err and getattr(opts, f"star_{name}") is None:
             raise OptionError(f"--star-{name}-err needs --star-{name}")
+    if opts.star_mass is not None and not 0.01 <= opts.star_mass <= 1000:
+        raise OptionError(f"--star-mass must lie between 0.01 and 1000 solar masses, got "
+                          f"{opts.star_mass:g}")  # fmt: skip
+    if opts.star_mass and opts.star_mass_err > opts.star_mass / 3:
+        # a normal draw of the mass with sd above a third of it falls below zero often
+        # enough that truncating it would bias every minimum mass
+        raise OptionError(f"--star-mass-err {opts.star_mass_err:g} is more than a third of "
+                          f"--star-mass {opts.star_mass:g}: the mass draws would be cut "
+                          "at 0")  # fmt: skip
+    check_bootstrap(opts.bootstrap)
     if not (isinstance(opts.fap, (int, float)) and 0 < opts.fap < 1):
         raise OptionError(f"--fap must lie between 0 and 1, got {opts.fap!r}")
     finite("--bin", opts.bin_days, positive=True)

@@ -206,3 +206,29 @@ def test_lock_taken_after_the_holder_removed_the_file_is_on_the_file_on_disk(tmp
     assert not (tmp_path / LOCK_NAME).exists()
     with folder_lock(tmp_path):  # free again
         assert os.stat(tmp_path / LOCK_NAME)
+
+
+# --- options that gave silent wrong answers ----------------------------------------------
+
+
+@pytest.mark.parametrize("extra, message", [
+    (["--search", "keplerian", "--bootstrap", "0"], "--bootstrap must be a whole number"),
+    (["--bootstrap", "-1"], "--bootstrap must be a whole number"),
+    (["--bin", "300"], "fewer than the 8 a fit needs"),
+    (["--star-mass", "1", "--star-mass-err", "2"], "more than a third of --star-mass"),
+    (["--star-mass", "1e308"], "--star-mass must lie between 0.01 and 1000"),
+])  # fmt: skip
+def test_options_that_gave_silent_wrong_answers_are_refused(tmp_path, capsys, extra, message):
+    out = tmp_path / "run"
+    files = [str(demo_folder() / "kestrel.txt"), str(demo_folder() / "osprey.csv")]
+    assert main(["analyze", *files, "--quick", "--quiet", "--out", str(out), *extra]) == 2
+    assert message in _one_line_error(capsys)
+    assert not out.exists()
+
+
+def test_periodogram_refuses_a_bootstrap_that_calibrates_nothing(tmp_path, capsys):
+    kestrel = str(demo_folder() / "kestrel.txt")
+    argv = ["periodogram", kestrel, "--kind", "keplerian", "--bootstrap", "0",
+            "--out", str(tmp_path)]
+    assert main(argv) == 2
+    assert "--bootstrap must be a whole number" in _one_line_error(capsys)
