@@ -46,7 +46,8 @@ def check_output_folder(path: str | Path, option: str = "--out") -> Path:
             names = set(os.listdir(p))
         except OSError as exc:
             raise OptionError(f"{option} {p}: cannot read the folder ({exc.strerror})") from None
-        if names and not names & set(RUN_MARKERS):
+        ours = names & set(RUN_MARKERS) or any(n.startswith(".") and ".tmp-" in n for n in names)
+        if names and not ours:
             raise OptionError(
                 f"{option} {p}: the folder holds other files and no rvkep output; give a "
                 "new or empty folder, or one that rvkep wrote"
