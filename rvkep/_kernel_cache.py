@@ -24,7 +24,7 @@ import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["cache_folder", "jit", "kernels_cached"]
+__all__ = ["cache_folder", "jit", "missing", "prepare"]
 
 
 def _candidates() -> list[Path]:
@@ -113,16 +113,6 @@ def jit(**options):
         return dispatcher
 
     return wrap
-
-
-def kernels_cached(dispatchers) -> bool:
-    """Whether every dispatcher given has an index file in the cache (a hint, not a
-    promise: an index written for other argument types still compiles)."""
-    for d in dispatchers:
-        path = getattr(getattr(d, "_cache", None), "_index_path", None)
-        if path is None or not os.path.exists(path):
-            return False
-    return True
 
 
 def missing(module) -> list[tuple[str, str]]:

@@ -8,6 +8,7 @@ half-written file under the final name.
 from __future__ import annotations
 
 import contextlib
+import fnmatch
 import os
 import tempfile
 from pathlib import Path
@@ -26,6 +27,9 @@ LOCK_NAME = ".rvkep.lock"
 
 #: Files that mark a folder as rvkep's own (a run, a batch or a limits folder): an
 #: existing folder given as ``--out`` must be empty or hold one of them.
+#: The names of the temporary files of :func:`atomic_write` (``.<name>.tmp-*``).
+TEMPORARY_PATTERN = ".*.tmp-*"
+
 RUN_MARKERS = (LOCK_NAME, "results.json", "model.json", "chain.h5", "summary.md",
                "summary.csv", "index.html", "limits.csv")  # fmt: skip
 
@@ -46,7 +50,7 @@ def check_output_folder(path: str | Path, option: str = "--out") -> Path:
             names = set(os.listdir(p))
         except OSError as exc:
             raise OptionError(f"{option} {p}: cannot read the folder ({exc.strerror})") from None
-        ours = names & set(RUN_MARKERS) or any(n.startswith(".") and ".tmp-" in n for n in names)
+        ours = names & set(RUN_MARKERS) or fnmatch.filter(names, TEMPORARY_PATTERN)
         if names and not ours:
             raise OptionError(
                 f"{option} {p}: the folder holds other files and no rvkep output; give a "
@@ -179,7 +183,7 @@ def save_figure(fig, path: str | Path, **kwargs) -> Path:
 def clean_temporaries(folder: str | Path) -> int:
     """Remove temporary files left by an interrupted run; returns how many."""
     n = 0
-    for p in Path(folder).glob(".*.tmp-*"):
+    for p in Path(folder).glob(TEMPORARY_PATTERN):
         with contextlib.suppress(OSError):
             p.unlink()
             n += 1
