@@ -6,13 +6,13 @@ The target list is a CSV file with the columns
 * ``data``: a path or glob pattern, relative to the list's folder (several separated
   by ``;``);
 * ``star_mass``, ``star_mass_err``: solar masses;
-* optional: ``max_planets``, ``planets``, ``model`` (a model file), ``kms`` (true/false),
-  ``trend`` (auto, 0, 1, 2; default auto), ``noise`` (white or gp; default the model
-  file's, else white), ``decorrelate`` (indicator columns separated by ``;``),
-  ``evidence`` (true/false: ln Z by nested sampling, as ``analyze --evidence``),
-  ``figures`` (all, summary or none; default all: corner plots and periodograms are
-  the slowest part of a quick target), ``search`` (sine, keplerian or auto; default
-  auto, as ``analyze --search``).
+* optional: one column per option of ``rvkep analyze`` that a target may set, named
+  as the option with dashes turned to underscores (``max_companions``, ``model``,
+  ``kms``, ``trend``, ``noise``, ``bin``, ``min_period``, ...; the list is
+  :func:`rvkep.options.columns`), written as on the command line (true/false for a
+  switch; ``decorrelate`` separated by ``;``); an empty cell keeps the default. A
+  ``model`` path is relative to the list's folder. The batch's own ``--seed``,
+  ``--quick`` and ``--quiet`` apply to every target.
 
 Each target runs :func:`rvkep.pipeline.analyze` into its own folder with its own log
 file (``log.txt``); a failure (bad file, failed fit) is recorded as one line in
@@ -37,34 +37,23 @@ import csv
 import glob
 import hashlib
 import json
-import math
 import os
 import re
 import signal
 import sys
 import time
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from rvkep.errors import DataError, OptionError, RvkepError
 from rvkep.names import csv_cell, name_problem, shown
+from rvkep.options import TARGET_REQUIRED, columns, from_cell, option
+from rvkep.options import check as check_options
 from rvkep.outputs import LOCK_NAME, clean_temporaries, write_text
 
 __all__ = ["Target", "read_targets", "run_target", "run_batch", "write_summary", "SUMMARY_FIELDS"]
 
-_REQUIRED = ("name", "data", "star_mass", "star_mass_err")
-_OPTIONAL = (
-    "max_planets",
-    "planets",
-    "model",
-    "kms",
-    "trend",
-    "noise",
-    "decorrelate",
-    "evidence",
-    "figures",
-    "search",
-)
+_REQUIRED = TARGET_REQUIRED
 SUMMARY_FIELDS = [
     "row", "name", "status", "n_planets", "seconds", "error", "run_kind", "converged",
     "quick", "star_mass_assumed", "label",
@@ -75,33 +64,19 @@ SUMMARY_FIELDS = [
 
 @dataclass(frozen=True)
 class Target:
-    """One line of the target list, paths resolved."""
+    """One line of the target list, paths resolved; ``options`` holds the analyze
+    options its cells set (checked, by name)."""
 
     name: str
     files: tuple[str, ...]
-    star_mass: float
-    star_mass_err: float
-    max_planets: int = 4
-    planets: int | None = None
-    model: str | None = None
-    kms: bool = False
-    trend: int | str = "auto"
-    noise: str | None = None
-    decorrelate: tuple[str, ...] = ()
-    evidence: bool = False
-    figures: str = "all"
-    search: str = "auto"
+    options: dict = field(default_factory=dict)
     line: int = 0
     problem: str = ""  # why this target cannot run (it fails alone; see read_targets)
 
-
-def _bool(value: str, column: str) -> bool:
-    v = value.strip().lower()
-    if v in ("", "0", "false", "no", "n"):
-        return False
-    if v in ("1", "true", "yes", "y"):
-        return True
-    raise DataError(f"{column}: expected true or false, got {value!r}")
+    def get(self, name: str):
+        """The value of analyze option ``name`` for this target (its cell, else the
+        option's default)."""
+        return self.options[name] if name in self.options else option("analyze", name).default
 
 
 def _name_problem(name: str) -> str | None:
@@ -120,13 +95,10 @@ def read_targets(path: str | Path) -> list[Target]:
     """
     import io
 
+    from rvkep.inputs import read_text
+
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise DataError(f"{path}: no such file") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise DataError(f"{path}: cannot read ({exc})") from None
+    text = read_text(path, DataError, "a target list")
     rows: list[tuple[int, list[str]]] = []  # (first line of the row, cells)
     reader = csv.reader(io.StringIO(text, newline=""))
     last = 0
@@ -144,9 +116,15 @@ def read_targets(path: str | Path) -> list[Target]:
     missing = [c for c in _REQUIRED if c not in header]
     if missing:
         raise DataError(f"{path}, line {rows[0][0]}: missing column(s) {', '.join(missing)}")
-    unknown = [c for c in header if c not in _REQUIRED + _OPTIONAL]
+    known = ["name", "data", *(o.name for o in columns())]
+    unknown = [c for c in header if c not in known]
     if unknown:
-        raise DataError(f"{path}, line {rows[0][0]}: unknown column(s) {', '.join(unknown)}")
+        import difflib
+
+        close = difflib.get_close_matches(unknown[0], known, n=1)
+        hint = f" (did you mean {close[0]}?)" if close else ""
+        raise DataError(f"{path}, line {rows[0][0]}: unknown column(s) "
+                        f"{', '.join(unknown)}{hint}")  # fmt: skip
     targets, names = [], set()
     for line, row in rows[1:]:
         where = f"{path}, line {line}"
@@ -167,7 +145,7 @@ def read_targets(path: str | Path) -> list[Target]:
         try:
             target = _target_from(rec, name, path.parent, line)
         except DataError as exc:
-            target = Target(name, (), 1.0, 0.0, line=line)
+            target = Target(name, (), line=line)
             problem = problem or str(exc)
         if problem is not None:
             target = replace(target, problem=f"{where}: {problem}")
@@ -179,12 +157,6 @@ def read_targets(path: str | Path) -> list[Target]:
 
 def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Target:
     """One target from its row's cells (raises DataError with the problem)."""
-    try:
-        mass, err = float(rec["star_mass"]), float(rec["star_mass_err"] or 0.0)
-    except ValueError:
-        raise DataError("star_mass and star_mass_err must be numbers") from None
-    if not (math.isfinite(mass) and mass > 0) or not (math.isfinite(err) and err >= 0):
-        raise DataError("star_mass must be positive and star_mass_err not negative")
     files: list[str] = []
     for pattern in rec["data"].split(";"):
         pattern = pattern.strip()
@@ -192,48 +164,19 @@ def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Targe
             full = str(base / pattern)
             matches = sorted(glob.glob(full))
             files.extend(matches or [full])
-    kw = {}
-    if rec.get("trend"):
-        from rvkep.defaults import parse_trend
-
-        try:
-            kw["trend"] = parse_trend(rec["trend"])
-        except ValueError as exc:
-            raise DataError(f"trend {exc}") from None
-    for key in ("max_planets", "planets"):
-        if rec.get(key):
-            try:
-                kw[key] = int(rec[key])
-            except ValueError:
-                raise DataError(f"{key} must be a whole number") from None
-            if kw[key] < 0:
-                raise DataError(f"{key} must be 0 or more")
-    if rec.get("noise"):
-        from rvkep.noise import NOISE_MODELS
-
-        if rec["noise"] not in NOISE_MODELS:
-            raise DataError(f"noise must be one of {', '.join(NOISE_MODELS)}, got {rec['noise']!r}")
-        kw["noise"] = rec["noise"]
-    if rec.get("decorrelate"):
-        columns = tuple(c.strip() for c in rec["decorrelate"].split(";"))
-        if not all(columns):
-            raise DataError("decorrelate: column names separated by ';'")
-        kw["decorrelate"] = columns
-    if rec.get("model"):
-        kw["model"] = str(base / rec["model"])
-    if "kms" in rec:
-        kw["kms"] = _bool(rec["kms"], "kms")
-    if "evidence" in rec:
-        kw["evidence"] = _bool(rec["evidence"], "evidence")
-    if rec.get("figures"):
-        if rec["figures"] not in ("all", "summary", "none"):
-            raise DataError(f"figures must be all, summary or none, got {rec['figures']!r}")
-        kw["figures"] = rec["figures"]
-    if rec.get("search"):
-        if rec["search"] not in ("sine", "keplerian", "auto"):
-            raise DataError(f"search must be sine, keplerian or auto, got {rec['search']!r}")
-        kw["search"] = rec["search"]
-    return Target(name, tuple(files), mass, err, line=line, **kw)
+    values = {}
+    try:
+        for opt in columns():
+            if opt.name in rec and (rec[opt.name].strip() or opt.name in _REQUIRED):
+                if not rec[opt.name].strip():
+                    raise OptionError(f"{opt.name}: empty (the column is required)")
+                values[opt.name] = from_cell(opt, rec[opt.name])
+        if values.get("model"):
+            values["model"] = str(base / values["model"])
+        check_options(values, "analyze")  # the rules between options, as analyze's
+    except OptionError as exc:
+        raise DataError(str(exc)) from None
+    return Target(name, tuple(files), values, line=line)
 
 
 def _target_seed(seed: int, name: str) -> int:
@@ -276,11 +219,8 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
             from rvkep.pipeline import AnalyzeOptions, analyze
 
             opts = AnalyzeOptions(
-                star_mass=target.star_mass, star_mass_err=target.star_mass_err, kms=target.kms,
-                planets=target.planets, max_planets=target.max_planets, model_file=target.model,
-                out=str(folder), seed=_target_seed(seed, target.name), quiet=False, quick=quick,
-                trend=target.trend, noise=target.noise, decorrelate=target.decorrelate,
-                evidence=target.evidence, figures=target.figures, search=target.search,
+                **target.options, out=str(folder), seed=_target_seed(seed, target.name),
+                quiet=False, quick=quick,
                 command=f"rvkep batch: target {target.name} (line {target.line} of the list)",
             )  # fmt: skip
             analyze(list(target.files), opts)

@@ -364,14 +364,9 @@ def _looks_numeric(token: str) -> bool:
 
 
 def _decode(path: Path) -> str:
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise DataError(f"{path}: no such file") from None
-    except IsADirectoryError:
-        raise DataError(f"{path}: is a folder, not a data file") from None
-    except OSError as exc:
-        raise DataError(f"{path}: cannot read ({exc.strerror})") from None
+    from rvkep.inputs import read_bytes
+
+    raw = read_bytes(path, DataError, "a data file")
     utf16 = _utf16_encoding(raw)
     if utf16 is not None:  # e.g. a table saved as "Unicode" by a Windows editor
         try:

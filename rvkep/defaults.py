@@ -23,6 +23,7 @@ from __future__ import annotations
 import numpy as np
 
 from rvkep.data import RVData
+from rvkep.options import DEFAULT_MIN_PERIOD, TREND_DEGREES, parse_trend
 from rvkep.priors import Fixed, LogUniform, Prior, Uniform
 
 __all__ = [
@@ -39,29 +40,6 @@ __all__ = [
     "TREND_DEGREES",
     "parse_trend",
 ]
-
-#: shortest period searched by default (days)
-DEFAULT_MIN_PERIOD = 1.2
-#: upper bound of the default eccentricity prior
-DEFAULT_MAX_ECC = 0.99
-#: the polynomial trend degrees rvkep fits; "auto" lets them compete by BIC
-TREND_DEGREES = (0, 1, 2)
-
-
-def parse_trend(value) -> int | str:
-    """``"auto"`` or a trend degree (from text, as on the command line and in target
-    lists, or a number); ValueError naming the value otherwise."""
-    if isinstance(value, (int, float)) and not isinstance(value, bool):
-        if value in TREND_DEGREES:
-            return int(value)
-    elif isinstance(value, str):
-        text = value.strip()
-        if text == "auto":
-            return "auto"
-        if text in {str(d) for d in TREND_DEGREES}:
-            return int(text)
-    raise ValueError(f"must be auto, 0, 1 or 2, got {value!r}")
-
 
 def baseline(data: RVData) -> float:
     """Time span of the data (days)."""
@@ -89,6 +67,10 @@ def period_prior(
 def tc_prior(tc: float, period: float) -> Uniform:
     """Uniform over one period centred on ``tc`` (data time system)."""
     return Uniform(tc - 0.5 * period, tc + 0.5 * period)
+
+
+#: upper bound of the default eccentricity prior
+DEFAULT_MAX_ECC = 0.99
 
 
 def ecc_prior(circular: bool = False) -> Prior:

@@ -223,6 +223,27 @@ def _parameter(value, where) -> tuple[Prior | None, float | None]:
     return None, _number(value, where)
 
 
+#: where each parameter has a physical meaning: (low, high, high included); a prior or
+#: a start value outside is refused (it would be cut silently by the model's bounds)
+_DOMAIN = {"ecc": (0.0, 1.0, False), "K": (0.0, math.inf, True),
+           "jitter": (0.0, math.inf, True)}  # fmt: skip
+
+
+def _check_domain(key: str, prior, start, where: str) -> None:
+    """Refuse a start value or a prior reaching outside ``key``'s physical range (all
+    but a negligible part, 1e-9 at each end, of the prior must lie inside)."""
+    lo, hi, closed = _DOMAIN[key]
+    shown = f"[{lo:g}, {hi:g}{']' if closed and math.isfinite(hi) else ')'}"
+    if start is not None and not (lo <= start and (start <= hi if closed else start < hi)):
+        raise ModelFileError(f"{where}: {start:g} is outside {key}'s range {shown}")
+    if prior is None or prior.is_fixed:
+        return
+    a, b = float(prior.ppf(1e-9)), float(prior.ppf(1.0 - 1e-9))
+    if a < lo or (b > hi if closed else b >= hi):
+        raise ModelFileError(f"{where}: the prior {prior.describe()} reaches outside {key}'s "
+                             f"range {shown}")  # fmt: skip
+
+
 def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
     """Validate a parsed TOML document and turn it into a :class:`ModelSpec`."""
     _check_keys(doc, _TOP, path)
@@ -279,6 +300,7 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
         _check_keys(table, _INSTRUMENT, where)
         if "jitter" in table:
             prior, start = _parameter(table["jitter"], f"{where}.jitter")
+            _check_domain("jitter", prior, start, f"{where}.jitter")
             if prior is None:
                 prior = Fixed(start) if start is not None else None
             if prior is not None:
@@ -296,6 +318,8 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
         for key in ("period", "tc", "K", "ecc"):
             if key in table:
                 prior, start = _parameter(table[key], f"{where}.{key}")
+                if key in _DOMAIN:
+                    _check_domain(key, prior, start, f"{where}.{key}")
                 setattr(c, key, prior)
                 if start is not None:
                     c.start[key] = start
@@ -377,17 +401,12 @@ def _read_noise(table, spec: ModelSpec, path: str) -> None:
 
 def read_model_file(path: str | Path) -> ModelSpec:
     """Read and validate a model file. Raises ModelFileError naming the key."""
+    from rvkep.inputs import read_text
+
     path = Path(path)
+    text = read_text(path, ModelFileError, "a model file")
     try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise ModelFileError(f"{path}: no such file") from None
-    except OSError as exc:
-        raise ModelFileError(f"{path}: cannot read ({exc.strerror})") from None
-    try:
-        doc = tomllib.loads(raw.decode("utf-8-sig"))
-    except UnicodeDecodeError:
-        raise ModelFileError(f"{path}: not a text file") from None
+        doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ModelFileError(f"{path}: not valid TOML ({exc})") from None
     return parse_model(doc, str(path))

@@ -6,7 +6,7 @@ peak has a Baluev false-alarm probability below the threshold (0.1% by default);
 proposed companion is kept only if adding it also lowers the BIC of the joint best fit
 by more than 10 ("very strong" evidence on the scale of Kass & Raftery 1995). The BIC
 of every candidate number, including one more than chosen, is reported. A model file
-with companions, or ``planets=N``, fixes the number instead.
+with companions, or ``companions=N``, fixes the number instead.
 
 References
 ----------
@@ -15,6 +15,7 @@ References
 
 from __future__ import annotations
 
+import inspect
 import math
 import time
 import warnings
@@ -23,11 +24,12 @@ from pathlib import Path
 
 import numpy as np
 
+from rvkep import options
 from rvkep.data import MIN_POINTS, DataWarning, RVData, check_size, load_rv
-from rvkep.defaults import TREND_DEGREES, parse_trend
 from rvkep.errors import OptionError, RvkepError
 from rvkep.kepler import prepare_kernels
 from rvkep.names import name_problem
+from rvkep.options import TREND_DEGREES, parse_trend
 from rvkep.outputs import (
     check_output_folder,
     clean_temporaries,
@@ -42,42 +44,22 @@ __all__ = ["AnalyzeOptions", "analyze", "BIC_THRESHOLD", "write_figures", "choos
 BIC_THRESHOLD = 10.0
 
 
-@dataclass
-class AnalyzeOptions:
-    """Options of :func:`analyze` (the command line's options, one for one)."""
+def _options_class():
+    """AnalyzeOptions, made from the option table (:mod:`rvkep.options`): one field per
+    option of ``rvkep analyze`` (the flag's name, dashes to underscores, and its
+    default), plus ``command``, the command line that asked for the run (reports)."""
+    from dataclasses import make_dataclass
 
-    star_mass: float | None = None
-    star_mass_err: float = 0.0
-    star_radius: float | None = None  # solar radii: transit probability
-    star_radius_err: float = 0.0
-    star_teff: float | None = None  # K: equilibrium temperature, insolation
-    star_teff_err: float = 0.0
-    kms: bool = False
-    planets: int | None = None
-    max_planets: int = 4
-    model_file: str | Path | None = None
-    out: str | Path = "rvkep_output"
-    seed: int | None = None  # None: the model file's [sampling] seed, else 0
-    quiet: bool = False
-    quick: bool = False
-    min_period: float | None = None
-    max_period: float | None = None
-    fap: float = 1e-3
-    trend: int | str = "auto"  # "auto": degrees 0, 1, 2 compete (choose_trend)
-    fig_format: str = "png"
-    max_steps: int | None = None
-    figures: bool | str = True  # "all" (True), "summary" (time series, phases), "none" (False)
-    bin_days: float | None = None  # average each instrument's points in bins this wide
-    noise: str | None = None  # noise model (rvkep.noise); None: the model file's, else white
-    decorrelate: tuple[str, ...] = ()  # indicator columns: a linear coefficient each
-    sampler: str = "emcee"  # the posterior's sampler (rvkep.samplers): emcee or nested
-    evidence: bool = False  # ln Z by nested sampling for N - 1, N and N + 1 companions
-    choose_by: str = "bic"  # how the number of companions is chosen: bic or evidence
-    circular: str = "no"  # "auto": refit circular the orbits consistent with circular
-    timings: bool = False  # print the stage timings (always in results.json)
-    search: str = "auto"  # periodogram of the search: sine, keplerian or auto (rvkep.search)
-    command: str | None = None  # the command line that asked for the run (reports)
-    bootstrap: int | None = None  # redraws of the Keplerian periodogram's false alarms
+    fields = [(o.name, object, field(default=o.default)) for o in options.python_options("analyze")]
+    fields.append(("command", object, field(default=None)))
+    cls = make_dataclass("AnalyzeOptions", fields, namespace={"__module__": __name__})
+    cls.__doc__ = ("Options of :func:`analyze`, one field per option of ``rvkep analyze``.\n\n"
+                   "Attributes\n----------\n" + options.numpydoc("analyze", indent="")
+                   + "\ncommand : str | None\n    the command line that asked for the run.")
+    return cls
+
+
+AnalyzeOptions = _options_class()
 
 
 def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
@@ -100,7 +82,7 @@ def _say(opts: AnalyzeOptions, text: str) -> None:
         print(text, flush=True)
 
 
-def choose_companions(search_result, data, base, period_range, max_planets: int):
+def choose_companions(search_result, data, base, period_range, max_companions: int):
     """Fits with 0 .. N+1 companions and the chosen N (FAP and BIC, see module text).
 
     Returns (fits, n_chosen, comparison rows).
@@ -110,7 +92,7 @@ def choose_companions(search_result, data, base, period_range, max_planets: int)
     fits = list(search_result.fits)
     n_fap = len(search_result.significant)
     # one more than the search accepted, from the best remaining peaks, for the table
-    if n_fap < max_planets:
+    if n_fap < max_companions:
         from rvkep.search import candidate_periods
 
         pg = search_result.periodograms[n_fap]
@@ -141,7 +123,7 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
     try:
         search_result = search(
             data, opts.min_period, opts.max_period, opts.fap,
-            max_signals=opts.planets if opts.planets is not None else opts.max_planets,
+            max_signals=opts.companions if opts.companions is not None else opts.max_companions,
             trend=base.trend, base=base, kind=opts.search, rng=_seed(opts, spec),
             n_bootstrap=opts.bootstrap,
         )  # fmt: skip
@@ -156,21 +138,21 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
         comparison[1]["n_companions"] = len(spec.companions)
         return (search_result, fit, comparison,
                 f"model file: {len(spec.companions)} companion(s)", fits)  # fmt: skip
-    if opts.planets is not None:
+    if opts.companions is not None:
         fits = list(search_result.fits)
         from rvkep.search import candidate_periods, residual_periodogram
 
-        while len(fits) <= opts.planets:  # the search stopped early: add the best peaks
+        while len(fits) <= opts.companions:  # the search stopped early: add the best peaks
             pg = residual_periodogram(fits[-1], search_result.frequency, "residuals")
             fits.append(fit_companions(data, [candidate_periods(pg, data.time, period_range)],
                                        base=base, period_range=period_range,
                                        previous=fits[-1]))  # fmt: skip
-        fits = fits[: opts.planets + 1]
-        comparison = _comparison_rows(fits, opts.planets, search_result)
-        return (search_result, fits[opts.planets], comparison,
-                f"{opts.planets} companion(s) fitted as asked (--planets)", fits)  # fmt: skip
+        fits = fits[: opts.companions + 1]
+        comparison = _comparison_rows(fits, opts.companions, search_result)
+        return (search_result, fits[opts.companions], comparison,
+                f"{opts.companions} companion(s) fitted as asked (--companions)", fits)  # fmt: skip
     fits, n, comparison = choose_companions(
-        search_result, data, base, period_range, opts.max_planets
+        search_result, data, base, period_range, opts.max_companions
     )
     message = (f"search: {len(search_result.significant)} significant signal(s); "
                f"{n} companion(s) kept after the BIC comparison")  # fmt: skip
@@ -277,114 +259,64 @@ def _comparison_rows(fits, chosen: int, search_result) -> list[dict]:
     return rows
 
 
-#: bounds on the sampler's step cap: a chain shorter than two checks cannot be judged
-MIN_STEPS, MAX_STEPS = 100, 10_000_000
-
-
-#: The fewest redraws that calibrate a Keplerian periodogram's false-alarm probability.
-MIN_BOOTSTRAP = 10
-
-
-def check_bootstrap(n) -> None:
-    """Refuse a bootstrap count that cannot calibrate a false-alarm probability."""
-    if n is None:
-        return
-    if isinstance(n, bool) or not isinstance(n, int) or not MIN_BOOTSTRAP <= n <= 100_000:
-        raise OptionError(f"--bootstrap must be a whole number from {MIN_BOOTSTRAP} to 100000, "
-                          f"got {n!r}")  # fmt: skip
-
-
-def validate_options(opts: AnalyzeOptions) -> None:
-    """Check every option value before any work (raises OptionError naming it)."""
-    import math
-
-    def finite(name, value, positive=False, nonneg=False):
-        if value is None:
-            return
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise OptionError(f"{name} must be a number, got {value!r}")
-        if not math.isfinite(value):
-            raise OptionError(f"{name} must be finite, got {value!r}")
-        if positive and not value > 0:
-            raise OptionError(f"{name} must be positive, got {value:g}")
-        if nonneg and value < 0:
-            raise OptionError(f"{name} must not be negative, got {value:g}")
-
-    if opts.planets is not None and opts.planets < 0:
-        raise OptionError("--planets must be 0 or more")
-    if opts.max_planets < 0:
-        raise OptionError("--max-planets must be 0 or more")
-    if opts.fig_format not in ("png", "pdf"):
-        raise OptionError(f"figure format must be png or pdf, got {opts.fig_format!r}")
-    for name in ("mass", "radius", "teff"):
-        finite(f"--star-{name}", getattr(opts, f"star_{name}"), positive=True)
-        err = getattr(opts, f"star_{name}_err")
-        finite(f"--star-{name}-err", err, nonneg=True)
-        if err and getattr(opts, f"star_{name}") is None:
-            raise OptionError(f"--star-{name}-err needs --star-{name}")
-    if opts.star_mass is not None and not 0.01 <= opts.star_mass <= 1000:
-        raise OptionError(f"--star-mass must lie between 0.01 and 1000 solar masses, got "
-                          f"{opts.star_mass:g}")  # fmt: skip
-    if opts.star_mass and opts.star_mass_err > opts.star_mass / 3:
-        # a normal draw of the mass with sd above a third of it falls below zero often
-        # enough that truncating it would bias every minimum mass
-        raise OptionError(f"--star-mass-err {opts.star_mass_err:g} is more than a third of "
-                          f"--star-mass {opts.star_mass:g}: the mass draws would be cut "
-                          "at 0")  # fmt: skip
-    check_bootstrap(opts.bootstrap)
-    if not (isinstance(opts.fap, (int, float)) and 0 < opts.fap < 1):
-        raise OptionError(f"--fap must lie between 0 and 1, got {opts.fap!r}")
-    finite("--bin", opts.bin_days, positive=True)
-    from rvkep.samplers import SAMPLERS
-
-    if opts.sampler not in SAMPLERS:
-        raise OptionError(f"--sampler must be one of {', '.join(SAMPLERS)}, got {opts.sampler!r}")
-    figure_set(opts.figures)
-    if opts.circular not in ("no", "auto"):
-        raise OptionError(f"--circular must be no or auto, got {opts.circular!r}")
-    if opts.choose_by not in ("bic", "evidence"):
-        raise OptionError(f"--choose-by must be bic or evidence, got {opts.choose_by!r}")
-    if opts.noise is not None:
-        from rvkep.noise import NOISE_MODELS
-
-        if opts.noise not in NOISE_MODELS:
-            raise OptionError(
-                f"--noise must be one of {', '.join(NOISE_MODELS)}, got {opts.noise!r}"
-            )
-    finite("--min-period", opts.min_period, positive=True)
-    finite("--max-period", opts.max_period, positive=True)
-    for name in ("min_period", "max_period"):
-        value = getattr(opts, name)
-        if value is not None and not 1e-3 <= value <= 1e7:
-            flag = "--" + name.replace("_", "-")
-            raise OptionError(f"{flag} must lie between 0.001 and 1e7 days, got {value:g}")
-    if opts.seed is not None and not 0 <= opts.seed < 2**32:
-        raise OptionError(f"--seed must be a whole number from 0 to 2**32 - 1, got {opts.seed}")
-    if opts.max_steps is not None and not MIN_STEPS <= opts.max_steps <= MAX_STEPS:
-        raise OptionError(
-            f"--max-steps must lie between {MIN_STEPS} and {MAX_STEPS:,}, got {opts.max_steps}"
-        )
+def validate_options(opts: AnalyzeOptions) -> dict:
+    """Check every option value before any work (raises OptionError naming it); returns
+    the checked values by name (:func:`rvkep.options.check`)."""
+    values = {name: getattr(opts, name) for name in _OPTION_NAMES}
+    checked = options.check(values, "analyze")
     check_output_folder(opts.out)
+    return checked
 
 
-def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **options):
-    """Run the whole job; returns :class:`rvkep.results.Results` (also written to
-    ``opts.out``). Raises RvkepError subclasses for bad input before writing anything.
+_OPTION_NAMES = tuple(o.name for o in options.python_options("analyze"))
 
-    The options come as an :class:`AnalyzeOptions` or as its fields by keyword:
-    ``analyze(files, star_mass=0.92, star_mass_err=0.04, out="veyla")``. The job is
-    the sequence of public stages :func:`read_data`, :func:`star_properties`,
-    :func:`choose_model`, :func:`sample_posterior` and :func:`write_outputs`."""
-    if options:
+
+def analyze(files=None, opts: AnalyzeOptions | None = None, **keywords):
+    """Run the whole job on one star; returns :class:`rvkep.results.Results` (also
+    written to ``out``). Raises RvkepError subclasses for bad input before anything is
+    written.
+
+    The options come by keyword, spelled as the command line's flags with dashes
+    turned to underscores: ``analyze(files, star_mass=0.92, star_mass_err=0.04,
+    out="veyla")`` runs ``rvkep analyze FILES --star-mass 0.92 --star-mass-err 0.04
+    --out veyla``; or all together as an :class:`AnalyzeOptions`. The job is the
+    sequence of public stages :func:`read_data`, :func:`star_properties`,
+    :func:`choose_model`, :func:`sample_posterior` and :func:`write_outputs`.
+
+    Parameters
+    ----------
+    files : str | Path | list of them, optional
+        RV tables (one per instrument, or with an instrument column); default the model
+        file's.
+    opts : AnalyzeOptions, optional
+        every option at once (not together with keywords).
+{OPTIONS}
+
+    Returns
+    -------
+    Results
+        the run's summaries, derived quantities and outputs' paths.
+    """
+    if keywords:
         if opts is not None:
             raise TypeError("give the options as AnalyzeOptions or as keywords, not both")
-        opts = AnalyzeOptions(**options)
+        unknown = [k for k in keywords if k not in _OPTION_NAMES]
+        if unknown:
+            import difflib
+
+            close = difflib.get_close_matches(unknown[0], _OPTION_NAMES, n=1)
+            hint = f" (did you mean {close[0]}?)" if close else ""
+            raise TypeError(f"analyze() got an unexpected keyword argument {unknown[0]!r}{hint}")
+        opts = AnalyzeOptions(**keywords)
+    if isinstance(files, (str, Path)):
+        files = [files]
     from rvkep.modelfile import read_model_file
 
     opts = opts or AnalyzeOptions()
     t_start = time.perf_counter()
     validate_options(opts)
-    spec = read_model_file(opts.model_file) if opts.model_file else None
+    spec = read_model_file(opts.model) if opts.model else None
+    check_against_model_file(opts, spec)
     data, data_notes = read_data(files, opts, spec)
     star = star_properties(opts, spec)
     prepare_kernels(quiet=opts.quiet)  # the first run after an install compiles them
@@ -405,6 +337,26 @@ def analyze(files: list[str] | None, opts: AnalyzeOptions | None = None, **optio
                f"({paths['report'].name}, {paths['json'].name}, {paths['summary'].name}, "
                f"{paths['latex'].name}, figures)")  # fmt: skip
     return results
+
+
+analyze.__doc__ = analyze.__doc__.replace("{OPTIONS}", options.numpydoc("analyze"))
+analyze.__signature__ = options.signature("analyze", [
+    inspect.Parameter("files", inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None),
+    inspect.Parameter("opts", inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None),
+])  # fmt: skip
+
+
+def check_against_model_file(opts: AnalyzeOptions, spec) -> None:
+    """Refuse options that a model file's companions would silently override."""
+    if spec is None or not spec.companions:
+        return
+    n = len(spec.companions)
+    if opts.companions is not None and opts.companions != n:
+        raise OptionError(f"--companions {opts.companions}: the model file {opts.model} "
+                          f"describes {n} companion(s); give one or the other")  # fmt: skip
+    if opts.max_companions != options.option("analyze", "max_companions").default:
+        raise OptionError(f"--max-companions: the model file {opts.model} fixes the "
+                          f"companions ({n}); no search decides their number")  # fmt: skip
 
 
 def _run_in_folder(files, opts, spec, data, data_notes, star, out: Path, timings: dict):
@@ -447,10 +399,14 @@ def provenance(files, opts: AnalyzeOptions, seed: int) -> dict:
             return {"file": str(path), "sha256": None}
 
     inputs = [digest(f) for f in files]
-    if opts.model_file:
-        inputs.append(digest(opts.model_file))
-    return {"command": opts.command or "Python: rvkep.pipeline.analyze", "seed": seed,
-            "inputs": inputs}  # fmt: skip
+    if opts.model:
+        inputs.append(digest(opts.model))
+    values = {name: getattr(opts, name) for name in _OPTION_NAMES}
+    flags = options.as_flags(values)
+    command = opts.command or ("Python: rvkep.analyze" + (f" (as flags: {flags})" if flags else ""))
+    shown = {k: (str(v) if isinstance(v, Path) else list(v) if isinstance(v, tuple) else v)
+             for k, v in values.items()}  # fmt: skip
+    return {"command": command, "seed": seed, "options": shown, "inputs": inputs}
 
 
 def read_data(files, opts: AnalyzeOptions, spec=None) -> tuple[RVData, list[str]]:
@@ -465,8 +421,8 @@ def read_data(files, opts: AnalyzeOptions, spec=None) -> tuple[RVData, list[str]
     notes = [f"data: {w.message}" for w in caught if issubclass(w.category, DataWarning)]
     for note in notes:  # printed now, and kept in results.json and the summary
         _say(opts, f"warning: {note.removeprefix('data: ')}")
-    if opts.bin_days is not None:
-        data, note = bin_data(data, opts.bin_days)
+    if opts.bin is not None:
+        data, note = bin_data(data, opts.bin)
         notes.append(note)
         _say(opts, note)
     check_size(data)
@@ -766,7 +722,7 @@ def write_outputs(results, out: Path, opts: AnalyzeOptions) -> dict[str, Path]:
     which = figure_set(opts.figures)
     if which != "none":
         t0 = time.perf_counter()
-        write_figures(results, out, opts.fig_format, which)
+        write_figures(results, out, opts.format, which)
         results.timings["figures"] = time.perf_counter() - t0
     return results.write(out)
 

@@ -29,6 +29,7 @@ import numpy as np
 from rvkep.data import RVData
 from rvkep.model import SystemModel
 from rvkep.optimize import FitResult, fit, fit_companions
+from rvkep.options import SEARCH_KINDS
 from rvkep.periodogram import (
     FAP_LEVELS,
     AliasCandidate,
@@ -222,7 +223,6 @@ def residual_periodogram(fit_result: FitResult, frequency: np.ndarray, label: st
 AUTO_ECC = 0.5
 #: The searches: the sine periodogram, the Keplerian one, or the sine one checked by
 #: the Keplerian one (see :func:`search`).
-SEARCH_KINDS = ("sine", "keplerian", "auto")
 
 
 def keplerian_residual_periodogram(fit_result: FitResult, frequency: np.ndarray, label: str,

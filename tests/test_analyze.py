@@ -124,7 +124,7 @@ def test_bad_input_refused_before_writing(tmp_path, capsys):
 def test_forced_number_of_planets(tmp_path):
     out = tmp_path / "one"
     files = [str(DEMO / "kestrel.txt"), str(DEMO / "osprey.csv")]
-    assert main(["analyze", *files, "--planets", "1", "--quick", "--quiet", "--out", str(out),
+    assert main(["analyze", *files, "--companions", "1", "--quick", "--quiet", "--out", str(out),
                  "--max-steps", "500", "--star-mass", "0.92", "--star-radius", "0.9",
                  "--star-teff", "5500"]) == 0  # fmt: skip
     res = json.loads((out / "results.json").read_text())

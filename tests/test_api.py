@@ -98,7 +98,7 @@ def test_every_run_records_its_stage_timings(tmp_path, capsys):
     data = one_planet()
     f = write_table(data, tmp_path / "a.txt")
     rvkep.analyze([str(f)], out=str(tmp_path / "o"), quick=True, quiet=True, trend=0,
-                  max_planets=1, timings=True)  # fmt: skip
+                  max_companions=1, timings=True)  # fmt: skip
     line = capsys.readouterr().out.strip().splitlines()[-1]
     assert line.startswith("timings: read ") and "sampling" in line and "figures" in line
     t = json.loads((tmp_path / "o" / "results.json").read_text())["timings"]
@@ -117,7 +117,7 @@ def test_figures_all_summary_or_none(tmp_path):
     f = write_table(data, tmp_path / "a.txt")
     for which, expected in (("summary", {"timeseries.png", "phase_b.png"}), ("none", set())):
         out = tmp_path / which
-        rvkep.analyze([str(f)], out=str(out), quick=True, quiet=True, trend=0, max_planets=1,
+        rvkep.analyze([str(f)], out=str(out), quick=True, quiet=True, trend=0, max_companions=1,
                       figures=which)  # fmt: skip
         assert {p.name for p in out.glob("*.png")} == expected
         timings = json.loads((out / "results.json").read_text())["timings"]
@@ -129,4 +129,5 @@ def test_figures_all_summary_or_none(tmp_path):
     p.write_text("name,data,star_mass,star_mass_err,figures\nx,a.txt,1,0.1,summary\n"
                  "y,a.txt,1,0.1,pretty\n")  # fmt: skip
     x, y = read_targets(p)
-    assert x.figures == "summary" and "figures must be all, summary or none" in y.problem
+    assert x.options["figures"] == "summary"
+    assert "figures must be one of all, summary, none, got 'pretty'" in y.problem

@@ -87,7 +87,7 @@ def test_analyze_with_decorrelation_end_to_end(tmp_path):
         files.append(str(path))
     out = tmp_path / "out"
     code = main(["analyze", *files, "--decorrelate", "fwhm", "--quick", "--quiet", "--trend", "0",
-                 "--out", str(out), "--max-planets", "1"])  # fmt: skip
+                 "--out", str(out), "--max-companions", "1"])  # fmt: skip
     assert code == 0
     d = json.loads((out / "results.json").read_text())
     assert d["n_planets"] == 0
@@ -110,10 +110,10 @@ def test_white_noise_run_names_the_remedies_when_an_indicator_flags_a_signal():
     spot = np.sin(2 * np.pi * t / 13.0)  # rotation: in the velocities and in the FWHM
     data = RVData(t, 12 * spot + rng.normal(0, 1.5, n), np.full(n, 1.5), np.full(n, "north"),
                   extra={"fwhm": 7000 + 30 * spot + rng.normal(0, 3, n)})  # fmt: skip
-    chosen = choose_model(data, AnalyzeOptions(quiet=True, trend=0, max_planets=1))
+    chosen = choose_model(data, AnalyzeOptions(quiet=True, trend=0, max_companions=1))
     assert chosen.search.significant and chosen.search.significant[0].activity == ["fwhm"]
     assert any("also peaks in fwhm" in note and "--noise gp" in note and "--decorrelate fwhm"
                in note for note in chosen.notes), chosen.notes  # fmt: skip
-    quiet = choose_model(data, AnalyzeOptions(quiet=True, trend=0, max_planets=1,
+    quiet = choose_model(data, AnalyzeOptions(quiet=True, trend=0, max_companions=1,
                                               decorrelate=("fwhm",)))  # fmt: skip
     assert not any("also peaks" in note for note in quiet.notes)

@@ -71,7 +71,7 @@ def test_circular_auto_refits_a_circular_orbit(tmp_path):
     d = star(0.0, seed=5)
     f = write_table(d, tmp_path / "a.txt")
     out = tmp_path / "out"
-    assert main(["analyze", str(f), "--quick", "--quiet", "--trend", "0", "--max-planets", "1",
+    assert main(["analyze", str(f), "--quick", "--quiet", "--trend", "0", "--max-companions", "1",
                  "--circular", "auto", "--out", str(out)]) == 0  # fmt: skip
     r = json.loads((out / "results.json").read_text())
     t = r["planets"][0]["ecc_test"]
@@ -85,14 +85,14 @@ def test_circular_auto_refits_a_circular_orbit(tmp_path):
 def test_evidence_prefers_a_real_planet_and_not_noise():
     planet = one_planet()
     ch = choose_model(planet, AnalyzeOptions(quiet=True, trend=0, evidence=True, quick=True,
-                                             max_planets=1))  # fmt: skip
+                                             max_companions=1))  # fmt: skip
     z = {e["n_companions"]: e for e in ch.evidence}
     assert z[1]["reliable"] and z[0]["reliable"]
     assert z[1]["ln_z"] - z[0]["ln_z"] > 20
     rng = np.random.default_rng(9)
     noise = RVData(planet.time, rng.normal(0, 2, planet.time.size), planet.err, planet.instrument)
     ch = choose_model(noise, AnalyzeOptions(quiet=True, trend=0, evidence=True, quick=True,
-                                            planets=1))  # fmt: skip
+                                            companions=1))  # fmt: skip
     z = {e["n_companions"]: e for e in ch.evidence}
     assert z[1]["ln_z"] - z[0]["ln_z"] < EVIDENCE_THRESHOLD
 

@@ -212,11 +212,11 @@ def test_lock_taken_after_the_holder_removed_the_file_is_on_the_file_on_disk(tmp
 
 
 @pytest.mark.parametrize("extra, message", [
-    (["--search", "keplerian", "--bootstrap", "0"], "--bootstrap must be a whole number"),
-    (["--bootstrap", "-1"], "--bootstrap must be a whole number"),
+    (["--search", "keplerian", "--bootstrap", "0"], "--bootstrap must be from 10 to 100000"),
+    (["--bootstrap", "-1"], "--bootstrap must be from 10 to 100000"),
     (["--bin", "300"], "fewer than the 8 a fit needs"),
     (["--star-mass", "1", "--star-mass-err", "2"], "more than a third of --star-mass"),
-    (["--star-mass", "1e308"], "--star-mass must lie between 0.01 and 1000"),
+    (["--star-mass", "1e308"], "--star-mass must be from 0.01 to 1000 solar masses, got 1e+308"),
 ])  # fmt: skip
 def test_options_that_gave_silent_wrong_answers_are_refused(tmp_path, capsys, extra, message):
     out = tmp_path / "run"
@@ -228,7 +228,85 @@ def test_options_that_gave_silent_wrong_answers_are_refused(tmp_path, capsys, ex
 
 def test_periodogram_refuses_a_bootstrap_that_calibrates_nothing(tmp_path, capsys):
     kestrel = str(demo_folder() / "kestrel.txt")
-    argv = ["periodogram", kestrel, "--kind", "keplerian", "--bootstrap", "0",
+    argv = ["periodogram", kestrel, "--search", "keplerian", "--bootstrap", "0",
             "--out", str(tmp_path)]
     assert main(argv) == 2
-    assert "--bootstrap must be a whole number" in _one_line_error(capsys)
+    assert "--bootstrap must be from 10 to 100000" in _one_line_error(capsys)
+
+
+# --- model-file values outside the physical range ----------------------------------------
+
+
+@pytest.mark.parametrize("line, message", [
+    ('ecc = { prior = "uniform", min = 0, max = 1.5 }',
+     "companions.b.ecc: the prior uniform(0, 1.5) reaches outside ecc's range [0, 1)"),
+    ('ecc = { prior = "uniform", min = -0.5, max = 0.9 }',
+     "companions.b.ecc: the prior uniform(-0.5, 0.9) reaches outside ecc's range [0, 1)"),
+    ('ecc = { prior = "normal", mean = 0.1, sd = 0.2 }', "reaches outside ecc's range"),
+    ('K = { prior = "uniform", min = -50, max = 50 }',
+     "companions.b.K: the prior uniform(-50, 50) reaches outside K's range [0, inf)"),
+    ("K = -5", "companions.b.K: -5 is outside K's range [0, inf)"),
+])  # fmt: skip
+def test_priors_outside_the_physical_range_are_refused(tmp_path, capsys, line, message):
+    # e lies in [0, 1) for a bound orbit, K >= 0 and jitter >= 0 by their definitions
+    # (common practice, no source); the model's bounds would otherwise cut the prior
+    # silently while the priors table printed the original
+    kestrel = demo_folder() / "kestrel.txt"
+    model = tmp_path / "M.toml"
+    model.write_text(f'[data]\nfiles = ["{kestrel}"]\n[companions.b]\nperiod = 11.87\n{line}\n')
+    out = tmp_path / "out"
+    assert main(["analyze", "--model", str(model), "--out", str(out), "--quick"]) == 2
+    assert message in _one_line_error(capsys)
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("jitter, message", [
+    ("-3", "instruments.kestrel.jitter: -3 is outside jitter's range [0, inf)"),
+    ('{ prior = "uniform", min = -10, max = 10 }', "reaches outside jitter's range"),
+])  # fmt: skip
+def test_negative_jitters_are_refused(tmp_path, capsys, jitter, message):
+    kestrel = demo_folder() / "kestrel.txt"
+    model = tmp_path / "M.toml"
+    model.write_text(f'[data]\nfiles = ["{kestrel}"]\n[instruments.kestrel]\njitter = {jitter}\n')
+    assert main(["analyze", "--model", str(model), "--out", str(tmp_path / "o")]) == 2
+    assert message in _one_line_error(capsys)
+
+
+def test_physical_priors_stay_accepted():
+    from rvkep.modelfile import parse_model
+
+    spec = parse_model({"companions": {"b": {
+        "period": 10.0, "K": {"prior": "uniform", "min": 0, "max": 50},
+        "ecc": {"prior": "beta", "a": 0.867, "b": 3.03}}},
+        "instruments": {"kestrel": {"jitter": 0.0}}})  # fmt: skip
+    assert spec.companions[0].ecc.describe().startswith("beta")
+
+
+# --- inputs that are not regular files ---------------------------------------------------
+
+
+@pytest.mark.parametrize("command", [
+    ["check", "{fifo}"],
+    ["analyze", "{fifo}", "--out", "{tmp}/o"],
+    ["analyze", "{kestrel}", "--model", "{fifo}", "--out", "{tmp}/o"],
+    ["batch", "{fifo}", "--out", "{tmp}/o"],
+])  # fmt: skip
+def test_a_fifo_is_refused_not_waited_on(tmp_path, capsys, command):
+    fifo = tmp_path / "pipe"
+    os.mkfifo(fifo)
+    argv = [a.format(fifo=fifo, tmp=tmp_path, kestrel=demo_folder() / "kestrel.txt")
+            for a in command]  # fmt: skip
+    assert main(argv) == 2  # without the check, opening the FIFO blocks for ever
+    assert "pipe: not a regular file" in _one_line_error(capsys)
+    assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("end, message", [
+    ("inf", "--to: 'inf' is not a time"),
+    ("1e308", "--to: '1e308' is not a time (a finite number of days, at most 1e+08"),
+    ("nan", "--to: 'nan' is not a time"),
+])  # fmt: skip
+def test_prediction_times_are_finite_and_short(tmp_path, capsys, end, message):
+    assert main(["predict", str(tmp_path / "norun"), "--from", "0", "--to", end]) == 2
+    err = _one_line_error(capsys)
+    assert message in err and len(err) < 200

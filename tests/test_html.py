@@ -177,7 +177,7 @@ def test_batch_index_links_of_hostile_names_run_no_script(browser, tmp_path):
 
     make_targets(tmp_path / "in", 3)
     hostile = ["javascript:alert(3)", "=1+1", "@SUM(1+1)"]
-    rows = ["name,data,star_mass,star_mass_err,max_planets"]
+    rows = ["name,data,star_mass,star_mass_err,max_companions"]
     rows += [f'"{n}",star{k}.txt,1.0,0.05,1' for k, n in enumerate(hostile)]
     targets = tmp_path / "in" / "hostile.csv"
     targets.write_text("\n".join(rows) + "\n")

@@ -73,7 +73,7 @@ def test_kms_warning_reaches_results_and_summary_even_quiet(tmp_path):
     path = write(tmp_path / "kms.txt", t, -12.345 + v / 1000.0, e=0.0015)
     out = tmp_path / "out"
     code = main(["analyze", str(path), "--out", str(out), "--quick", "--quiet", "--trend", "0",
-                 "--max-planets", "1", "--max-steps", "250"])  # fmt: skip
+                 "--max-companions", "1", "--max-steps", "250"])  # fmt: skip
     assert code == 0
     notes = json.loads((out / "results.json").read_text())["notes"]
     assert any("look like km/s" in n for n in notes)

@@ -224,7 +224,7 @@ def test_plan_command_writes_observable_epochs_and_a_figure(run_dir, tmp_path, c
     for extra, message in (
         (["--aim", "b.nonsense"], "is not a parameter of the run"),
         (["--instrument", "nowhere"], "unknown instrument"),
-        (["--per-night", "0"], "at least 1"),
+        (["--per-night", "0"], "--per-night must be from 1 to 100, got 0"),
     ):
         assert main([*args[:-2], *extra]) == 2
         err = capsys.readouterr().err.strip()

@@ -105,7 +105,7 @@ def test_analyze_with_bin_notes_it(tmp_path):
     path = big_table(tmp_path / "big.txt", MAX_POINTS + 1)
     out = tmp_path / "out"
     code = main(["analyze", str(path), "--out", str(out), "--quick", "--quiet", "--bin", "1",
-                 "--trend", "0", "--max-planets", "1", "--max-steps", "250"])  # fmt: skip
+                 "--trend", "0", "--max-companions", "1", "--max-steps", "250"])  # fmt: skip
     assert code == 0
     import json
 

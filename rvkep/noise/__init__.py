@@ -10,8 +10,11 @@ Adding a noise model is one new file plus one line here.
 from __future__ import annotations
 
 import importlib
+from typing import TYPE_CHECKING
 
-from rvkep.noise.base import NoiseModel, NoiseParameter
+if TYPE_CHECKING:
+    from rvkep.noise.base import NoiseModel, NoiseParameter
+
 
 __all__ = [
     "NoiseModel",
@@ -46,3 +49,11 @@ def get_noise_model(name: str) -> NoiseModel:
             ) from None
         _INSTANCES[name] = getattr(importlib.import_module(module), cls)()
     return _INSTANCES[name]
+
+
+def __getattr__(name: str):
+    # the base classes load on first use: the registry's names alone (the command
+    # line's choices) need no numpy
+    if name in ('NoiseModel', 'NoiseParameter'):
+        return getattr(importlib.import_module("rvkep.noise.base"), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")

@@ -178,4 +178,22 @@ def render(results) -> str:
 
         lines += [f"| {c['period_d']:.3g} | {cell(c['msini50_mearth'])} | {cell(c['k50_mps'])} | "
                   f"{cell(c['msini95_mearth'])} | {cell(c['k95_mps'])} |" for c in lim["curves"]]  # fmt: skip
+    lines += _how_it_was_run(d.get("provenance"))
     return "\n".join(lines) + "\n"
+
+
+def _how_it_was_run(prov: dict | None) -> list[str]:
+    """The section that says how to make the run again: the command, the options that
+    differ from their defaults (from the option table), the seed and the inputs."""
+    if not prov:
+        return []
+    from rvkep.options import as_flags
+
+    lines = ["", "## How this was run", "", f"- command: `{prov.get('command', 'not recorded')}`"]
+    if prov.get("options"):
+        values = {k: tuple(v) if isinstance(v, list) else v for k, v in prov["options"].items()}
+        lines.append(f"- options other than the defaults: `{as_flags(values) or 'none'}`; "
+                     f"seed {prov.get('seed')}.")  # fmt: skip
+    for f in prov.get("inputs", []):
+        lines.append(f"- input `{f['file']}`: sha256 {f['sha256'] or 'unreadable'}.")
+    return lines

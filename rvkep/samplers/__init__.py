@@ -7,8 +7,11 @@ Adding a sampler is one new file plus one line here.
 from __future__ import annotations
 
 import importlib
+from typing import TYPE_CHECKING
 
-from rvkep.samplers.base import Sampler, SampleSet
+if TYPE_CHECKING:
+    from rvkep.samplers.base import Sampler, SampleSet
+
 
 __all__ = ["Sampler", "SampleSet", "SAMPLERS", "get_sampler", "available_samplers"]
 
@@ -31,3 +34,11 @@ def get_sampler(name: str) -> Sampler:
     except KeyError:
         raise ValueError(f"unknown sampler {name!r}; available: {', '.join(SAMPLERS)}") from None
     return getattr(importlib.import_module(module), cls)()
+
+
+def __getattr__(name: str):
+    # the base classes load on first use: the registry's names alone (the command
+    # line's choices) need no numpy
+    if name in ('Sampler', 'SampleSet'):
+        return getattr(importlib.import_module("rvkep.samplers.base"), name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
