@@ -38,8 +38,6 @@ import glob
 import hashlib
 import json
 import os
-import re
-import signal
 import sys
 import time
 from dataclasses import dataclass, field, replace
@@ -50,6 +48,7 @@ from rvkep.names import csv_cell, name_problem, shown
 from rvkep.options import TARGET_REQUIRED, columns, from_cell, option
 from rvkep.options import check as check_options
 from rvkep.outputs import LOCK_NAME, clean_temporaries, write_text
+from rvkep.workers import INTERRUPTED, run_tasks
 
 __all__ = ["Target", "read_targets", "run_target", "run_batch", "write_summary", "SUMMARY_FIELDS"]
 
@@ -243,80 +242,6 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
     return info
 
 
-# -- local worker processes ------------------------------------------------------------
-# A worker ignores Ctrl-C while idle (no traceback from the pool's queue) and turns the
-# first SIGINT during a target into a KeyboardInterrupt that the target handles (its
-# checkpoint is flushed); later ones are ignored so that nothing interrupts that flush.
-# A thread watches the parent: if it dies (kill -9, out of memory), an idle worker exits
-# at once and a busy one is interrupted like Ctrl-C and exits soon after.
-
-_BUSY = False
-_WATCH_SECONDS = 0.5
-_GRACE_SECONDS = 30.0
-
-
-def _interrupt_once(signum, frame):
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-    raise KeyboardInterrupt
-
-
-def _watch_parent(parent: int) -> None:
-    import _thread
-
-    while os.getppid() == parent:
-        time.sleep(_WATCH_SECONDS)
-    if _BUSY:
-        _thread.interrupt_main(signal.SIGINT)
-        deadline = time.monotonic() + _GRACE_SECONDS
-        while _BUSY and time.monotonic() < deadline:
-            time.sleep(0.1)
-    os._exit(1)
-
-
-def _worker_init(parent: int) -> None:
-    import threading
-
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-    # the worker was started with SIGINT blocked (see _sigint_deferred): a Ctrl-C
-    # during its start-up is pending now, and dropped as ignored
-    if hasattr(signal, "pthread_sigmask"):
-        signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})
-    threading.Thread(target=_watch_parent, args=(parent,), daemon=True).start()
-
-
-@contextlib.contextmanager
-def _sigint_deferred():
-    """Block SIGINT in this thread for the duration (a pending one is delivered after).
-
-    Local workers are spawned inside ``submit``; a child inherits the signal mask, so
-    it imports and unpickles with SIGINT blocked instead of dying of a
-    KeyboardInterrupt with a traceback if Ctrl-C comes while it starts.
-    """
-    if not hasattr(signal, "pthread_sigmask"):  # pragma: no cover - not on POSIX
-        yield
-        return
-    old = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
-    try:
-        yield
-    finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, old)
-
-
-def _run_pooled(target: Target, out: str, seed: int, quick: bool) -> dict:
-    """run_target inside a local worker process (see the notes above)."""
-    global _BUSY
-    _BUSY = True
-    signal.signal(signal.SIGINT, _interrupt_once)
-    try:
-        return run_target(target, out, seed, quick)
-    except KeyboardInterrupt:  # between the target's own steps
-        return {"name": target.name, "status": "interrupted", "seconds": 0.0,
-                "error": "interrupted"}  # fmt: skip
-    finally:
-        signal.signal(signal.SIGINT, signal.SIG_IGN)
-        _BUSY = False
-
-
 def _read_json(path: Path) -> dict | None:
     """A JSON object from ``path``; None if it is missing, unreadable or not an object."""
     try:
@@ -408,49 +333,6 @@ def write_summary(targets: list[Target], out: str | Path, infos: dict[str, dict]
     return path
 
 
-#: Thread counts a local worker starts with: one each, the pool being the parallelism
-#: (two workers with two BLAS threads each on two cores ran limits 1.5x slower).
-_CHILD_THREADS = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS",
-                  "NUMBA_NUM_THREADS")  # fmt: skip
-
-
-def _local_pool(workers: int):
-    """A pool of ``workers`` spawned processes. Their thread counts (BLAS, OpenMP,
-    numba) default to one: set in this process's environment, which they inherit
-    (this process has loaded its libraries already; a variable set before is kept)."""
-    import multiprocessing as mp
-    from concurrent.futures import ProcessPoolExecutor
-
-    for var in _CHILD_THREADS:
-        os.environ.setdefault(var, "1")
-
-    return ProcessPoolExecutor(
-        max_workers=workers, mp_context=mp.get_context("spawn"),
-        initializer=_worker_init, initargs=(os.getpid(),),
-    )  # fmt: skip
-
-
-_ADDRESS = re.compile(r"^((tcp|tls|inproc|ucx|ws|wss)://)?[\w.\-\[\]:]+:\d{1,5}$")
-
-
-def _dask_client(address: str):
-    if not _ADDRESS.match(address):
-        raise OptionError(
-            f"--scheduler {address!r}: not a scheduler address (expected tcp://HOST:PORT, "
-            "as printed by 'dask scheduler')"
-        )
-    try:
-        from distributed import Client
-    except ImportError:
-        raise OptionError(
-            '--scheduler needs dask.distributed: pip install "rvkep[cluster]"'
-        ) from None
-    try:
-        return Client(address, timeout="10s")
-    except (OSError, TimeoutError) as exc:
-        raise OptionError(f"cannot reach the Dask scheduler at {address}: {exc}") from None
-
-
 def run_batch(
     targets_file: str | Path,
     out: str | Path,
@@ -483,13 +365,6 @@ def run_batch(
 
 
 def _run_targets(targets, out, workers, scheduler, seed, quiet, quick, executor):
-    own = None
-    if executor is None:
-        if scheduler:
-            executor = own = _dask_client(scheduler)
-        else:
-            executor = own = _local_pool(workers or os.cpu_count() or 1)
-    local = own is not None and not _is_dask(own)
     infos: dict[str, dict] = {}
     pending = []
     for t in targets:
@@ -509,92 +384,29 @@ def _run_targets(targets, out, workers, scheduler, seed, quiet, quick, executor)
         bar = tqdm(
             total=len(targets), initial=len(targets) - len(pending), desc="targets", unit="star"
         )
+    by_name = {t.name: t for t in pending}
 
-    def record(fut, t):
-        try:
-            info = fut.result()
-        except Exception as exc:  # the worker itself died
-            info = {"name": t.name, "status": "failed", "seconds": 0.0,
-                    "error": f"worker failed: {exc}"}  # fmt: skip
-        infos[t.name] = info
+    def record(name, value):
+        if value == INTERRUPTED:
+            value = {"name": name, "status": "interrupted", "seconds": 0.0,
+                     "error": "interrupted"}  # fmt: skip
+        elif isinstance(value, BaseException):  # the worker itself died
+            value = {"name": name, "status": "failed", "seconds": 0.0,
+                     "error": f"worker failed: {value}"}  # fmt: skip
+        infos[name] = value
         if bar is not None:
             bar.update(1)
-            bar.set_postfix(last=f"{t.name}: {info['status']}")
+            bar.set_postfix(last=f"{name}: {value['status']}")
         elif not quiet:
-            msg = f"{t.name}: {info['status']} ({info['seconds']:.1f} s)"
-            print(msg + (f" - {info['error']}" if info["error"] else ""), flush=True)
+            msg = f"{name}: {value['status']} ({value['seconds']:.1f} s)"
+            print(msg + (f" - {value['error']}" if value["error"] else ""), flush=True)
 
-    # local pools get no more work than they have workers, so that nothing is queued
-    # inside the pool when the run is interrupted; a Dask cluster gets the whole list
-    window = (workers or os.cpu_count() or 1) if local else len(pending)
-    queue = list(pending)
-    running: dict = {}
+    tasks = [(t.name, (by_name[t.name], str(out), seed, quick)) for t in pending]
     try:
-        try:
-            while queue or running:
-                while queue and len(running) < window:
-                    t = queue.pop(0)
-                    fn = _run_pooled if local else run_target
-                    with _sigint_deferred():
-                        running[executor.submit(fn, t, str(out), seed, quick)] = t
-                for fut in _first_completed(executor, list(running)):
-                    record(fut, running.pop(fut))
-        except KeyboardInterrupt:
-            previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
-            try:
-                _stop(executor, own if local else None, running, record)
-            finally:
-                signal.signal(signal.SIGINT, previous)
-            raise
-        finally:
-            if bar is not None:
-                bar.close()
-            if own is not None:
-                # a Dask Client is closed, never shut down: that would stop the cluster
-                if _is_dask(own):
-                    own.close()
-                else:
-                    own.shutdown(wait=True, cancel_futures=True)
+        run_tasks(run_target, tasks, record, workers=workers, scheduler=scheduler,
+                  executor=executor, in_process=False)  # fmt: skip
     finally:
+        if bar is not None:
+            bar.close()
         write_summary(targets, out, infos)
     return infos
-
-
-def _stop(executor, pool, running: dict, record) -> None:
-    """After Ctrl-C: cancel what has not started, interrupt local workers, and record
-    what the running targets report within the grace period."""
-    for fut in list(running):
-        if fut.cancel():
-            running.pop(fut)
-    if _is_dask(executor):
-        executor.cancel(list(running))
-        return
-    deadline = time.monotonic() + _GRACE_SECONDS
-    while running and time.monotonic() < deadline:
-        if pool is not None:
-            for proc in list(getattr(pool, "_processes", {}).values()):
-                with contextlib.suppress(OSError):
-                    os.kill(proc.pid, signal.SIGINT)
-        from concurrent.futures import wait
-
-        done, _ = wait(list(running), timeout=0.5)
-        for fut in done:
-            record(fut, running.pop(fut))
-    if running and pool is not None:  # a worker that did not stop in time
-        for proc in list(getattr(pool, "_processes", {}).values()):
-            with contextlib.suppress(OSError):
-                proc.kill()
-
-
-def _is_dask(executor) -> bool:
-    return type(executor).__module__.split(".")[0] == "distributed"
-
-
-def _first_completed(executor, futures: list) -> list:
-    """Block until at least one future is done; return the done ones."""
-    if _is_dask(executor):
-        from distributed import wait
-    else:
-        from concurrent.futures import wait
-    done, _ = wait(futures, return_when="FIRST_COMPLETED")
-    return list(done)

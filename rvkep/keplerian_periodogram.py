@@ -160,11 +160,26 @@ def _table(ecc: np.ndarray) -> np.ndarray:
     return _TABLES[key]
 
 
+#: frequencies per slice of the compiled kernel: Ctrl-C is taken between slices
+SLICE = 1024
+
+
 def _drops(t, y, w, starts, D, G, frequency, ecc, nph):
+    """The kernel over ``frequency`` in slices, SIGINT deferred within each (a Ctrl-C
+    inside the parallel kernel crashed it: rvkep.signals)."""
     from rvkep._kepler_numba import keplerian_power
+    from rvkep.signals import sigint_deferred
 
     n_inst = starts.size - 1
-    return keplerian_power(t, y, w, starts, D, n_inst, G, frequency, ecc, nph, _table(ecc))
+    table = _table(ecc)
+    parts = []
+    for k in range(0, frequency.size, SLICE):
+        with sigint_deferred():
+            parts.append(keplerian_power(t, y, w, starts, D, n_inst, G,
+                                         frequency[k : k + SLICE], ecc, nph, table))  # fmt: skip
+    if not parts:
+        return keplerian_power(t, y, w, starts, D, n_inst, G, frequency, ecc, nph, table)
+    return tuple(np.concatenate([p[i] for p in parts]) for i in range(3))
 
 
 def keplerian_periodogram(

@@ -354,7 +354,7 @@ def run_limits(setup: LimitsSetup, folder: str | Path, *, workers: int = 1,
                scheduler: str | None = None, quiet: bool = False) -> Limits:  # fmt: skip
     """Run every period row not already done (``folder/limits_parts/``) on ``workers``
     local processes (1: in this process) or a Dask scheduler, and gather the grid."""
-    from rvkep.batch import _dask_client, _first_completed, _is_dask, _local_pool
+    from rvkep.workers import INTERRUPTED, run_tasks
 
     start = time.perf_counter()
     parts = Path(folder) / "limits_parts"
@@ -372,24 +372,19 @@ def run_limits(setup: LimitsSetup, folder: str | Path, *, workers: int = 1,
     if todo and not quiet and done:
         print(f"limits: resuming, {len(done)} of {n_rows} period rows already done",
               file=sys.stderr, flush=True)  # fmt: skip
-    if todo and scheduler is None and workers <= 1:
-        for i in todo:
-            done[i] = _run_row(setup, i, str(parts))
-            say(done[i])
-    elif todo:
-        pool = _dask_client(scheduler) if scheduler else _local_pool(workers)
-        try:
-            running = {pool.submit(_run_row, setup, i, str(parts)): i for i in todo}
-            while running:
-                for fut in _first_completed(pool, list(running)):
-                    i = running.pop(fut)
-                    done[i] = fut.result()
-                    say(done[i])
-        finally:
-            if _is_dask(pool):
-                pool.close()
-            else:
-                pool.shutdown(wait=True, cancel_futures=True)
+
+    def record(i, row):
+        if row == INTERRUPTED:  # Ctrl-C: the rows written so far are the resume point
+            return
+        if isinstance(row, BaseException):
+            raise row
+        done[i] = row
+        say(row)
+
+    run_tasks(_run_row, [(i, (setup, i, str(parts))) for i in todo], record,
+              workers=workers, scheduler=scheduler)  # fmt: skip
+    if len(done) < n_rows:  # interrupted rows
+        raise KeyboardInterrupt
     rows = [done[i] for i in range(n_rows)]
     return Limits(setup, np.array([r["recovered"] for r in rows]),
                   np.array([r["tried"] for r in rows]), np.array([r["K_mps"] for r in rows]),

@@ -76,9 +76,10 @@ _TREND = {"degree"}
 _INSTRUMENT = {"jitter"}
 _COMPANION = {"period", "tc", "K", "ecc", "omega_deg", "circular"}
 _SAMPLING = {"walkers", "max_steps", "seed"}
-# walkers: emcee's moves need at least a few; a cap keeps memory bounded (chain memory
-# is walkers x steps x parameters x 8 bytes)
-_SAMPLING_RANGE = {"walkers": (8, 10_000), "max_steps": (100, 10_000_000), "seed": (0, 2**32 - 1)}
+# walkers: emcee's moves need at least a few; the cap keeps memory bounded (chain memory
+# is walkers x steps x parameters x 8 bytes) and the checkpoint's commit record (628 +
+# walkers numbers in one HDF5 attribute, at most 64 KiB: 7,564 walkers) writable
+_SAMPLING_RANGE = {"walkers": (8, 5_000), "max_steps": (100, 10_000_000), "seed": (0, 2**32 - 1)}
 
 
 @dataclass

@@ -429,3 +429,69 @@ def test_ctrl_c_while_workers_start_prints_no_traceback(tmp_path, delay):
     stdout, stderr = proc.communicate(timeout=60)
     assert proc.returncode == 130, stderr
     assert "Traceback" not in stderr + stdout, stderr
+
+
+@pytest.mark.parametrize("to_group", [True, False])
+def test_ctrl_c_twice_stops_limits_on_workers_and_leaves_nothing_running(tmp_path, to_group):
+    """Two SIGINTs 50 ms apart during ``rvkep limits --workers 2`` (before the one
+    worker-pool helper, 6 of 6 such runs hung with their workers alive): exit 130
+    within seconds, no traceback, no process left, and the rerun resumes."""
+    from test_sampling import finished_run
+
+    run = finished_run(tmp_path / "run")
+    cmd = [sys.executable, "-m", "rvkep", "limits", str(run), "--workers", "2",
+           "--injections", "600", "--grid", "30", "--quiet"]  # fmt: skip (about 30 s)
+    proc = subprocess.Popen(cmd, start_new_session=True, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)  # fmt: skip
+    try:
+        parts = run / "limits_parts"
+        assert wait_for(lambda: parts.is_dir() and any(parts.iterdir()), 60)
+        time.sleep(0.5)  # the workers are computing rows
+        workers = children(proc.pid)
+        assert len(workers) >= 2
+        for _ in range(2):
+            (os.killpg if to_group else os.kill)(proc.pid, signal.SIGINT)
+            time.sleep(0.05)
+        t0 = time.time()
+        _, stderr = proc.communicate(timeout=60)
+        assert time.time() - t0 < 30
+        assert proc.returncode == 130 and "Traceback" not in stderr, stderr
+        assert stderr.strip().splitlines()[-1] == "rvkep limits: interrupted"
+        assert wait_for(lambda: not any(alive(w) for w in workers), 10), "workers left"
+    finally:
+        with __import__("contextlib").suppress(ProcessLookupError):
+            os.killpg(proc.pid, signal.SIGKILL)
+    assert not (run / "limits.csv").exists()
+    if to_group:  # the rerun resumes from the rows written
+        kept = len(list(parts.iterdir()))
+        rerun = subprocess.run(cmd[:-1], capture_output=True, text=True, timeout=600)
+        assert rerun.returncode == 0, rerun.stderr
+        assert f"resuming, {kept} of 30 period rows already done" in rerun.stderr
+        assert (run / "limits.csv").exists()
+
+
+def test_ctrl_c_inside_the_keplerian_periodogram_is_a_clean_interrupt(tmp_path):
+    """SIGINT while the compiled parallel kernel runs: exit 130 and one line (before
+    the kernel ran in slices with SIGINT deferred: SystemError "returned a result with
+    an exception set", or a crash)."""
+    import numpy as np
+
+    rng = np.random.default_rng(1)
+    t = np.sort(rng.uniform(0, 2000, 120))
+    y = 10 * np.sin(2 * np.pi * t / 37.0) + rng.normal(0, 2, t.size)
+    f = tmp_path / "star.txt"
+    np.savetxt(f, np.column_stack([t, y, np.full(t.size, 2.0)]), header="time rv err")
+    cmd = [sys.executable, "-m", "rvkep", "periodogram", str(f), "--search", "keplerian",
+           "--out", str(tmp_path)]  # fmt: skip
+    proc = subprocess.Popen(cmd, start_new_session=True, stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True)  # fmt: skip
+    try:
+        time.sleep(6.0)  # inside the bootstrap's kernel calls (about a minute in all)
+        assert proc.poll() is None
+        os.kill(proc.pid, signal.SIGINT)
+        _, stderr = proc.communicate(timeout=60)
+    finally:
+        with __import__("contextlib").suppress(ProcessLookupError):
+            os.killpg(proc.pid, signal.SIGKILL)
+    assert proc.returncode == 130, stderr
+    assert stderr.strip().splitlines() == ["rvkep periodogram: interrupted"], stderr

@@ -491,3 +491,22 @@ def test_snooker_picks_one_walker_of_each_other_quarter_in_random_roles(monkeypa
     perms, counts = np.unique(roles, axis=0, return_counts=True)
     assert len(perms) == 6 and stats.chisquare(counts).pvalue > 1e-3
     assert stats.chisquare(np.bincount(captured["member"].astype(int), minlength=4)).pvalue > 1e-3
+
+
+def test_the_largest_walker_count_a_model_file_allows_writes_its_checkpoint(tmp_path):
+    """The commit record (628 + walkers numbers) is one HDF5 attribute, limited to
+    64 KiB in compact storage (HDF5 user guide, attribute size: from memory); the
+    model file's cap on walkers keeps it writable (8,100 walkers failed with "object
+    header message is too large")."""
+    import h5py
+
+    from rvkep.modelfile import _SAMPLING_RANGE
+    from rvkep.sampling import BufferedHDFBackend
+
+    n = _SAMPLING_RANGE["walkers"][1]
+    backend = BufferedHDFBackend(tmp_path / "chain.h5")
+    backend.reset(n, 3)
+    with h5py.File(tmp_path / "chain.h5", "r") as f:
+        assert f["mcmc"].attrs["rvkep_commit"].size == 628 + n
+    with pytest.raises((ValueError, RuntimeError, OSError)):
+        BufferedHDFBackend(tmp_path / "big.h5").reset(8_100, 3)
