@@ -159,26 +159,64 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
     return search_result, fits[n], comparison, message, fits
 
 
-def choose_trend(outcomes: list) -> tuple[int, list[dict]]:
-    """The trend degree by the companions' rule: a higher degree is kept only if its
-    chosen model's BIC is lower by more than BIC_THRESHOLD. Returns (index, rows)."""
-    chosen = 0
-    for k in range(1, len(outcomes)):
-        if outcomes[k][1].bic < outcomes[chosen][1].bic - BIC_THRESHOLD:
-            chosen = k
+def choose_across(outcomes: list, data, fixed: bool, spec=None):
+    """The choice over every trend degree and companion count (:mod:`rvkep.choice`):
+    nested refits so that ln L never falls with the degree, Occam by parameter count
+    over all candidates, the harmonic check of the chosen companions and the
+    alternatives that fit nearly as well.
+
+    ``outcomes`` are :func:`select_companions`' results per degree; ``fixed``: the
+    number of companions is given (model file or ``--companions``). Returns (search
+    result, fit, companion-number rows, message, fits by count, model rows, notes)."""
+    from rvkep import choice as rules
+
+    per_degree = [list(o[4]) for o in outcomes]
+    notes: list[str] = []
+    if len(outcomes) > 1:
+        per_degree, _ = rules.nested_refits(per_degree)
+    cands = []  # (degree index, companion count)
+    for d, (o, fits) in enumerate(zip(outcomes, per_degree, strict=True)):
+        if fixed:
+            cands.append((d, len(fits) - 1))
+        else:
+            n_sig = min(len(o[0].significant), len(fits) - 1)
+            cands.extend((d, k) for k in range(n_sig + 1))
+    chosen = cands[rules.occam_choice([per_degree[d][k] for d, k in cands])]
+    d, k = chosen
+    fit = per_degree[d][k]
+    if not fixed and len(fit.model.companions) >= 2:
+        span = float(data.time.max() - data.time.min())
+        checked, hnotes, _ = rules.harmonic_check(fit, span)
+        notes += hnotes
+        if checked is not fit:
+            k = len(checked.model.companions)
+            if checked.bic < per_degree[d][k].bic:
+                per_degree[d][k] = checked
+            fit = per_degree[d][k]
+    search_result = outcomes[d][0]
+    fits = per_degree[d]
+    comparison = _comparison_rows(fits, k, search_result)
+    if spec and spec.companions:
+        comparison[1]["n_companions"] = len(spec.companions)
+        message = f"model file: {len(spec.companions)} companion(s)"
+    elif fixed:
+        message = f"{k} companion(s) fitted as asked (--companions)"
+    else:
+        message = (f"search: {len(search_result.significant)} significant signal(s); {k} "
+                   "companion(s) kept after the BIC comparison")  # fmt: skip
+    best_bic = min(per_degree[a][b].bic for a, b in cands)
     rows = []
-    best_bic = min(o[1].bic for o in outcomes)
-    for k, (_, fit, *_) in enumerate(outcomes):
+    for a, b in cands:
+        f = per_degree[a][b]
         rows.append({
-            "degree": fit.model.trend,
-            "n_companions": len(fit.model.companions),
-            "periods_d": [fit.params[f"{c.label}.period"] for c in fit.model.companions],
-            "log_likelihood": fit.log_likelihood,
-            "bic": fit.bic,
-            "delta_bic": fit.bic - best_bic,
-            "chosen": k == chosen,
+            "degree": f.model.trend, "n_companions": len(f.model.companions),
+            "periods_d": rules.periods_of(f), "n_free": f.n_free,
+            "log_likelihood": f.log_likelihood, "bic": f.bic, "delta_bic": f.bic - best_bic,
+            "chosen": (a, b) == (d, k),
         })  # fmt: skip
-    return chosen, rows
+    if not fixed:
+        notes += rules.alternatives([per_degree[a][b] for a, b in cands], fit)
+    return search_result, fit, comparison, message, fits, rows, notes
 
 
 def _selection_notes(search_result, fit, comparison) -> list[str]:
@@ -505,12 +543,15 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
         degrees = list(TREND_DEGREES) if trend == "auto" else [trend]
     t0 = time.perf_counter()
     outcomes = [select_companions(data, replace(base, trend=d), opts, spec) for d in degrees]
-    chosen, trend_rows = choose_trend(outcomes)
-    search_result, fit, comparison, message, fits = outcomes[chosen]
+    fixed = bool(spec and spec.companions) or opts.companions is not None
+    search_result, fit, comparison, message, fits, trend_rows, rule_notes = choose_across(
+        outcomes, data, fixed, spec)  # fmt: skip
     _say(opts, message)
     if len(outcomes) > 1:
-        _say(opts, f"trend: degree {fit.model.trend} chosen of 0, 1, 2 (BIC, see trend_comparison)")
+        _say(opts, f"trend: degree {fit.model.trend} chosen of 0, 1, 2 (BIC by parameter count, "
+                   "see trend_comparison)")  # fmt: skip
     choice = ModelChoice(search_result, fit, comparison, trend_rows, [], fits)
+    choice.extra_notes = list(rule_notes)
     t1 = time.perf_counter()
     choice.timings["model_choice"] = t1 - t0  # the search and the best fits, every trend
     if opts.evidence or opts.choose_by == "evidence" or opts.sampler == "nested":

@@ -315,16 +315,17 @@ def accelerating_star(seed=6):
 
 
 def test_acceleration_is_a_trend_not_a_second_companion():
-    from rvkep.pipeline import AnalyzeOptions, choose_trend, select_companions
+    from rvkep.pipeline import AnalyzeOptions, choose_model, select_companions
 
     data = accelerating_star()
     opts = AnalyzeOptions(quiet=True)
     outcomes = [select_companions(data, SystemModel(data, [], trend=d), opts) for d in (0, 1, 2)]
     # without a trend the acceleration spoils the fit (here a spurious period wins)
     assert outcomes[0][1].bic > outcomes[1][1].bic + 100
-    k, rows = choose_trend(outcomes)
-    fit = outcomes[k][1]
-    assert fit.model.trend == 1 and [r["chosen"] for r in rows] == [False, True, False]
+    ch = choose_model(data, opts)
+    fit = ch.fit
+    chosen = [r for r in ch.trend_rows if r["chosen"]]
+    assert fit.model.trend == 1 and [(r["degree"], r["n_companions"]) for r in chosen] == [(1, 1)]
     assert [c.label for c in fit.model.companions] == ["b"]
     assert fit.params["b.period"] == pytest.approx(17.3, rel=2e-3)
     assert fit.params["trend.slope"] == pytest.approx(25.0, abs=1.5)

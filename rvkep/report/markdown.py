@@ -143,15 +143,16 @@ def render(results) -> str:
         lines += [
             "## Trend",
             "",
-            "Degrees compared by the companions' rule (a higher degree must lower the BIC by more than 10):",
+            "Every trend degree and companion count compared by parameter count (a model "
+            "with more free parameters must lower the BIC by more than 10):",
             "",
-            "| degree | companions | periods [d] | ln L | BIC | delta BIC | chosen |",
-            "|---|---|---|---|---|---|---|",
+            "| degree | companions | periods [d] | free parameters | ln L | BIC | delta BIC | chosen |",
+            "|---|---|---|---|---|---|---|---|",
         ]
         for row in d["trend_comparison"]:
             periods = ", ".join(f"{p:.5g}" for p in row["periods_d"]) or "-"
             lines.append(
-                f"| {row['degree']} | {row['n_companions']} | {periods} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
+                f"| {row['degree']} | {row['n_companions']} | {periods} | {row.get('n_free', '')} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
             )
         lines.append("")
     lines += [

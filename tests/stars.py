@@ -1,0 +1,71 @@
+"""Invented stars that reproduce the model-choice failures met on published data sets.
+
+Each generator is seeded and documented (its truth in its docstring); they are test
+inputs, not demos. Times are BJD - 2450000 style numbers near 2459000.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from rvkep.data import RVData
+from rvkep.orbit import radial_velocity
+
+
+def _season_times(rng, n: int, span: float) -> np.ndarray:
+    """``n`` distinct nights over ``span`` days, 250 of every 365 observable."""
+    nights = np.arange(int(span))
+    nights = nights[(nights % 365) < 250]
+    return 2459000.0 + np.sort(rng.choice(nights, n, replace=False)) + rng.uniform(-0.1, 0.1, n)
+
+
+def planet_and_acceleration(seed: int = 3) -> RVData:
+    """One planet (P 44.6 d, K 12 m/s, e 0.1) and a steady acceleration of 8 m/s per
+    year, 72 velocities over 2,000 days from one spectrograph with 2.5 m/s errors.
+
+    Truth: one companion and a linear trend. On a published star of this kind the
+    trend rule (a higher degree must win by 10 in BIC within its own search) chose
+    degree 0 with a second, 1,264-d e = 0.65 companion standing in for the trend."""
+    rng = np.random.default_rng(seed)
+    t = _season_times(rng, 72, 2000)
+    v = radial_velocity(t, 44.6, 2459010.0, 0.1, 1.0, 12.0) + 8.0 / 365.25 * (t - t.mean())
+    err = np.full(t.size, 2.5)
+    return RVData(t, v + rng.normal(0, 2.5, t.size), err, np.array(["kite"] * t.size))
+
+
+def eccentric_resonant_pair(seed: int = 5) -> RVData:
+    """Two planets near 2:1, P 30.2 and 61.0 d, K 88 and 214 m/s, e 0.26 on the inner
+    (omega 4.0 rad) and 0.03 on the outer; 110 velocities over 1,800 days, 3 m/s
+    errors.
+
+    Truth: two companions. Fitted circular, the inner orbit leaves its first harmonic
+    (15.1 d) in the residuals, which the search adopts as a false third companion."""
+    rng = np.random.default_rng(seed)
+    t = _season_times(rng, 110, 1800)
+    v = (radial_velocity(t, 30.2, 2459004.0, 0.26, 4.0, 88.0)
+         + radial_velocity(t, 61.0, 2459020.0, 0.03, 2.0, 214.0))  # fmt: skip
+    err = np.full(t.size, 3.0)
+    return RVData(t, v + rng.normal(0, 3.0, t.size), err, np.array(["kite"] * t.size))
+
+
+def seven_night_hot_jupiter(seed: int = 2, night_sd: float = 2.0) -> RVData:
+    """A hot Jupiter (P 4.2308 d, K 55 m/s, circular) seen by a 0.6 m/s spectrograph
+    on seven nights over 114 days, 13 exposures 15 minutes apart each night (91
+    points), with stellar noise correlated within a night: a shift of ``night_sd`` m/s
+    shared by the night's exposures plus a slow wiggle (1 m/s, 2-hour period, random
+    phase) over it, as oscillation and granulation give (Dumusque et al. 2011, A&A
+    525, A140: 0.5-2 m/s for solar-type stars).
+
+    Truth: one companion, no trend. White noise weighs each night like 13 independent
+    epochs, and the fit can trade the period for an alias (P/3 at 1.41 d) plus a
+    trend."""
+    rng = np.random.default_rng(seed)
+    nights = np.sort(rng.choice(np.arange(114), 7, replace=False)) + 2459000.3
+    t = (nights[:, None] + np.arange(13)[None, :] * 15.0 / 1440.0).ravel()
+    v = radial_velocity(t, 4.2308, 2459001.1, 0.0, 0.0, 55.0)
+    shift = np.repeat(rng.normal(0.0, night_sd, 7), 13)
+    phase = np.repeat(rng.uniform(0, 2 * np.pi, 7), 13)
+    wiggle = 1.0 * np.sin(2 * np.pi * (t - t.min()) * 12.0 + phase)
+    err = np.full(t.size, 0.6)
+    v = v + shift + wiggle + rng.normal(0.0, 0.6, t.size)
+    return RVData(t, v, err, np.array(["heron"] * t.size))
