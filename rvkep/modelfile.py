@@ -42,7 +42,7 @@ A parameter is a number (a start value with the default prior) or a table with
 ``start`` and a prior: ``prior`` is one of ``uniform`` / ``loguniform`` (``min``,
 ``max``), ``normal`` (``mean``, ``sd``), ``truncnormal`` (``mean``, ``sd``, optional
 ``min``, ``max``), ``beta`` (``a``, ``b``) or ``fixed`` (``value``). Times are in the
-data's time system. ``[noise]`` names the noise model (``kind``: ``white`` or ``gp``,
+data's time system. ``[noise]`` names the noise model (``kind``: ``white``, ``gp`` or ``night``,
 see :mod:`rvkep.noise`) and takes that model's own parameters with the same syntax.
 Errors name the file, the key and the problem.
 """
@@ -169,8 +169,10 @@ class ModelSpec:
     def base_model(self, data: RVData, noise: str | None = None) -> SystemModel:
         """The model without companions (instruments, trend, star, noise model;
         ``noise`` overrides the file's kind)."""
+        from rvkep.noise import default_noise_model
+
         trend = self.trend if self.trend is not None else 0
-        kind = noise or self.noise or "white"
+        kind = noise or self.noise or default_noise_model(data)
         return SystemModel(data, [], self.instruments_for(data), trend, self.star, noise=kind,
                            noise_parameters=self.noise_parameters_for(data, kind))  # fmt: skip
 

@@ -217,10 +217,12 @@ OPTIONS: tuple[Option, ...] = (
            commands=frozenset({"periodogram"})),  # fmt: skip
     # --- the noise and the model
     Option("noise", "choice", None, "noise model: white (independent errors plus a jitter "
-           "per instrument) or gp (stellar activity as a quasi-periodic Gaussian process "
-           "shared by the instruments, beside their jitters)", choices=_noise_models,
+           "per instrument), gp (stellar activity as a quasi-periodic Gaussian process "
+           "shared by the instruments, beside their jitters) or night (white plus a shift "
+           "shared by one instrument's points of one night)", choices=_noise_models,
            column=True, model_key="[noise] kind",
-           shown_default="the model file's [noise], else white"),  # fmt: skip
+           shown_default="the model file's [noise], else night for an instrument with two "
+           "or more nights of 4+ points within 6 hours, else white"),  # fmt: skip
     Option("decorrelate", "columns", (), "decorrelate the velocities against these extra "
            "data columns (activity indicators such as fwhm,bis): one linear coefficient "
            "per column and instrument, marginalized like the offsets",

@@ -240,7 +240,7 @@ def _selection_notes(search_result, fit, comparison) -> list[str]:
             notes.append(f"period of {label} is AMBIGUOUS: {cand.period:.6g} d fits best, "
                          f"but {alts} fit(s) nearly as well")  # fmt: skip
     for label, cand in by_label.items():
-        if cand.activity and fit.model.noise == "white" and not fit.model.decorrelate:
+        if cand.activity and fit.model.noise in ("white", "night") and not fit.model.decorrelate:
             cols = ",".join(cand.activity)
             notes.append(f"the period of {label} ({cand.period:.6g} d) also peaks in {cols}: it "
                          f"may be stellar activity; --noise gp (a correlated-noise model) or "
@@ -521,7 +521,9 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
         if spec:
             base = spec.base_model(data, opts.noise)
         else:
-            base = SystemModel(data, [], noise=opts.noise or "white")
+            from rvkep.noise import default_noise_model
+
+            base = SystemModel(data, [], noise=opts.noise or default_noise_model(data))
         base = replace(base, decorrelate=columns)
     except ValueError as exc:
         raise OptionError(str(exc)) from None

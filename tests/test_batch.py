@@ -158,7 +158,7 @@ def test_target_list_noise_and_decorrelation_columns(tmp_path):
     assert (x.get("noise"), x.get("decorrelate")) == ("gp", ("fwhm", "bis")) and not x.problem
     assert not x.get("evidence")
     assert (y.get("noise"), y.get("decorrelate")) == (None, ())
-    assert "line 4: noise must be one of white, gp, got 'red'" in z.problem
+    assert "line 4: noise must be one of white, gp, night, got 'red'" in z.problem
     p.write_text("name,data,star_mass,star_mass_err,search\n"
                  "x,a.txt,1,0.1,keplerian\ny,b.txt,1,0.1,\nz,c.txt,1,0.1,wavelet\n")  # fmt: skip
     x, y, z = read_targets(p)

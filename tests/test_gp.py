@@ -154,7 +154,7 @@ def test_model_file_noise_table(tmp_path):
     assert par["evolution_time"].start == 50.0
     assert par["evolution_time"].prior.describe().startswith("log-uniform")  # the default
     bad = [
-        ({"kind": "red"}, "noise.kind: must be one of white, gp, got 'red'"),
+        ({"kind": "red"}, "noise.kind: must be one of white, gp, night, got 'red'"),
         ({"kind": "gp", "period": 3}, "noise: unknown key 'period'"),
         ({"kind": "gp", "harmonic_fraction": {"prior": "uniform", "min": 0, "max": 2}},
          "noise.harmonic_fraction: the prior uniform(0, 2) reaches outside [0, 1]"),
@@ -174,7 +174,7 @@ def test_command_line_refuses_an_unknown_noise_model(tmp_path, capsys):
     f = write_table(one_planet(), tmp_path / "a.txt")
     assert main(["analyze", str(f), "--noise", "red", "--out", str(tmp_path / "o")]) == 2
     err = capsys.readouterr().err.strip().splitlines()
-    assert err == ["rvkep analyze: error: --noise must be one of white, gp, got 'red'"]
+    assert err == ["rvkep analyze: error: --noise must be one of white, gp, night, got 'red'"]
 
 
 def test_figures_draw_the_activity_apart_and_remove_it_from_the_phase_plot():

@@ -21,6 +21,7 @@ __all__ = [
     "NoiseParameter",
     "NOISE_MODELS",
     "get_noise_model",
+    "default_noise_model",
     "available_noise_models",
 ]
 
@@ -28,9 +29,18 @@ __all__ = [
 NOISE_MODELS = {
     "white": "rvkep.noise.white:WhiteNoise",
     "gp": "rvkep.noise.gp:QuasiPeriodicGP",
+    "night": "rvkep.noise.night:NightNoise",
 }
 
 _INSTANCES: dict[str, NoiseModel] = {}
+
+
+def default_noise_model(data) -> str:
+    """The noise model a run uses when none is asked for: ``night`` when an instrument
+    has dense nights (:func:`rvkep.noise.night.dense_instruments`), else ``white``."""
+    from rvkep.noise.night import dense_instruments
+
+    return "night" if dense_instruments(data) else "white"
 
 
 def available_noise_models() -> list[str]:

@@ -30,7 +30,7 @@ import numpy as np
 
 from rvkep.priors import Prior
 
-__all__ = ["NoiseModel", "NoiseParameter"]
+__all__ = ["NoiseModel", "NoiseParameter", "covariance_power"]
 
 
 @dataclass(frozen=True)
@@ -105,3 +105,41 @@ class NoiseModel:
         parameter set, at ``t`` (in the data's time system; default the data times); None when
         the model has no correlated part."""
         return None
+
+
+#: frequencies per block of :func:`covariance_power` (bounds its memory)
+_FREQ_BLOCK = 2048
+
+
+def covariance_power(solve, X: np.ndarray, t: np.ndarray, r: np.ndarray,
+                     frequency: np.ndarray) -> np.ndarray:  # fmt: skip
+    """Power of a sinusoid added to residuals ``r`` measured through a covariance C:
+    the fraction of chi^2 = r^T C^-1 r (after the linear columns ``X``) it removes.
+    ``solve(V)`` returns C^-1 V for a matrix V (n, k). The generalized Lomb-Scargle
+    power (Zechmeister & Kuerster 2009, A&A 496, 577) is the special case of a
+    diagonal C."""
+    Z = solve(np.column_stack([r, X]))
+    A = X.T @ Z[:, 1:]
+    A_inv = np.linalg.inv(0.5 * (A + A.T))
+    b = X.T @ Z[:, 0]
+    chi2_0 = float(r @ Z[:, 0] - b @ A_inv @ b)
+    out = np.empty(frequency.size)
+    for s in range(0, frequency.size, _FREQ_BLOCK):
+        f = frequency[s : s + _FREQ_BLOCK]
+        arg = 2.0 * np.pi * np.outer(t, f)
+        B = np.empty((t.size, 2 * f.size))
+        B[:, 0::2], B[:, 1::2] = np.cos(arg), np.sin(arg)
+        W = solve(B).reshape(t.size, f.size, 2)
+        Bk = B.reshape(t.size, f.size, 2)
+        G = np.einsum("nfi,nfj->fij", Bk, W)
+        h = np.einsum("nfi,n->fi", W, r)
+        H = np.einsum("nfi,nk->fik", W, X)
+        HA = H @ A_inv
+        S = G - HA @ np.swapaxes(H, 1, 2)
+        u = h - HA @ b
+        det = S[:, 0, 0] * S[:, 1, 1] - S[:, 0, 1] * S[:, 1, 0]
+        with np.errstate(divide="ignore", invalid="ignore"):
+            q = (S[:, 1, 1] * u[:, 0] ** 2 - 2 * S[:, 0, 1] * u[:, 0] * u[:, 1]
+                 + S[:, 0, 0] * u[:, 1] ** 2) / det  # fmt: skip
+        out[s : s + f.size] = np.where(np.isfinite(q) & (det > 0), q, 0.0)
+    return np.clip(out / chi2_0, 0.0, 1.0)

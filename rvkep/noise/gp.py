@@ -48,7 +48,7 @@ from __future__ import annotations
 import numpy as np
 
 from rvkep import defaults
-from rvkep.noise.base import NoiseModel, NoiseParameter
+from rvkep.noise.base import NoiseModel, NoiseParameter, covariance_power
 from rvkep.noise.white import WhiteNoise
 from rvkep.priors import LogUniform, Uniform
 
@@ -232,34 +232,8 @@ class QuasiPeriodicGP(NoiseModel):
         companion. The generalized Lomb-Scargle power (Zechmeister & Kuerster 2009)
         is the special case of a diagonal C."""
         C = self._factor(model, phys, 0)
-        X = model.design
-        r = np.asarray(resid, float)
-        Z = C.solve(np.column_stack([r, X]))
-        A = X.T @ Z[:, 1:]
-        A_inv = np.linalg.inv(0.5 * (A + A.T))
-        b = X.T @ Z[:, 0]
-        chi2_0 = float(r @ Z[:, 0] - b @ A_inv @ b)
-        t = model.t
-        out = np.empty(frequency.size)
-        for s in range(0, frequency.size, _FREQ_BLOCK):
-            f = frequency[s : s + _FREQ_BLOCK]
-            arg = 2.0 * np.pi * np.outer(t, f)
-            B = np.empty((t.size, 2 * f.size))
-            B[:, 0::2], B[:, 1::2] = np.cos(arg), np.sin(arg)
-            W = C.solve(B).reshape(t.size, f.size, 2)
-            Bk = B.reshape(t.size, f.size, 2)
-            G = np.einsum("nfi,nfj->fij", Bk, W)
-            h = np.einsum("nfi,n->fi", W, r)
-            H = np.einsum("nfi,nk->fik", W, X)
-            HA = H @ A_inv
-            S = G - HA @ np.swapaxes(H, 1, 2)
-            u = h - HA @ b
-            det = S[:, 0, 0] * S[:, 1, 1] - S[:, 0, 1] * S[:, 1, 0]
-            with np.errstate(divide="ignore", invalid="ignore"):
-                q = (S[:, 1, 1] * u[:, 0] ** 2 - 2 * S[:, 0, 1] * u[:, 0] * u[:, 1]
-                     + S[:, 0, 0] * u[:, 1] ** 2) / det  # fmt: skip
-            out[s : s + f.size] = np.where(np.isfinite(q) & (det > 0), q, 0.0)
-        return np.clip(out / chi2_0, 0.0, 1.0)
+        return covariance_power(C.solve, model.design, model.t, np.asarray(resid, float),
+                                frequency)  # fmt: skip
 
     def conditional_mean(self, model, phys: dict, resid: np.ndarray,
                          t: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:  # fmt: skip

@@ -11,6 +11,15 @@ __all__ = ["render"]
 SUFFIX = ".md"
 
 
+#: how the summary describes each correlated noise model
+_NOISE_WORDS = {
+    "gp": "a correlated stellar-activity signal shared by the instruments, beside their "
+          "jitters",
+    "night": "each point's error and jitter, plus a shift shared by one instrument's points "
+             "of one night: night_<instrument>, in m/s",
+}
+
+
 def render(results) -> str:
     d = results.to_dict()
     s = d["sampler"]
@@ -87,8 +96,8 @@ def render(results) -> str:
         lines += ["Noise: white (each point's error and its instrument's jitter, independent).",
                   ""]  # fmt: skip
     else:
-        lines += [f"Noise: {noise['kind']} (a correlated stellar-activity signal shared by the "
-                  "instruments, beside their jitters).", "",
+        what = _NOISE_WORDS.get(noise["kind"], "a correlated signal beside the jitters")
+        lines += [f"Noise: {noise['kind']} ({what}).", "",
                   "| noise parameter | estimate |", "|---|---|"]  # fmt: skip
         lines += [f"| {k} | {text_estimate(v)} |" for k, v in noise.items() if k != "kind"]
         lines.append("")
