@@ -9,7 +9,8 @@ parameter          default prior
 =================  ==========================================================
 period P           log-uniform over the search range (1.2 d to the time span,
                    or what the user gave), widened to [0.8 P, 1.25 P] when
-                   the start period lies near or beyond an end
+                   the start period lies near or beyond an end, and to 10
+                   spans when the start period exceeds half the span
 tc                 uniform over one period centred on the start (one phase mode)
 e                  uniform on [0, 0.99]
 K                  uniform on [0, max(2 x peak-to-peak of the velocities with
@@ -56,11 +57,21 @@ def default_period_range(
     return lo, hi
 
 
+#: a companion whose start period exceeds half the span may not have closed its orbit:
+#: its period prior reaches this many spans (rvkep's rule: beyond it the orbit's arc
+#: is a trend, which the trend degrees describe)
+LONG_PERIOD_SPANS = 10.0
+
+
 def period_prior(
     data: RVData, period: float, period_range: tuple[float, float] | None = None
 ) -> LogUniform:
-    """Log-uniform over the search range, widened to hold [0.8 P, 1.25 P]."""
+    """Log-uniform over the search range, widened to hold [0.8 P, 1.25 P]; for a start
+    period beyond half the span, up to LONG_PERIOD_SPANS spans (an open orbit)."""
     lo, hi = period_range if period_range is not None else default_period_range(data)
+    span = baseline(data)
+    if span > 0 and period > 0.5 * span:
+        hi = max(hi, LONG_PERIOD_SPANS * span)
     return LogUniform(min(lo, 0.8 * period), max(hi, 1.25 * period))
 
 

@@ -753,6 +753,11 @@ def _build_results(data, chosen: ModelChoice, sampled, star, opts, seed: int, no
         trend_comparison=chosen.trend_rows, evidence=chosen.evidence,
     )  # fmt: skip
     results.notes.extend(notes)
+    from rvkep.constraint import prior_notes
+
+    for note in prior_notes(fit.model, posterior.columns):
+        _say(opts, f"note: {note}")
+        results.notes.append(note)
     if opts.quick:
         results.notes.append("quick mode: short chains for a preview, not for publication")
     return results

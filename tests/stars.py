@@ -69,3 +69,21 @@ def seven_night_hot_jupiter(seed: int = 2, night_sd: float = 2.0) -> RVData:
     err = np.full(t.size, 0.6)
     v = v + shift + wiggle + rng.normal(0.0, 0.6, t.size)
     return RVData(t, v, err, np.array(["heron"] * t.size))
+
+
+def brown_dwarf_open_orbit(seed: int = 7) -> RVData:
+    """A brown dwarf on an orbit longer than the data: P 11,600 d, e 0.72, omega 2.2
+    rad, K 590 m/s (m sin i about 46 M_Jup around a solar-mass star), 50 velocities
+    over 6,500 days from one spectrograph split at an upgrade into two zero points
+    ("eagle-1" before day 3,000, "eagle-2" after, offset 40 m/s), errors 5 m/s.
+
+    Truth: one companion with P far beyond the span. The default period prior ended at
+    1.07 x the span (7,014 d), so the run reported P = 5,800 d and hid the misfit in a
+    large jitter."""
+    rng = np.random.default_rng(seed)
+    t = np.sort(2459000.0 + rng.uniform(0, 6500, 50))
+    v = radial_velocity(t, 11600.0, 2461500.0, 0.72, 2.2, 590.0)
+    late = t - t.min() > 3000
+    v = v + np.where(late, 40.0, 0.0) + rng.normal(0, 5.0, t.size)
+    inst = np.where(late, "eagle-2", "eagle-1")
+    return RVData(t, v, np.full(t.size, 5.0), inst)
