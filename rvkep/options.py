@@ -569,12 +569,22 @@ class Parser(argparse.ArgumentParser):
 
     def unknown(self, extras: list[str]) -> str:
         """The message for arguments this parser does not take."""
-        flags = [s for a in self._actions for s in a.option_strings if s.startswith("--")]
+        flags = [s for a in self._actions for s in a.option_strings
+                 if s.startswith("--") and s != "--help"]  # fmt: skip
         first = extras[0]
         if first.startswith("-"):
-            close = difflib.get_close_matches(first.split("=")[0], flags, n=1, cutoff=0.6)
-            hint = f"; did you mean {close[0]}?" if close else ""
-            return f"unknown option {first}{hint}"
+            flag = first.split("=")[0]
+            command = self.prog.split()[-1]
+            elsewhere = sorted({c for o in OPTIONS if o.spelled == flag for c in o.commands
+                                if c != command})  # fmt: skip
+            if elsewhere:
+                verb = "takes" if len(elsewhere) == 1 else "take"
+                return (f"unknown option {first}: rvkep {command} has no {flag} (rvkep "
+                        f"{', rvkep '.join(elsewhere)} {verb} it)")  # fmt: skip
+            close = difflib.get_close_matches(flag, flags, n=1, cutoff=0.75)
+            if close:
+                return f"unknown option {first}; did you mean {close[0]}?"
+            return f"unknown option {first}"
         return f"unexpected argument {first!r}"
 
 

@@ -64,6 +64,9 @@ def test_help_of_every_subcommand_shows_defaults_and_no_doubled_percent(capsys):
      "rvkep analyze: error: unknown option --star-mas; did you mean --star-mass?"),
     (["periodogram", "x.txt", "--max-signal", "1"],
      "rvkep periodogram: error: unknown option --max-signal; did you mean --max-signals?"),
+    (["demo", "--model", "m.toml"],
+     "rvkep demo: error: unknown option --model: rvkep demo has no --model (rvkep analyze "
+     "takes it)"),
     (["analyze", "x.txt", "--seed", "-1"],
      "rvkep analyze: error: --seed must be from 0 to 4294967295, got -1"),
     (["analyze", "x.txt", "--seed", "1e20"],
