@@ -5,7 +5,8 @@ The main steps are importable from here; each is loaded on first use, so that
 
 >>> import rvkep
 >>> sorted(set(rvkep.__all__) - {"__version__"})  # doctest: +NORMALIZE_WHITESPACE
-['Results', 'StarProperties', 'analyze', 'fit', 'load_rv', 'predict', 'sample', 'search']
+['Results', 'StarProperties', 'analyze', 'demo_files', 'fit', 'load_rv', 'predict', 'sample',
+ 'search']
 
 A notebook chains them: ``rvkep.search(data).best_fit.sample(seed=1)`` gives a
 :class:`~rvkep.sampling.SamplingResult`, ``.posterior()`` its samples, and
@@ -17,7 +18,7 @@ from __future__ import annotations
 __version__ = "0.1.0"
 __all__ = [
     "__version__", "load_rv", "search", "fit", "sample", "analyze", "Results", "predict",
-    "StarProperties",
+    "StarProperties", "demo_files",
 ]  # fmt: skip
 
 # name -> (module, attribute)
@@ -30,6 +31,7 @@ _LAZY = {
     "Results": ("rvkep.results", "Results"),
     "predict": ("rvkep.predict", "predict"),
     "StarProperties": ("rvkep.physics", "StarProperties"),
+    "demo_files": ("rvkep.cli", "demo_files"),
 }
 
 
@@ -46,4 +48,8 @@ def __getattr__(name: str):
 
 
 def __dir__() -> list[str]:
-    return sorted(set(globals()) | set(_LAZY))
+    # the public names only (not the submodules loaded so far, nor this file's imports)
+    return sorted(__all__)
+
+
+del annotations  # the __future__ import's name is not part of the package

@@ -219,6 +219,7 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
 
             opts = AnalyzeOptions(
                 **target.options, out=str(folder), seed=_target_seed(seed, target.name),
+                star_name=target.name,
                 quiet=False, quick=quick,
                 command=f"rvkep batch: target {target.name} (line {target.line} of the list)",
             )  # fmt: skip

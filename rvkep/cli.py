@@ -19,7 +19,7 @@ from collections.abc import Sequence
 from rvkep import __version__, options
 from rvkep.errors import RvkepError
 
-__all__ = ["main", "build_parser", "BATCH_FAILED_EXIT", "demo_folder"]
+__all__ = ["main", "build_parser", "BATCH_FAILED_EXIT", "demo_folder", "demo_files"]
 
 #: Exit status of ``rvkep batch`` when one or more targets failed (the others ran and
 #: the summary was written). 2 stays "a usage or input error", 130 "interrupted".
@@ -172,11 +172,12 @@ def _run_demo(args: argparse.Namespace) -> int:
     folder = demo_folder()
     if not (folder / "truth.json").exists():
         raise DataError(f"{folder}: demo data missing from this installation of rvkep")
-    files = [str(folder / "kestrel.txt"), str(folder / "osprey.csv")]
+    files = demo_files()
+    truth = json.loads((folder / "truth.json").read_text())
     if args.star_mass is None:
-        truth = json.loads((folder / "truth.json").read_text())
         args.star_mass = truth["star"]["mass_msun"]
         args.star_mass_err = truth["star"]["mass_err_msun"]
+    args.star_name = args.star_name or truth["star"].get("name", "Veyla")
     if not args.quiet:
         print(
             "demo: the invented star Veyla, seen by two invented spectrographs "
@@ -193,6 +194,13 @@ def demo_folder():
     from pathlib import Path
 
     return Path(__file__).resolve().parent / "demo_data"
+
+
+def demo_files() -> list[str]:
+    """The bundled demo star's two velocity files (kestrel.txt, osprey.csv), as paths
+    that exist in any installation: ``rvkep.analyze(rvkep.demo_files(), ...)``."""
+    folder = demo_folder()
+    return [str(folder / "kestrel.txt"), str(folder / "osprey.csv")]
 
 
 def _demo_star_text() -> str:

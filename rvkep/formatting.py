@@ -13,11 +13,22 @@ __all__ = [
     "text_value",
     "text_estimate",
     "SMALL",
+    "p_text",
 ]
 
 #: Values smaller than this (in magnitude, not zero) are written as a mantissa times a
 #: power of ten in tables and reports, not as 0.000000000259.
 SMALL = 1e-3
+
+
+#: p-values below this are written "< 1e-06": smaller ones differ between machines in
+#: the last bits of a tail integral and decide nothing more
+P_FLOOR = 1e-6
+
+
+def p_text(p: float) -> str:
+    """A p-value for text: three significant digits, or "< 1e-06"."""
+    return f"< {P_FLOOR:.0e}" if p < P_FLOOR else f"{p:.3g}"
 
 
 def _sig_round(x: float, sig: int = 2) -> int:

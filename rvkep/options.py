@@ -170,6 +170,9 @@ OPTIONS: tuple[Option, ...] = (
            low=100, high=1e6, column=True, model_key="[star] teff"),  # fmt: skip
     Option("star_teff_err", "float", 0.0, "1-sigma error of the effective temperature",
            metavar="S", unit="K", low=0, column=True),  # fmt: skip
+    Option("star_name", "text", None, "the star's name (titles the summary and the report)",
+           metavar="NAME", model_key="[star] name",
+           shown_default="the model file's [star] name, else the first data file's name"),
     # --- the data
     Option("kms", "flag", False, "velocities and errors are in km/s",
            commands=frozenset({"analyze", "sample", "check", "periodogram"}),

@@ -77,6 +77,14 @@ def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
     return binned, note
 
 
+def _p_shown(p: float) -> str:
+    """'= 0.0191' or '< 1e-06' (rvkep.formatting.p_text)."""
+    from rvkep.formatting import p_text
+
+    text = p_text(p)
+    return text if text.startswith("<") else f"= {text}"
+
+
 def _say(opts: AnalyzeOptions, text: str) -> None:
     if not opts.quiet:
         print(text, flush=True)
@@ -371,9 +379,10 @@ def analyze(files=None, opts: AnalyzeOptions | None = None, **keywords):
     if opts.timings:
         print("timings: " + ", ".join(f"{k.replace('_', ' ')} {v:.2f} s"
                                       for k, v in results.timings.items()), flush=True)  # fmt: skip
+    figures = "" if figure_set(opts.figures) == "none" else ", figures"
     _say(opts, f"done in {time.perf_counter() - t_start:.1f} s; results in {out}/ "
                f"({paths['report'].name}, {paths['json'].name}, {paths['summary'].name}, "
-               f"{paths['latex'].name}, figures)")  # fmt: skip
+               f"{paths['latex'].name}{figures}); kind of run: {results.run_label()}")  # fmt: skip
     return results
 
 
@@ -418,8 +427,19 @@ def _run_in_folder(files, opts, spec, data, data_notes, star, out: Path, timings
         timings.update(sampling=t1 - t0, derived=t2 - t1, eccentricity=t3 - t2)
         results.timings = timings
         results.provenance = provenance(files or (spec.files if spec else []), opts, seed)
+        results.star_name = star_name(files or (spec.files if spec else []), opts, spec)
         paths = write_outputs(results, out, opts)
     return results, paths
+
+
+def star_name(files, opts: AnalyzeOptions, spec=None) -> str:
+    """The star's name: ``--star-name``, else the model file's ``[star] name``, else the
+    first data file's name without its suffix."""
+    if opts.star_name:
+        return opts.star_name
+    if spec is not None and getattr(spec, "star_name", ""):
+        return spec.star_name
+    return Path(files[0]).stem if files else "rvkep run"
 
 
 def provenance(files, opts: AnalyzeOptions, seed: int) -> dict:
@@ -640,8 +660,8 @@ def test_eccentricities(results, chosen: ModelChoice, opts: AnalyzeOptions, spec
     results.ecc_tests = tests
     for L, t in tests.items():
         verdict = "consistent with circular" if t["consistent_with_circular"] else "eccentric"
-        _say(opts, f"eccentricity of {L}: {verdict} (Lucy & Sweeney p = "
-                   f"{t['lucy_sweeney_p']:.3g}; BIC circular - eccentric = "
+        _say(opts, f"eccentricity of {L}: {verdict} (Lucy & Sweeney p "
+                   f"{_p_shown(t['lucy_sweeney_p'])}; BIC circular - eccentric = "
                    f"{t['delta_bic_circular_minus_eccentric']:.1f})")  # fmt: skip
     circular = sorted(L for L, t in tests.items() if t["consistent_with_circular"])
     if opts.circular != "auto" or not circular:

@@ -54,6 +54,7 @@ class Results:
     timings: dict = field(default_factory=dict)  # stage: seconds (analyze fills it)
     saved: dict | None = None  # results.json of a run read back by Results.load
     provenance: dict = field(default_factory=dict)  # command, seed, input checksums
+    star_name: str | None = None  # titles the summary and the report
 
     # -- building -------------------------------------------------------------
 
@@ -187,6 +188,7 @@ class Results:
             comparison=saved.get("model_comparison", []),
             trend_comparison=saved.get("trend_comparison", []), quick=bool(kind["quick"]),
             seed=saved.get("seed"), notes=list(saved.get("notes", [])), saved=saved,
+            star_name=s.get("name"),
         )  # fmt: skip
 
     def predict(
@@ -409,6 +411,7 @@ class Results:
             **({"provenance": self.provenance} if self.provenance else {}),
             "sampler": sampler,
             "star": {
+                **({"name": self.star_name} if self.star_name else {}),
                 "mass_msun": star.mass,
                 "mass_err_msun": star.mass_err,
                 "radius_rsun": star.radius,

@@ -35,3 +35,34 @@ def test_readme_example_output_is_current(command, expected, tmp_path, monkeypat
 
 def test_the_readme_has_examples_to_check():
     assert {c.split()[1] for c, _ in examples()} == {"check", "periodogram"}
+
+
+NUMBER = re.compile(r"[-+]?\d+(?:\.\d+)?(?:e[-+]?\d+)?")
+
+
+def _demo_block() -> list[str]:
+    text = (ROOT / "README.md").read_text()
+    block = re.search(r"```\n\$ rvkep demo\n(.*?)```", text, re.S).group(1)
+    return block.strip("\n").split("\n")
+
+
+@pytest.mark.integration
+def test_readme_demo_output_is_what_the_demo_prints(tmp_path, monkeypatch, capsys):
+    """The README's demo block against a run of ``rvkep demo``: every line's words
+    equal, and every number within 2% (the chain's last digits may differ between
+    machines; the elapsed time and the truth file's path are the machine's)."""
+    monkeypatch.chdir(tmp_path)
+    assert main(["demo"]) == 0
+    printed = capsys.readouterr().out.strip("\n").split("\n")
+    expected = _demo_block()
+    assert len(printed) == len(expected), printed
+    for got, want in zip(printed, expected, strict=True):
+        if want.startswith("demo: ") or want.startswith("done in "):
+            got, want = re.sub(r"truth in .*$|done in [\d.]+ s", "", got), re.sub(
+                r"truth in .*$|done in [\d.]+ s", "", want)
+        if want.rstrip().endswith("..."):  # a line the README shortens
+            want = want.rstrip(". ")
+            got = got[: len(want)]
+        assert NUMBER.sub("#", got) == NUMBER.sub("#", want), (got, want)
+        for a, b in zip(NUMBER.findall(got), NUMBER.findall(want), strict=True):
+            assert float(a) == pytest.approx(float(b), rel=0.02, abs=0.011), (got, want)

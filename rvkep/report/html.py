@@ -56,11 +56,33 @@ def environment():
         from rvkep.errors import OptionError
 
         raise OptionError("the HTML report needs jinja2: pip install jinja2") from None
-    return jinja2.Environment(
+    env = jinja2.Environment(
         loader=jinja2.PackageLoader("rvkep.report", "templates"),
         autoescape=jinja2.select_autoescape(["html", "j2"]),
         trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True,
     )  # fmt: skip
+    env.filters["shown"] = shown_value
+    return env
+
+
+#: how the sampler table names emcee's moves
+_MOVES = {"de": "differential evolution (emcee DEMove, 80%) with snooker (20%)",
+          "stretch": "affine-invariant stretch (emcee StretchMove)",
+          "de+stretch": "differential evolution (80%) with stretch (20%)"}  # fmt: skip
+
+
+def shown_value(value, key: str = "") -> str:
+    """A results.json value as a reader reads it: yes/no for a switch, a list joined
+    (or "none"), numbers to 4 digits, emcee's moves named."""
+    if isinstance(value, bool):
+        return "yes" if value else "no"
+    if isinstance(value, (list, tuple)):
+        return ", ".join(map(str, value)) or "none"
+    if isinstance(value, float):
+        return f"{value:.4g}"
+    if key == "moves":
+        return _MOVES.get(str(value), str(value))
+    return str(value)
 
 
 def figure_files(results, folder: Path) -> list[tuple[str, Path]]:
@@ -131,9 +153,11 @@ def _context(results, folder: Path | None, name: str | None) -> dict:
 
 def render(results, folder: str | Path | None = None, name: str | None = None) -> str:
     """The report of ``results`` as one HTML page; the figures are those found in
-    ``folder`` (none without it); ``name`` titles the page (default: the folder's
-    name)."""
+    ``folder`` (none without it); ``name`` titles the page (default: the star's name,
+    else the folder's)."""
     folder = Path(folder) if folder is not None else None
+    if name is None:
+        name = results.star_name or results.to_dict()["star"].get("name")
     if name is None and folder is not None:
         name = folder.resolve().name
     return environment().get_template("report.html.j2").render(**_context(results, folder, name))

@@ -3,7 +3,7 @@ search, companion-number and trend comparisons, sampler and priors."""
 
 from __future__ import annotations
 
-from rvkep.formatting import text_estimate
+from rvkep.formatting import p_text, text_estimate
 from rvkep.report.rows import TEQ_ASSUMPTIONS
 
 __all__ = ["render"]
@@ -23,7 +23,9 @@ _NOISE_WORDS = {
 def render(results) -> str:
     d = results.to_dict()
     s = d["sampler"]
-    lines = [f"# rvkep results: {d['n_planets']} companion(s)", ""]
+    name = results.star_name or d["star"].get("name")
+    lines = [f"# rvkep results{f' for {name}' if name else ''}: {d['n_planets']} companion(s)", "",
+             f"Kind of run: **{results.run_label()}**.", ""]
     if results.quick:
         lines += ["**Quick mode: short chains for a preview; not for publication.**", ""]
     if not s["converged"]:
@@ -31,9 +33,11 @@ def render(results) -> str:
             "**WARNING: the chain did not converge; the numbers below are preliminary.**",
             "",
         ]
-    for note in results.notes:
+    # the quick-mode note is the bold line above: said once
+    notes = [n for n in results.notes if not n.startswith("quick mode:")]
+    for note in notes:
         lines.append(f"*Note: {note.rstrip('.')}.*")
-    if results.notes:
+    if notes:
         lines.append("")
     star = d["star"]
     lines.append(f"Star mass {star['mass_msun']:g} +- {star['mass_err_msun']:g} M_sun"
@@ -56,8 +60,10 @@ def render(results) -> str:
             verdict = ("refitted circular (consistent with circular)" if t.get("refitted_circular")
                        else "consistent with circular" if t["consistent_with_circular"]
                        else "eccentric")  # fmt: skip
-            lines.append(f"Eccentricity of {p['label']}: {verdict} (Lucy & Sweeney 1971 p = "
-                         f"{t['lucy_sweeney_p']:.3g}; BIC circular - eccentric = "
+            p_value = p_text(t["lucy_sweeney_p"])
+            p_value = p_value if p_value.startswith("<") else f"= {p_value}"
+            lines.append(f"Eccentricity of {p['label']}: {verdict} (Lucy & Sweeney 1971 p "
+                         f"{p_value}; BIC circular - eccentric = "
                          f"{t['delta_bic_circular_minus_eccentric']:.1f}).")  # fmt: skip
         if any("ecc_test" in p for p in d["planets"]):
             lines.append("")
