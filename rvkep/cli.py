@@ -581,12 +581,12 @@ def _run_report(args: argparse.Namespace) -> int:
     res = Results.load(args.run_dir)
     path = res.write_report(args.run_dir)
     if not args.quiet:
-        print(f"report: {path}")
+        print(f"page: {path}")
     return 0
 
 
 def _add_report(sub) -> argparse.ArgumentParser:
-    p = _subcommand(sub, "report", "write report.html for a finished run (one self-contained page)",
+    p = _subcommand(sub, "page", "write report.html for a finished run (one self-contained page)",
                     "Read a finished run and write RUN_DIR/report.html: the verdict, the "
                     "warnings, the figures found in the folder (embedded), the parameter table, "
                     "instruments, comparisons, search, sampler, priors, detection limits and "

@@ -41,7 +41,8 @@ It is data, read with :mod:`tomllib`, never executed. Every key is optional exce
 A parameter is a number (a start value with the default prior) or a table with
 ``start`` and a prior: ``prior`` is one of ``uniform`` / ``loguniform`` (``min``,
 ``max``), ``normal`` (``mean``, ``sd``), ``truncnormal`` (``mean``, ``sd``, optional
-``min``, ``max``), ``beta`` (``a``, ``b``) or ``fixed`` (``value``). Times are in the
+``min``, ``max``) or ``beta`` (``a``, ``b``); ``{ hold = 2.0 }`` holds a parameter at a
+value (a plain number stays a start value). Times are in the
 data's time system. ``[noise]`` names the noise model (``kind``: ``white``, ``gp`` or ``night``,
 see :mod:`rvkep.noise`) and takes that model's own parameters with the same syntax.
 Errors name the file, the key and the problem.
@@ -207,8 +208,11 @@ def _parameter(value, where) -> tuple[Prior | None, float | None]:
         if start is not None:
             start = _number(start, f"{where}.start")
         prior = None
+        if spec.get("prior") == "fixed":
+            raise ModelFileError(f"{where}: a held value is written {{ hold = "
+                                 f"{spec.get('value', 'X')} }}")  # fmt: skip
         if spec:
-            if "prior" not in spec:
+            if "prior" not in spec and "hold" not in spec:
                 raise ModelFileError(f"{where}: keys {', '.join(spec)} need a 'prior' name")
             try:
                 prior = prior_from_dict(spec, where)

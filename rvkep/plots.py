@@ -1,7 +1,7 @@
 """Figures. Each function returns a matplotlib Figure and can draw into a given one.
 
 They share rvkep's look (:mod:`rvkep.style`): each companion keeps its colour and each
-instrument its marker and ink in every figure; residual panels ("left over") sit over a
+instrument its marker and ink in every figure; residual panels (O-C) sit over a
 band of +-1 median error; binned phase points are bars with error strokes in the
 companion's colour. Axes carry units. matplotlib is imported inside the functions so
 the rest of rvkep starts fast.
@@ -160,7 +160,7 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
                     activity=None, removed: str = ""):  # fmt: skip
     """Velocities per instrument with the model and its posterior band; below, the
     band's width over time (the model's spread: where the orbit is least pinned down),
-    and what is left over.
+    and the residuals (O-C).
 
     Parameters
     ----------
@@ -236,7 +236,7 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
 def plot_phase(data, phase, velocity, curve_phase, curve, label, period, band=None,
                n_bins: int = 12, fig=None, ax=None, colour: str | None = None):  # fmt: skip
     """One companion's phase-folded curve, the other signals and offsets removed, and
-    (on a figure of its own) what is left over below it.
+    (on a figure of its own) the residuals (O-C) below it.
 
     ``phase`` (in [0, 1), 0 at conjunction) and ``velocity`` are the points;
     ``curve_phase``/``curve`` the model; binned weighted means are drawn over the
@@ -358,7 +358,7 @@ def _removed(results) -> str:
 
 def timeseries_figure(results, fig=None):
     """The time series of a :class:`rvkep.results.Results`: data, model, 68% band, the
-    band's width and what is left over (:func:`rvkep.curves.timeseries_curves`,
+    band's width and the residuals (O-C) (:func:`rvkep.curves.timeseries_curves`,
     :func:`plot_timeseries`); a fitted trend is removed from the points and said."""
     from rvkep.curves import timeseries_curves
 

@@ -289,7 +289,7 @@ class Fixed(Prior):
         return f"fixed at {self.value:.10g}"
 
     def to_dict(self):
-        return {"prior": "fixed", "value": self.value}
+        return {"hold": self.value}
 
 
 #: Kipping (2013) beta prior on the eccentricity of RV planets.
@@ -315,9 +315,18 @@ def prior_from_dict(spec: dict, where: str = "prior") -> Prior:
 
     Raises ValueError naming ``where`` and the problem.
     """
+    if "hold" in spec and "prior" not in spec:  # a held (fixed) value: { hold = 2.0 }
+        if set(spec) != {"hold"}:
+            extra = sorted(set(spec) - {"hold"})[0]
+            raise ValueError(f"{where}: unknown key {extra!r} beside 'hold'")
+        value = spec["hold"]
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            raise ValueError(f"{where}: hold must be a number, got {value!r}")
+        return Fixed(float(value))
     kind = spec.get("prior")
     if kind not in PRIOR_KINDS:
-        raise ValueError(f"{where}: unknown prior {kind!r} (choose from {', '.join(PRIOR_KINDS)})")
+        names = ", ".join(k for k in PRIOR_KINDS if k != "fixed")  # held values: { hold = x }
+        raise ValueError(f"{where}: unknown prior {kind!r} (choose from {names})")
     cls, required, mapping = PRIOR_KINDS[kind]
     unknown = sorted(set(spec) - set(mapping) - {"prior"})
     if unknown:

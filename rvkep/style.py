@@ -5,7 +5,7 @@
 * Each instrument keeps one marker and one muted ink everywhere: :func:`instrument_style`.
 * Binned points on a phase plot are drawn as the companion's colour: a short bar at the
   bin's weighted mean with a thin vertical stroke for its error ("ticks"), not circles.
-* Residual panels are called "left over [m/s]", drawn over a band of +-1 median error
+* Residual panels are called "residuals O-C [m/s]", drawn over a band of +-1 median error
   so a reader sees at once whether the scatter is what the errors promise.
 * Figures: white ground, left and bottom spines only, a faint horizontal grid, the
   run's kind in the footer.
@@ -29,7 +29,7 @@ INSTRUMENT_INKS = ("#2e3b44", "#8a6d3b", "#4f7a8a", "#7a4f6d", "#5b6b2f", "#6b6b
 INSTRUMENT_MARKERS = ("o", "D", "s", "^", "v", "P", "X", "h")
 INK = "#22272b"  # text, total model curve
 BAND = "#1b7f79"  # the posterior band of the total curve (drawn translucent)
-RESIDUAL_LABEL = "left over [m/s]"
+RESIDUAL_LABEL = "residuals O-C [m/s]"
 VELOCITY_LABEL = "velocity [m/s]"
 
 _RC = {

@@ -143,7 +143,7 @@ def test_model_file_noise_table(tmp_path):
     spec = parse_model({"noise": {
         "kind": "gp",
         "rotation_period": {"start": 24, "prior": "normal", "mean": 24, "sd": 3},
-        "amplitude": {"prior": "fixed", "value": 2.5},
+        "amplitude": {"hold": 2.5},
         "evolution_time": 50,
     }}, "m.toml")  # fmt: skip
     model = spec.base_model(data)

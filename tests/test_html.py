@@ -114,11 +114,11 @@ def test_report_command_rewrites_the_page_of_a_finished_run(demo, tmp_path, caps
     copy = tmp_path / "copy"
     shutil.copytree(demo, copy)
     (copy / "report.html").unlink()
-    assert main(["report", str(copy)]) == 0
+    assert main(["page", str(copy)]) == 0
     assert (copy / "report.html").read_text() == (demo / "report.html").read_text().replace(
         "<title>veyla", "<title>copy"
     ).replace('<h1 id="title">veyla', '<h1 id="title">copy')
-    assert main(["report", str(tmp_path)]) == 2
+    assert main(["page", str(tmp_path)]) == 2
     assert "no results.json" in capsys.readouterr().err
 
 

@@ -69,7 +69,7 @@ BAD = [
     ),
     ("[companions.b]\nperiod = 3\nspin = 1", "companions.b: unknown key 'spin'"),
     (
-        "[companions.b]\nperiod = 3\necc = { prior = 'fixed', value = 0.2 }",
+        "[companions.b]\nperiod = 3\necc = { hold = 0.2 }",
         "can only be fixed at 0",
     ),
     (
@@ -95,3 +95,16 @@ def test_syntax_error_and_missing_file(tmp_path):
         read_model_file(p)
     with pytest.raises(ModelFileError, match="no such file"):
         read_model_file(tmp_path / "none.toml")
+
+
+def test_a_held_value_is_written_hold():
+    from rvkep.errors import ModelFileError
+    from rvkep.priors import Fixed
+
+    spec = parse_model({"companions": {"b": {"period": 10.0, "K": {"hold": 18.0}}}})
+    assert spec.companions[0].K == Fixed(18.0)
+    with pytest.raises(ModelFileError, match=r"a held value is written \{ hold = 18.0 \}"):
+        parse_model({"companions": {"b": {"period": 10.0,
+                                          "K": {"prior": "fixed", "value": 18.0}}}})  # fmt: skip
+    with pytest.raises(ModelFileError, match="unknown key 'value' beside 'hold'"):
+        parse_model({"companions": {"b": {"period": 10.0, "K": {"hold": 1.0, "value": 2}}}})

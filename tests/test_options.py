@@ -16,8 +16,9 @@ from rvkep.cli import build_parser, demo_folder, main
 
 DATA = [str(demo_folder() / "kestrel.txt"), str(demo_folder() / "osprey.csv")]
 
-#: the batch's own options, applied to every target (not columns of a target list)
-BATCH_WIDE = {"out", "seed", "quick", "quiet", "timings"}
+#: the batch's own options, applied to every target (not columns of a target list);
+#: star_name is the list's ``name`` column
+BATCH_WIDE = {"out", "seed", "quick", "quiet", "timings", "star_name"}
 
 
 def _flags(command: str) -> set[str]:

@@ -107,9 +107,9 @@ def test_fixed_K_and_fixed_jitters_run_to_the_end(tmp_path, capsys):
     model = tmp_path / "fixed.toml"
     model.write_text(
         f'[data]\nfiles = ["{DATA[0]}", "{DATA[1]}"]\n'
-        '[instruments.kestrel]\njitter = { prior = "fixed", value = 2.0 }\n'
-        '[instruments.osprey]\njitter = { prior = "fixed", value = 2.0 }\n'
-        '[companions.b]\nperiod = 11.87\nK = { prior = "fixed", value = 18.0 }\n'
+        '[instruments.kestrel]\njitter = { hold = 2.0 }\n'
+        '[instruments.osprey]\njitter = { hold = 2.0 }\n'
+        '[companions.b]\nperiod = 11.87\nK = { hold = 18.0 }\n'
     )
     out = tmp_path / "out"
     code = main(["sample", str(model), "--out", str(out), "--max-steps", "200", "--quiet"])
