@@ -458,6 +458,14 @@ class Results:
 
         return render(self, "markdown")
 
+    def to_inference_data(self):
+        """The run as an ArviZ ``InferenceData`` (posterior with chain and draw
+        dimensions, sample statistics, observed velocities and, for white noise, the
+        pointwise log-likelihood for ``arviz.loo``): :mod:`rvkep.inference_data`."""
+        from rvkep.inference_data import to_inference_data
+
+        return to_inference_data(self)
+
     def _repr_markdown_(self) -> str:
         return self.markdown()
 
