@@ -5,8 +5,8 @@ The main steps are importable from here; each is loaded on first use, so that
 
 >>> import rvkep
 >>> sorted(set(rvkep.__all__) - {"__version__"})  # doctest: +NORMALIZE_WHITESPACE
-['Results', 'StarProperties', 'analyze', 'demo_files', 'fit', 'load_rv', 'predict', 'sample',
- 'search']
+['Results', 'StarProperties', 'analyze', 'demo_files', 'fit', 'load_rv', 'population',
+ 'predict', 'sample', 'search']
 
 A notebook chains them: ``rvkep.search(data).best_fit.sample(seed=1)`` gives a
 :class:`~rvkep.sampling.SamplingResult`, ``.posterior()`` its samples, and
@@ -18,7 +18,7 @@ from __future__ import annotations
 __version__ = "0.1.0"
 __all__ = [
     "__version__", "load_rv", "search", "fit", "sample", "analyze", "Results", "predict",
-    "StarProperties", "demo_files",
+    "StarProperties", "demo_files", "population",
 ]  # fmt: skip
 
 # name -> (module, attribute)
@@ -32,6 +32,7 @@ _LAZY = {
     "predict": ("rvkep.predict", "predict"),
     "StarProperties": ("rvkep.physics", "StarProperties"),
     "demo_files": ("rvkep.cli", "demo_files"),
+    "population": ("rvkep.hierarchy", "run_population"),
 }
 
 

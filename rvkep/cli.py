@@ -597,10 +597,33 @@ def _add_report(sub) -> argparse.ArgumentParser:
     return p
 
 
+def _run_population(args: argparse.Namespace) -> int:
+    from rvkep.hierarchy import run_population
+
+    run_population(args.batch_dir, args.out, period_range=args.period_range,
+                   mass_range=args.mass_range, seed=args.seed,
+                   include_quick=args.include_quick, quiet=args.quiet)  # fmt: skip
+    return 0
+
+
+def _add_population(sub) -> argparse.ArgumentParser:
+    p = _subcommand(sub, "population", "from a batch's stars to a population: eccentricities "
+                    "and occurrence", "Read every finished target of a batch folder and infer "
+                    "the eccentricity distribution (importance reweighting of each star's "
+                    "samples with its prior divided out, Hogg, Myers & Bovy 2010: a Beta "
+                    "population and a histogram) and the fraction of stars with a companion "
+                    "in a period x m sin i box, each star's completeness from its rvkep "
+                    "limits output; write population.json, population.md and figures.",
+                    _run_population)  # fmt: skip
+    p.add_argument("batch_dir", metavar="BATCH_DIR")
+    options.add_arguments(p, "population")
+    return p
+
+
 # each entry adds one subcommand: add(subparsers) -> None, setting defaults(run=...)
 _SUBCOMMANDS: list = [
     _add_check, _add_periodogram, _add_analyze, _add_demo, _add_sample, _add_batch,
-    _add_predict, _add_events, _add_plan, _add_limits, _add_report,
+    _add_predict, _add_events, _add_plan, _add_limits, _add_report, _add_population,
 ]  # fmt: skip
 
 
@@ -617,7 +640,7 @@ _MACHINE_ERRORS = {
 #: be new (its parent existing), empty, or one rvkep wrote.
 _FILE_OPTIONS = {"predict": ("out",), "events": ("out",), "plan": ("out", "figure")}
 _FOLDER_OPTIONS = {"analyze": "out", "demo": "out", "sample": "out", "batch": "out",
-                   "limits": "out"}  # fmt: skip
+                   "limits": "out", "population": "out"}  # fmt: skip
 
 
 def _check_outputs(args: argparse.Namespace) -> None:

@@ -267,7 +267,7 @@ OPTIONS: tuple[Option, ...] = (
     Option("quick", "flag", False, "short chains for a preview or tests (flagged in every "
            "output)", commands=ANALYSIS | {"batch"}),  # fmt: skip
     Option("quiet", "flag", False, "no progress bar or messages",
-           commands=ANALYSIS | {"batch", "limits", "page"}),  # fmt: skip
+           commands=ANALYSIS | {"batch", "limits", "page", "population"}),  # fmt: skip
     Option("timings", "flag", False, "print the seconds each stage took (always in "
            "results.json)", commands=ANALYSIS),  # fmt: skip
     # --- periodogram
@@ -360,6 +360,19 @@ OPTIONS: tuple[Option, ...] = (
            commands=frozenset({"limits"})),  # fmt: skip
     Option("out", "path", None, "output folder", metavar="DIR",
            shown_default="the run's folder", commands=frozenset({"limits"})),  # fmt: skip
+    # --- population
+    Option("out", "path", None, "output folder", metavar="DIR", required=True,
+           commands=frozenset({"population"})),  # fmt: skip
+    Option("period_range", "range", None, "the occurrence box's periods", metavar="LO,HI",
+           unit="days", low=1e-3, high=1e7, shown_default="1,1000",
+           commands=frozenset({"population"})),  # fmt: skip
+    Option("mass_range", "range", None, "the occurrence box's m sin i", metavar="LO,HI",
+           unit="Jupiter masses", low=1e-6, high=1e4, shown_default="0.1,13",
+           commands=frozenset({"population"})),  # fmt: skip
+    Option("seed", "int", 0, "seed of the population samplers", low=0, high=MAX_SEED,
+           commands=frozenset({"population"})),  # fmt: skip
+    Option("include_quick", "flag", False, "use quick and unconverged runs too (skipped by "
+           "default, and listed)", commands=frozenset({"population"})),  # fmt: skip
 )
 
 
@@ -483,7 +496,7 @@ def from_text(opt: Option, text: str, where: str | None = None):
             kind = "a whole number" if k == "int" else "a number"
             raise OptionError(f"{where} must be {kind}, got {text[:40]!r}") from None
     elif k == "range":
-        parts = s.split(":")
+        parts = s.replace(",", ":").split(":")
         try:
             value = tuple(float(x) for x in parts)
             if len(value) != 2:
