@@ -71,7 +71,8 @@ else:  # pragma: no cover
 __all__ = ["ModelSpec", "CompanionSpec", "read_model_file", "parse_model"]
 
 _TOP = {"star", "data", "trend", "instruments", "companions", "noise", "sampling"}
-_STAR = {"name", "mass", "mass_err", "radius", "radius_err", "teff", "teff_err"}
+_STAR = {"name", "mass", "mass_err", "radius", "radius_err", "teff", "teff_err", "rotation",
+         "rotation_err"}
 _DATA = {"files", "kms", "decorrelate"}
 _TREND = {"degree"}
 _INSTRUMENT = {"jitter"}
@@ -120,6 +121,7 @@ class ModelSpec:
     companions: list[CompanionSpec] = field(default_factory=list)
     sampling: dict = field(default_factory=dict)
     noise: str | None = None  # None: not given (white unless the command line says)
+    star_rotation: tuple | None = None  # (period, error or None) from [star] rotation
     decorrelate: tuple[str, ...] = ()  # indicator columns (the command line's add to them)
     noise_parameters: dict[str, tuple] = field(default_factory=dict)  # name: (prior, start)
 
@@ -260,8 +262,11 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
     if star:
         if "mass" not in star:
             raise ModelFileError(f"{_where(path, 'star')}: needs 'mass' (solar masses)")
-        vals = {k: _number(v, _where(path, "star", k), positive=k in ("mass", "radius", "teff"))
+        vals = {k: _number(v, _where(path, "star", k),
+                           positive=k in ("mass", "radius", "teff", "rotation", "rotation_err"))
                 for k, v in star.items() if k != "name"}  # fmt: skip
+        if "rotation" in vals:
+            spec.star_rotation = (vals["rotation"], vals.get("rotation_err"))
         for k, v in vals.items():
             if k.endswith("_err") and v < 0:
                 raise ModelFileError(f"{_where(path, 'star', k)}: must not be negative, got {v:g}")

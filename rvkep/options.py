@@ -170,6 +170,13 @@ OPTIONS: tuple[Option, ...] = (
            low=100, high=1e6, column=True, model_key="[star] teff"),  # fmt: skip
     Option("star_teff_err", "float", 0.0, "1-sigma error of the effective temperature",
            metavar="S", unit="K", low=0, column=True),  # fmt: skip
+    Option("star_rotation", "float", None, "the star's rotation period, as photometry gives "
+           "it: a normal prior on the GP's rotation period (--noise gp), and companions near "
+           "it or its half are named as possible activity", metavar="D", unit="days",
+           low=0.05, high=1e4, column=True, model_key="[star] rotation"),  # fmt: skip
+    Option("star_rotation_err", "float", None, "its 1-sigma error", metavar="S", unit="days",
+           low=0, open_low=True, high=1e4, column=True, shown_default="10% of the period",
+           model_key="[star] rotation_err"),  # fmt: skip
     Option("star_name", "text", None, "the star's name (titles the summary and the report)",
            metavar="NAME", model_key="[star] name",
            shown_default="the model file's [star] name, else the first data file's name"),
@@ -545,7 +552,7 @@ def check(values: dict, command: str) -> dict:
 
 def _check_rules(v: dict) -> None:
     """The rules between options (only those a command has are looked at)."""
-    for what in ("mass", "radius", "teff"):
+    for what in ("mass", "radius", "teff", "rotation"):
         if v.get(f"star_{what}_err") and v.get(f"star_{what}") is None:
             raise OptionError(f"--star-{what}-err needs --star-{what}")
     mass, err = v.get("star_mass"), v.get("star_mass_err")

@@ -269,6 +269,21 @@ def _selection_notes(search_result, fit, comparison) -> list[str]:
     return notes
 
 
+def _rotation_notes(fit, rotation: float) -> list[str]:
+    """Notes on companions whose period lies within 10% of the star's rotation period
+    or its half (where spots put their signal)."""
+    notes = []
+    for c in fit.model.companions:
+        P = fit.params[f"{c.label}.period"]
+        for share, what in ((1.0, "rotation period"), (0.5, "half rotation period")):
+            if abs(P / (share * rotation) - 1.0) < 0.1:
+                remedy = ("" if fit.model.noise == "gp" else
+                          "; --noise gp models the activity")  # fmt: skip
+                notes.append(f"the period of {c.label} ({P:.4g} d) lies near the star's {what} "
+                             f"({share * rotation:.4g} d): it may be activity{remedy}")  # fmt: skip
+    return notes
+
+
 def _near_rotation(fit, periods) -> str:
     """', and its period X d lies near the activity's rotation period' when a noise
     model with a rotation period has one within 10% of a period (or of half of it)."""
@@ -391,6 +406,34 @@ analyze.__signature__ = options.signature("analyze", [
     inspect.Parameter("files", inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None),
     inspect.Parameter("opts", inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None),
 ])  # fmt: skip
+
+
+def star_rotation(opts: AnalyzeOptions, spec=None) -> tuple[float, float] | None:
+    """(period, sd) of the star's rotation: ``--star-rotation`` (with its error, default
+    10% of it) over the model file's ``[star] rotation``; None when neither gives it."""
+    period, err = opts.star_rotation, opts.star_rotation_err
+    if period is None and spec is not None and spec.star_rotation is not None:
+        period, err = spec.star_rotation
+    if period is None:
+        return None
+    return float(period), float(err) if err else 0.1 * float(period)
+
+
+def _rotation_prior(base, rotation: tuple[float, float], opts: AnalyzeOptions):
+    """The GP's rotation period with a normal prior at the given rotation (truncated
+    at 5 sd, and above 0.05 d), starting there; other noise models unchanged."""
+    from rvkep.priors import TruncatedNormal
+
+    P, sd = rotation
+    pars = list(base.noise_parameters)
+    names = [p.name for p in pars]
+    if "rotation_period" not in names:
+        return base
+    k = names.index("rotation_period")
+    prior = TruncatedNormal(P, sd, max(0.05, P - 5 * sd), P + 5 * sd)
+    pars[k] = replace(pars[k], prior=prior, start=P)
+    _say(opts, f"rotation period: normal prior {P:g} +- {sd:g} d on the activity signal")
+    return replace(base, noise_parameters=pars)
 
 
 def check_against_model_file(opts: AnalyzeOptions, spec) -> None:
@@ -550,6 +593,9 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
     if columns:
         n_terms = len(base.linear_names) - len(base.instruments) - base.trend
         _say(opts, f"decorrelating against {', '.join(columns)} ({n_terms} coefficient(s))")
+    rotation = star_rotation(opts, spec)
+    if rotation is not None:
+        base = _rotation_prior(base, rotation, opts)
     base = base.noise_model.initial(base)  # start values of its own parameters
     if base.noise_parameters:
         _say(
@@ -581,6 +627,8 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
         choice.timings["evidence"] = time.perf_counter() - t1
     choice.notes = choice.extra_notes + _selection_notes(search_result, choice.fit,
                                                          choice.comparison)  # fmt: skip
+    if rotation is not None:
+        choice.notes += _rotation_notes(choice.fit, rotation[0])
     for note in choice.notes:
         _say(opts, f"note: {note}")
     return choice

@@ -95,3 +95,23 @@ def test_pure_white_noise_with_the_gp_gives_no_companion_and_no_activity(tmp_pat
     # consistent with zero: the posterior reaches down to (near) zero, and its upper
     # end stays below the typical measurement error
     assert np.percentile(amp, 2.5) < 0.2 and np.percentile(amp, 97.5) < 1.6
+
+
+def test_a_given_rotation_sets_the_gp_prior_and_names_companions_near_it(active):
+    folder, files, truth = active
+    rot = truth["activity"]["rotation_period_d"]
+    res = analyze(files, noise="gp", quick=True, quiet=True, trend=0, star_mass=0.81,
+                  star_mass_err=0.03, out=str(folder / "rot"), seed=3, star_rotation=25.0,
+                  star_rotation_err=1.0)  # fmt: skip
+    d = json.loads((folder / "rot" / "results.json").read_text())
+    prior = next(p["prior"] for p in d["priors"] if p["parameter"].startswith("noise.rotation"))
+    assert prior == "normal(25, 1) truncated to [20, 30]", prior
+    est = d["noise"]["rotation_period"]
+    assert abs(est["median"] - rot) / rot < 0.15  # within 15% of the truth
+    assert len(res.labels) == 1
+    # with white noise, the companion the activity makes is named as possible activity
+    analyze(files, noise="white", quick=True, quiet=True, trend=0, star_mass=0.81,
+            star_mass_err=0.03, out=str(folder / "rot-white"), seed=3,
+            star_rotation=25.0)  # fmt: skip
+    notes = json.loads((folder / "rot-white" / "results.json").read_text())["notes"]
+    assert any("lies near the star's" in n and "--noise gp" in n for n in notes), notes
