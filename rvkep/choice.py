@@ -30,7 +30,8 @@ from dataclasses import replace
 import numpy as np
 
 __all__ = ["BIC_THRESHOLD", "LNL_CLOSE", "nested_refits", "occam_choice", "harmonic_check",
-           "alternatives", "periods_of", "HARMONICS"]  # fmt: skip
+           "alternatives", "periods_of", "HARMONICS", "instrument_support",
+           "support_check"]  # fmt: skip
 
 BIC_THRESHOLD = 10.0
 #: alternatives within this in ln L at equal parameter count are named
@@ -178,3 +179,75 @@ def alternatives(candidates: list, chosen) -> list[str]:
                      f"(BIC {'+' if dbic >= 0 else ''}{dbic:.1f}, ln L "
                      f"{'+' if dlnl >= 0 else ''}{dlnl:.1f})")  # fmt: skip
     return notes
+
+
+#: a companion is "seen by one instrument only" when the semi-amplitudes fitted per
+#: instrument disagree beyond this p-value (3 sigma) and only one finds it at 3 sigma
+SUPPORT_P = 0.0027
+
+
+def instrument_support(fit, label: str) -> dict:
+    """Companion ``label``'s semi-amplitude fitted per instrument with every other
+    element fixed at the fit (its offset re-solved): ``K`` and ``sd`` per instrument
+    (weights 1 / (err^2 + jitter^2), diagonal), the joint K, and the chi-square of the
+    per-instrument values about it with its p-value (common practice, no source; the
+    idea of a signal's support across data sets as in Mortier & Collier Cameron 2017,
+    A&A 601, A110)."""
+    from scipy.stats import chi2 as chi2_dist
+
+    from rvkep.orbit import radial_velocity
+
+    model, p = fit.model, fit.params
+    t = model.data.time
+    shape = radial_velocity(t, p[f"{label}.period"], p[f"{label}.tp"], p[f"{label}.ecc"],
+                            p[f"{label}.omega"], 1.0)  # fmt: skip
+    r = fit.residuals + p[f"{label}.K"] * shape
+    rows = {}
+    for k, inst in enumerate(model.instruments):
+        m = model.inst_index == k
+        if m.sum() < 3:
+            continue
+        w = 1.0 / (model.data.err[m] ** 2 + p[f"jitter.{inst.name}"] ** 2)
+        X = np.column_stack([shape[m], np.ones(m.sum())])
+        A = X.T @ (w[:, None] * X)
+        try:
+            cov = np.linalg.inv(A)
+        except np.linalg.LinAlgError:
+            continue
+        beta = cov @ (X.T @ (w * r[m]))
+        rows[inst.name] = {"K": float(beta[0]), "sd": float(np.sqrt(cov[0, 0])),
+                           "n": int(m.sum())}  # fmt: skip
+    if len(rows) < 2:
+        return {"instruments": rows, "K": p[f"{label}.K"], "chi2": 0.0, "p": 1.0}
+    K = np.array([v["K"] for v in rows.values()])
+    sd = np.array([v["sd"] for v in rows.values()])
+    joint = float(np.sum(K / sd**2) / np.sum(1 / sd**2))
+    chi2 = float(np.sum(((K - joint) / sd) ** 2))
+    return {"instruments": rows, "K": joint, "chi2": chi2,
+            "p": float(chi2_dist.sf(chi2, len(rows) - 1))}  # fmt: skip
+
+
+def support_check(fit) -> tuple[object, list[str]]:
+    """Companions seen by one instrument only, where the others could test them and
+    disagree (SUPPORT_P), are not adopted: returns (the fit without them, notes)."""
+    from rvkep.optimize import fit as optimize
+
+    notes = []
+    if len(fit.model.instruments) < 2:
+        return fit, notes
+    for c in list(fit.model.companions):
+        s = instrument_support(fit, c.label)
+        rows = s["instruments"]
+        seen = [n for n, v in rows.items() if v["K"] > 3 * v["sd"]]
+        testers = [n for n, v in rows.items() if n not in seen and v["sd"] < abs(s["K"]) / 2]
+        if s["p"] >= SUPPORT_P or len(seen) != 1 or not testers:
+            continue
+        P = fit.params[f"{c.label}.period"]
+        text = ", ".join(f"{n} {v['K']:.3g} +- {v['sd']:.2g}" for n, v in rows.items())
+        notes.append(f"a companion at {P:.5g} d was not adopted: it is seen by {seen[0]} only "
+                     f"(K per instrument: {text} m/s; chi2 {s['chi2']:.1f}, p = "
+                     f"{s['p']:.2g}); {', '.join(testers)} could see it and do not")  # fmt: skip
+        model = fit.model.with_companions([k for k in fit.model.companions if k.label != c.label])
+        base = {k: v for k, v in fit.params.items() if not k.startswith(f"{c.label}.")}
+        fit = optimize(model, starts=[model.from_physical(base)[0]])
+    return fit, notes

@@ -201,6 +201,14 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
             if checked.bic < per_degree[d][k].bic:
                 per_degree[d][k] = checked
             fit = per_degree[d][k]
+    if not fixed and fit.model.companions:
+        supported, snotes = rules.support_check(fit)
+        notes += snotes
+        if supported is not fit:
+            k = len(supported.model.companions)
+            if supported.bic < per_degree[d][k].bic:
+                per_degree[d][k] = supported
+            fit = per_degree[d][k]
     search_result = outcomes[d][0]
     fits = per_degree[d]
     comparison = _comparison_rows(fits, k, search_result)

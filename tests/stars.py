@@ -87,3 +87,21 @@ def brown_dwarf_open_orbit(seed: int = 7) -> RVData:
     v = v + np.where(late, 40.0, 0.0) + rng.normal(0, 5.0, t.size)
     inst = np.where(late, "eagle-2", "eagle-1")
     return RVData(t, v, np.full(t.size, 5.0), inst)
+
+
+def signal_in_one_instrument(seed: int = 11) -> RVData:
+    """Two spectrographs see one planet (P 31.4 d, K 12 m/s): "wren", precise (1.0 m/s
+    errors), and "finch" (2.5 m/s), 70 points each over 600 days; a second signal (P 9.3
+    d, K 4 m/s) is put into wren's velocities only, as an instrumental systematic or
+    the precise instrument's own noise would be.
+
+    Truth: one companion; finch, precise enough to see a 4 m/s signal (its K error is
+    about 0.4 m/s), shows none of it."""
+    rng = np.random.default_rng(seed)
+    t = np.concatenate([_season_times(rng, 70, 600), _season_times(rng, 70, 600) + 0.3])
+    inst = np.array(["finch"] * 70 + ["wren"] * 70)
+    err = np.where(inst == "wren", 1.0, 2.5)
+    v = radial_velocity(t, 31.4, 2459010.0, 0.05, 1.0, 12.0)
+    v = v + np.where(inst == "wren", radial_velocity(t, 9.3, 2459003.0, 0.0, 0.0, 4.0), 0.0)
+    v = v + np.where(inst == "wren", 25.0, 0.0) + rng.normal(0, 1.0, t.size) * err
+    return RVData(t, v, err, inst)

@@ -113,3 +113,27 @@ def test_alternatives_that_fit_nearly_as_well_are_named():
     # choice is not the only one, and the notes say so
     ch = choose_model(seven_night_hot_jupiter(0, 3.0), AnalyzeOptions(quiet=True, noise="white"))
     assert any(n.startswith("AMBIGUOUS model: trend degree") for n in ch.notes)
+
+
+def test_a_signal_one_instrument_alone_sees_is_not_adopted():
+    from stars import signal_in_one_instrument
+
+    data = signal_in_one_instrument()
+    # as a search that adopted it would have it: the planet and wren's 9.3-d signal
+    both = fit_companions(data, [[31.4], [9.3]])
+    assert choice.periods_of(both) == pytest.approx([31.4, 9.3], rel=5e-3)
+    s = choice.instrument_support(both, both.model.companions[1].label)
+    assert s["instruments"]["wren"]["K"] > 3 and abs(s["instruments"]["finch"]["K"]) < 1.5
+    assert s["p"] < 1e-6
+    kept, notes = choice.support_check(both)
+    assert choice.periods_of(kept) == pytest.approx([31.4], rel=2e-3)
+    assert "9.29" in notes[0] and "seen by wren only" in notes[0]
+    assert "finch could see it and do not" in notes[0]
+    # the planet both see is supported by both
+    s = choice.instrument_support(kept, kept.model.companions[0].label)
+    assert s["p"] > 0.01 and set(s["instruments"]) == {"finch", "wren"}
+    assert choice.support_check(kept)[1] == []
+    # and so in the model choice, whose search adopted it
+    ch = choose_model(data, AnalyzeOptions(quiet=True, noise="white", trend=0))
+    assert choice.periods_of(ch.fit) == pytest.approx([31.4], rel=2e-3)
+    assert any("seen by wren only" in n for n in ch.notes)
