@@ -242,7 +242,9 @@ def rv_kernel(t, tp, n, e, cosw, sinw, K) -> np.ndarray:
     params = [np.asarray(p, dtype=float) for p in (tp, n, e, cosw, sinw, K)]
     pshape = np.broadcast_shapes(*(p.shape for p in params))
     if t.ndim <= 1 and (pshape == () or (len(pshape) == 2 and pshape[1] == 1)):
-        rows = [np.broadcast_to(p, pshape).reshape(-1) for p in params]
+        # writeable copies: broadcast_to gives read-only views, which the compiled
+        # kernel would take as another type and compile again at run time
+        rows = [np.array(np.broadcast_to(p, pshape), dtype=float).reshape(-1) for p in params]
         out = rv_rows(t.reshape(-1), *rows)
         return out.reshape(np.broadcast_shapes(pshape, t.shape))
     arrays = np.broadcast_arrays(t, *params)
