@@ -99,6 +99,8 @@ def read_batch(folder: str | Path, include_quick: bool = False,
         raise DataError(f"{folder}: not a batch folder (no summary.csv; run rvkep batch first)")
     stars, skipped = [], []
     for sub in sorted(p for p in folder.iterdir() if p.is_dir()):
+        if (sub / "population.json").exists():  # an earlier population's output, not a star
+            continue
         if not (sub / "done.json").exists():
             reason = "failed" if (sub / "error.txt").exists() else "not finished"
             skipped.append({"name": sub.name, "reason": reason})
@@ -352,6 +354,7 @@ def run_population(batch_dir: str | Path, out: str | Path, *, period_range=None,
     _figures(out, stars, beta, hist, occ, period_range, mass_range)
     write_text(out / "population.md", _markdown(doc))
     write_text(out / "population.json", json.dumps(doc, indent=2) + "\n")
+    _refresh_index(Path(batch_dir))
     for w in warnings_:
         say(f"warning: {w}")
     if "eccentricity" in doc:
@@ -365,6 +368,19 @@ def run_population(batch_dir: str | Path, out: str | Path, *, period_range=None,
         f"-{fr['minus']:.3f} ({occ['n_hosts']} host(s) of {len(stars)}); "
         f"written to {out}/")  # fmt: skip
     return doc
+
+
+def _refresh_index(batch: Path) -> None:
+    """Rewrite the batch's index.html so that it shows a population written into one of
+    its subfolders (rvkep.report.index.population_summary)."""
+    from rvkep.outputs import write_text
+    from rvkep.report.index import render_index
+
+    if not (batch / "index.html").exists():
+        return
+    with open(batch / "summary.csv", newline="", encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    write_text(batch / "index.html", render_index(batch, rows))
 
 
 def _markdown(doc: dict) -> str:

@@ -31,7 +31,7 @@ LOCK_NAME = ".rvkep.lock"
 TEMPORARY_PATTERN = ".*.tmp-*"
 
 RUN_MARKERS = (LOCK_NAME, "results.json", "model.json", "chain.h5", "summary.md",
-               "summary.csv", "index.html", "limits.csv")  # fmt: skip
+               "summary.csv", "index.html", "limits.csv", "population.json")  # fmt: skip
 
 
 def check_output_folder(path: str | Path, option: str = "--out") -> Path:

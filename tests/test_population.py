@@ -141,3 +141,21 @@ def test_population_refuses_a_folder_that_is_no_batch(tmp_path, capsys):
     assert main(["population", str(tmp_path), "--out", str(tmp_path / "p")]) == 2
     err = capsys.readouterr().err.strip()
     assert err.endswith("not a batch folder (no summary.csv; run rvkep batch first)")
+
+
+@pytest.mark.integration
+def test_a_population_inside_the_batch_shows_in_its_index(batch, capsys):
+    from rvkep.cli import main
+
+    out = batch / "population"
+    argv = ["population", str(batch), "--out", str(out), "--include-quick", "--quiet"]
+    assert main(argv) == 0
+    page = (batch / "index.html").read_text()
+    assert '<section id="population">' in page and 'href="./population/population.md"' in page
+    assert 'src="./population/eccentricity.png"' in page
+    # the population's own folder is not read as a star, and a rerun into it is allowed
+    assert main(argv) == 0
+    import json
+
+    doc = json.loads((out / "population.json").read_text())
+    assert "population" not in doc["stars"] + [s["name"] for s in doc["skipped"]]

@@ -48,5 +48,29 @@ def render_index(out: str | Path, rows: list[dict], title: str | None = None) ->
     n_failed = sum(r["status"] == "failed" for r in shown)
     return environment().get_template("index.html.j2").render(
         title=title or out.resolve().name, rows=shown, version=__version__, n_done=n_done,
-        n_failed=n_failed,
+        n_failed=n_failed, population=population_summary(out),
     )  # fmt: skip
+
+
+def population_summary(out: Path) -> dict | None:
+    """The newest ``rvkep population`` result written into a subfolder of the batch
+    folder ``out`` (its population.json), as the index shows it; None without one."""
+    import json
+
+    found = sorted(out.glob("*/population.json"), key=lambda p: p.stat().st_mtime)
+    if not found:
+        return None
+    try:
+        doc = json.loads(found[-1].read_text())
+    except (OSError, ValueError):
+        return None
+    folder = found[-1].parent.name
+    ecc = doc.get("eccentricity", {})
+    occ = doc.get("occurrence", {})
+    figures = [relative_link(folder, n) for n in ("eccentricity.png", "occurrence.png")
+               if (found[-1].parent / n).exists()]  # fmt: skip
+    return {"n_stars": doc.get("n_stars"), "n_companions": doc.get("n_companions"),
+            "ecc_mean": ecc.get("mean"), "ecc_a": ecc.get("a"), "ecc_b": ecc.get("b"),
+            "fraction": occ.get("fraction"), "period_range": occ.get("period_range_d"),
+            "mass_range": occ.get("msini_range_mjup"), "n_skipped": len(doc.get("skipped", [])),
+            "summary": relative_link(folder, "population.md"), "figures": figures}  # fmt: skip
