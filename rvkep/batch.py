@@ -166,10 +166,11 @@ def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Targe
     values = {}
     try:
         for opt in columns():
-            if opt.name in rec and (rec[opt.name].strip() or opt.name in _REQUIRED):
-                if not rec[opt.name].strip():
+            if not rec.get(opt.name, "").strip():  # an empty cell keeps the default
+                if opt.name in _REQUIRED:
                     raise OptionError(f"{opt.name}: empty (the column is required)")
-                values[opt.name] = from_cell(opt, rec[opt.name])
+                continue
+            values[opt.name] = from_cell(opt, rec[opt.name])
         if values.get("model"):
             values["model"] = str(base / values["model"])
         check_options(values, "analyze")  # the rules between options, as analyze's

@@ -101,9 +101,9 @@ def _harmonic_pairs(fit, span: float):
     return sorted(pairs, key=lambda x: fit.params[f"{x[1]}.K"])
 
 
-def _without(fit, drop: str, label: str):
-    """Best fit without companion ``drop``, companion ``label`` eccentric from several
-    (e, omega) starts (and from its own values)."""
+def _without(fit, drop: str, label: str | None = None):
+    """Best fit without companion ``drop``, from the fit's own values; with ``label``,
+    that companion refitted eccentric from several (e, omega) starts as well."""
     from rvkep.defaults import ecc_prior
     from rvkep.optimize import fit as optimize
 
@@ -113,10 +113,11 @@ def _without(fit, drop: str, label: str):
     model = fit.model.with_companions(kept)
     base = {k: v for k, v in fit.params.items() if not k.startswith(f"{drop}.")}
     starts = [model.from_physical(base)[0]]
-    for e in (0.15, 0.3, 0.5):
-        for w in np.linspace(0, 2 * math.pi, 4, endpoint=False):
-            starts.append(model.from_physical({**base, f"{label}.ecc": e,
-                                               f"{label}.omega": w})[0])  # fmt: skip
+    if label is not None:
+        for e in (0.15, 0.3, 0.5):
+            for w in np.linspace(0, 2 * math.pi, 4, endpoint=False):
+                starts.append(model.from_physical({**base, f"{label}.ecc": e,
+                                                   f"{label}.omega": w})[0])  # fmt: skip
     return optimize(model, starts=starts)
 
 
@@ -230,8 +231,6 @@ def instrument_support(fit, label: str) -> dict:
 def support_check(fit) -> tuple[object, list[str]]:
     """Companions seen by one instrument only, where the others could test them and
     disagree (SUPPORT_P), are not adopted: returns (the fit without them, notes)."""
-    from rvkep.optimize import fit as optimize
-
     notes = []
     if len(fit.model.instruments) < 2:
         return fit, notes
@@ -247,7 +246,5 @@ def support_check(fit) -> tuple[object, list[str]]:
         notes.append(f"a companion at {P:.5g} d was not adopted: it is seen by {seen[0]} only "
                      f"(K per instrument: {text} m/s; chi2 {s['chi2']:.1f}, p = "
                      f"{s['p']:.2g}); {', '.join(testers)} could see it and do not")  # fmt: skip
-        model = fit.model.with_companions([k for k in fit.model.companions if k.label != c.label])
-        base = {k: v for k, v in fit.params.items() if not k.startswith(f"{c.label}.")}
-        fit = optimize(model, starts=[model.from_physical(base)[0]])
+        fit = _without(fit, c.label)
     return fit, notes

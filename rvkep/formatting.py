@@ -14,6 +14,7 @@ __all__ = [
     "text_estimate",
     "SMALL",
     "p_text",
+    "p_relation",
 ]
 
 #: Values smaller than this (in magnitude, not zero) are written as a mantissa times a
@@ -29,6 +30,12 @@ P_FLOOR = 1e-6
 def p_text(p: float) -> str:
     """A p-value for text: three significant digits, or "< 1e-06"."""
     return f"< {P_FLOOR:.0e}" if p < P_FLOOR else f"{p:.3g}"
+
+
+def p_relation(p: float) -> str:
+    """A p-value after "p": "= 0.0191", or "< 1e-06" (:func:`p_text`)."""
+    text = p_text(p)
+    return text if text.startswith("<") else f"= {text}"
 
 
 def _sig_round(x: float, sig: int = 2) -> int:

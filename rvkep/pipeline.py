@@ -27,6 +27,7 @@ import numpy as np
 from rvkep import options
 from rvkep.data import MIN_POINTS, DataWarning, RVData, check_size, load_rv
 from rvkep.errors import OptionError, RvkepError
+from rvkep.formatting import p_relation
 from rvkep.kepler import prepare_kernels
 from rvkep.names import name_problem
 from rvkep.options import TREND_DEGREES, parse_trend
@@ -75,14 +76,6 @@ def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
     note = (f"data averaged in {days:g}-day bins per instrument: {len(data):,} -> "
             f"{len(binned):,} points")  # fmt: skip
     return binned, note
-
-
-def _p_shown(p: float) -> str:
-    """'= 0.0191' or '< 1e-06' (rvkep.formatting.p_text)."""
-    from rvkep.formatting import p_text
-
-    text = p_text(p)
-    return text if text.startswith("<") else f"= {text}"
 
 
 def _say(opts: AnalyzeOptions, text: str) -> None:
@@ -192,22 +185,17 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
     chosen = cands[rules.occam_choice([per_degree[d][k] for d, k in cands])]
     d, k = chosen
     fit = per_degree[d][k]
-    if not fixed and len(fit.model.companions) >= 2:
-        span = float(data.time.max() - data.time.min())
-        checked, hnotes, _ = rules.harmonic_check(fit, span)
-        notes += hnotes
-        if checked is not fit:
-            k = len(checked.model.companions)
-            if checked.bic < per_degree[d][k].bic:
-                per_degree[d][k] = checked
-            fit = per_degree[d][k]
-    if not fixed and fit.model.companions:
-        supported, snotes = rules.support_check(fit)
-        notes += snotes
-        if supported is not fit:
-            k = len(supported.model.companions)
-            if supported.bic < per_degree[d][k].bic:
-                per_degree[d][k] = supported
+    span = float(data.time.max() - data.time.min())
+    checks = (lambda f: rules.harmonic_check(f, span)[:2], rules.support_check)
+    for check in checks if not fixed else ():
+        if not fit.model.companions:
+            break
+        reduced, check_notes = check(fit)
+        notes += check_notes
+        if reduced is not fit:  # a companion dropped: the better fit of that count stands
+            k = len(reduced.model.companions)
+            if reduced.bic < per_degree[d][k].bic:
+                per_degree[d][k] = reduced
             fit = per_degree[d][k]
     search_result = outcomes[d][0]
     fits = per_degree[d]
@@ -281,29 +269,34 @@ def _rotation_notes(fit, rotation: float) -> list[str]:
     """Notes on companions whose period lies within 10% of the star's rotation period
     or its half (where spots put their signal)."""
     notes = []
+    remedy = "" if fit.model.noise == "gp" else "; --noise gp models the activity"
     for c in fit.model.companions:
         P = fit.params[f"{c.label}.period"]
-        for share, what in ((1.0, "rotation period"), (0.5, "half rotation period")):
-            if abs(P / (share * rotation) - 1.0) < 0.1:
-                remedy = ("" if fit.model.noise == "gp" else
-                          "; --noise gp models the activity")  # fmt: skip
-                notes.append(f"the period of {c.label} ({P:.4g} d) lies near the star's {what} "
-                             f"({share * rotation:.4g} d): it may be activity{remedy}")  # fmt: skip
+        near = _rotation_match(P, rotation)
+        if near is not None:
+            what, at = near
+            notes.append(f"the period of {c.label} ({P:.4g} d) lies near the star's {what} "
+                         f"({at:.4g} d): it may be activity{remedy}")  # fmt: skip
     return notes
+
+
+def _rotation_match(period: float, rotation: float) -> tuple[str, float] | None:
+    """("rotation period" or "half rotation period", that period) when ``period`` lies
+    within 10% of the rotation period or of half of it (where spots put their signal)."""
+    for share, what in ((1.0, "rotation period"), (0.5, "half rotation period")):
+        if abs(period / (share * rotation) - 1.0) < 0.1:
+            return what, share * rotation
+    return None
 
 
 def _near_rotation(fit, periods) -> str:
     """', and its period X d lies near the activity's rotation period' when a noise
     model with a rotation period has one within 10% of a period (or of half of it)."""
     p = fit.params.get("noise.rotation_period")
-    if p is None:
-        return ""
-    for P in periods:
-        for share, what in ((1.0, "rotation period"), (0.5, "half rotation period")):
-            if abs(P / (share * p) - 1.0) < 0.1:
-                return (
-                    f", and its period {P:.4g} d lies near the activity's {what} {share * p:.4g} d"
-                )
+    for P in periods if p is not None else ():
+        near = _rotation_match(P, p)
+        if near is not None:
+            return f", and its period {P:.4g} d lies near the activity's {near[0]} {near[1]:.4g} d"
     return ""
 
 
@@ -717,7 +710,7 @@ def test_eccentricities(results, chosen: ModelChoice, opts: AnalyzeOptions, spec
     for L, t in tests.items():
         verdict = "consistent with circular" if t["consistent_with_circular"] else "eccentric"
         _say(opts, f"eccentricity of {L}: {verdict} (Lucy & Sweeney p "
-                   f"{_p_shown(t['lucy_sweeney_p'])}; BIC circular - eccentric = "
+                   f"{p_relation(t['lucy_sweeney_p'])}; BIC circular - eccentric = "
                    f"{t['delta_bic_circular_minus_eccentric']:.1f})")  # fmt: skip
     circular = sorted(L for L, t in tests.items() if t["consistent_with_circular"])
     if opts.circular != "auto" or not circular:

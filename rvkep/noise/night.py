@@ -90,6 +90,7 @@ class _Blocks:
         self.column = np.array([column.get(f"night_{model.instruments[k].name}", -1)
                                 for k in inst])  # fmt: skip
         self.size = np.diff(np.r_[self.starts, label.size])
+        self.night_of = label  # each point's night, in the model's order
 
     def sums(self, values: np.ndarray) -> np.ndarray:
         """Per-night sums over the last point axis of ``values`` (..., n_points)."""
@@ -142,10 +143,7 @@ class NightNoise(NoiseModel):
         var = self._white.effective_variance(model, phys, rows)
         blocks = self._blocks(model)
         s2 = self._amplitudes(model, phys, rows, blocks)
-        per_point = np.empty_like(var)
-        night_of = np.repeat(np.arange(blocks.starts.size), blocks.size)
-        per_point[:, blocks.order] = s2[:, night_of]
-        return var + per_point
+        return var + s2[:, blocks.night_of]
 
     def loglike(self, model, phys: dict, rows: np.ndarray, resid: np.ndarray, linear: str):
         blocks = self._blocks(model)
@@ -190,10 +188,8 @@ class NightNoise(NoiseModel):
         V = np.asarray(V, float)
         WV = (w * V.T).T
         per_night = blocks.sums(WV.T).T if V.ndim > 1 else blocks.sums(WV)
-        night_of = np.empty(w.size, int)
-        night_of[blocks.order] = np.repeat(np.arange(blocks.starts.size), blocks.size)
         shared = (g * per_night.T).T if V.ndim > 1 else g * per_night
-        return WV - (w * shared[night_of].T).T
+        return WV - (w * shared[blocks.night_of].T).T
 
     def periodogram_power(self, model, phys: dict, resid: np.ndarray, frequency: np.ndarray):
         """The search's power through C (see :func:`rvkep.noise.base.covariance_power`):

@@ -3,7 +3,7 @@ search, companion-number and trend comparisons, sampler and priors."""
 
 from __future__ import annotations
 
-from rvkep.formatting import p_text, text_estimate
+from rvkep.formatting import p_relation, text_estimate
 from rvkep.report.rows import TEQ_ASSUMPTIONS
 
 __all__ = ["render"]
@@ -60,10 +60,8 @@ def render(results) -> str:
             verdict = ("refitted circular (consistent with circular)" if t.get("refitted_circular")
                        else "consistent with circular" if t["consistent_with_circular"]
                        else "eccentric")  # fmt: skip
-            p_value = p_text(t["lucy_sweeney_p"])
-            p_value = p_value if p_value.startswith("<") else f"= {p_value}"
             lines.append(f"Eccentricity of {p['label']}: {verdict} (Lucy & Sweeney 1971 p "
-                         f"{p_value}; BIC circular - eccentric = "
+                         f"{p_relation(t['lucy_sweeney_p'])}; BIC circular - eccentric = "
                          f"{t['delta_bic_circular_minus_eccentric']:.1f}).")  # fmt: skip
         if any("ecc_test" in p for p in d["planets"]):
             lines.append("")
