@@ -1,0 +1,263 @@
+"""The star's velocity from an N-body integration of star and companions (REBOUND).
+
+A sum of Keplerians treats each companion as if it orbited alone; planets in or near
+a resonance, or close to each other, pull on each other and their orbits precess
+measurably over years. :func:`star_velocity` integrates the whole system instead:
+
+* the companions' elements (P, K, e, omega, tc) are read as *osculating Jacobi
+  elements* at the reference epoch (the data's ``epoch``, time 0 of ``t_rel``): the
+  companion sorted k-th by period orbits the centre of mass of the star and the
+  k - 1 inner companions;
+* masses come from K through the mass function with that interior mass,
+  m^3 sin^3 i / (M_interior + m)^2 = P K^3 (1 - e^2)^(3/2) / (2 pi G), which is exact
+  for the star's Jacobi reflex motion (the Keplerian limit of the integration is the
+  sum of Keplerians to rounding);
+* the orbits are coplanar with one inclination i to the sky (the line of sight is the
+  z axis; a positive velocity moves away from the observer), nodes at 0;
+* the integration runs from the epoch forwards and backwards to each observation time
+  exactly (each ``integrate`` ends on the time: no interpolation);
+* light-travel time across the system and relativity are neglected.
+
+Integrator (:func:`integrator_for`): WHFast (Wisdom & Holman 1991, AJ 102, 1528; Rein &
+Tamayo 2015, MNRAS 452, 376; symplectic corrector of order 5, Wisdom, Holman &
+Touma 1996) with a step of 1/20 of the shortest period, or IAS15
+(Rein & Spiegel 2015, MNRAS 446, 1424; adaptive, for close encounters) when an orbit
+is eccentric (e >= 0.5) or an adjacent pair is not Hill stable.
+
+Units inside: solar masses, au, days, G = k^2 with the Gaussian constant k.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from rvkep.errors import OptionError
+
+__all__ = [
+    "require_rebound",
+    "companion_masses",
+    "integrator_for",
+    "simulation",
+    "star_velocity",
+    "star_velocity_rows",
+    "M_PER_S",
+]
+
+#: Gaussian gravitational constant (au^(3/2) Msun^(-1/2) day^(-1)), IAU 1976
+GAUSS_K = 0.01720209895
+G_AU_DAY = GAUSS_K * GAUSS_K
+AU_M = 149_597_870_700.0  # IAU 2012 B2
+#: one au/day in m/s
+M_PER_S = AU_M / 86400.0
+#: G M_sun in m^3/s^2 consistent with the units above
+_GM_SUN = G_AU_DAY * AU_M**3 / 86400.0**2
+
+#: the WHFast step as a fraction of the shortest period
+STEP_FRACTION = 1.0 / 20.0
+#: an orbit at least this eccentric sends the integration to IAS15
+ECCENTRIC = 0.5
+
+_INSTALL = 'the N-body model needs REBOUND: pip install "rvkep[dynamics]"'
+
+
+def require_rebound():
+    """The ``rebound`` module, or :class:`~rvkep.errors.OptionError` with the install
+    line when it is missing."""
+    try:
+        import rebound
+    except ImportError:
+        raise OptionError(_INSTALL) from None
+    return rebound
+
+
+def _solve_mass(f: np.ndarray, M: np.ndarray) -> np.ndarray:
+    """m with m^3 = f (M + m)^2 (the mass function's root; see
+    :func:`rvkep.physics._solve_mass_function`, repeated here without astropy)."""
+    cf = np.cbrt(f)
+    m = cf * np.cbrt(M * M)
+    for _ in range(200):
+        new = cf * np.cbrt((M + m) ** 2)
+        if np.all(np.abs(new - m) <= 1e-15 * new):
+            m = new
+            break
+        m = new
+    for _ in range(3):
+        g = m**3 - f * (M + m) ** 2
+        dg = 3.0 * m * m - 2.0 * f * (M + m)
+        m = m - np.where(dg > 0, g / np.where(dg > 0, dg, 1.0), 0.0)
+    return m
+
+
+def companion_masses(period, K, ecc, star_mass: float, sin_i: float = 1.0) -> np.ndarray:
+    """Each companion's mass (solar masses) from its K in Jacobi order.
+
+    Parameters
+    ----------
+    period, K, ecc : array_like, shape (n_companions,)
+        Days, m/s and eccentricity, in any order (masses come back in that order).
+    star_mass : float
+        Solar masses.
+    sin_i : float
+        The sine of the shared inclination.
+
+    Returns
+    -------
+    numpy.ndarray
+        Masses; the k-th companion by period is solved with the star plus the inner
+        companions as its interior mass.
+    """
+    P = np.asarray(period, float)
+    Kv = np.asarray(K, float)
+    e = np.asarray(ecc, float)
+    f = P * 86400.0 * Kv**3 * (1.0 - e * e) ** 1.5 / (2.0 * math.pi * _GM_SUN)
+    f = f / sin_i**3
+    out = np.empty_like(P)
+    interior = float(star_mass)
+    for j in np.argsort(P, kind="stable"):
+        out[j] = _solve_mass(np.array(f[j]), np.array(interior))
+        interior += out[j]
+    return out
+
+
+def _hill_stable(a, e, m, star_mass) -> bool:
+    """Every adjacent pair Hill stable by Gladman's criterion (see rvkep.stability)."""
+    from rvkep.stability import hill_stable_pair
+
+    order = np.argsort(a)
+    return all(
+        hill_stable_pair(a[i], a[j], e[i], e[j], m[i], m[j], star_mass)
+        for i, j in zip(order[:-1], order[1:], strict=True)
+    )
+
+
+def integrator_for(period, ecc, masses, star_mass: float) -> str:
+    """``"whfast"`` or ``"ias15"`` by the rule in the module docstring."""
+    P = np.asarray(period, float)
+    e = np.asarray(ecc, float)
+    if P.size == 0:
+        return "whfast"
+    if np.max(e) >= ECCENTRIC:
+        return "ias15"
+    if P.size > 1:
+        a = np.cbrt(G_AU_DAY * (star_mass + np.asarray(masses)) * (P / (2 * math.pi)) ** 2)
+        if not _hill_stable(a, e, np.asarray(masses), star_mass):
+            return "ias15"
+    return "whfast"
+
+
+def simulation(
+    period,
+    tp_rel,
+    ecc,
+    omega,
+    K,
+    star_mass: float,
+    inclination: float = 0.5 * math.pi,
+    integrator: str | None = None,
+):
+    """A REBOUND simulation of the system at the epoch (time 0), centre of mass at rest.
+
+    Parameters
+    ----------
+    period, tp_rel, ecc, omega, K : array_like, shape (n_companions,)
+        Days, periastron time minus the epoch (days), eccentricity, the *star's*
+        argument of periastron (radians; the companion's is omega + pi), m/s.
+    star_mass : float
+        Solar masses.
+    inclination : float
+        Radians (pi/2: edge-on).
+    integrator : {"whfast", "ias15"}, optional
+        Default: :func:`integrator_for`.
+    """
+    rebound = require_rebound()
+    P = np.atleast_1d(np.asarray(period, float))
+    tp = np.atleast_1d(np.asarray(tp_rel, float))
+    e = np.atleast_1d(np.asarray(ecc, float))
+    w = np.atleast_1d(np.asarray(omega, float))
+    s = math.sin(inclination)
+    masses = companion_masses(P, K, e, star_mass, s)
+    sim = rebound.Simulation()
+    sim.G = G_AU_DAY
+    sim.add(m=star_mass)
+    for j in np.argsort(P, kind="stable"):  # Jacobi: by period, inside out
+        M = 2.0 * math.pi * (0.0 - tp[j]) / P[j]
+        sim.add(m=masses[j], P=P[j], e=e[j], omega=w[j] + math.pi, inc=inclination,
+                Omega=0.0, M=M)  # fmt: skip
+    sim.move_to_com()
+    kind = integrator or integrator_for(P, e, masses, star_mass)
+    sim.integrator = kind
+    if kind == "whfast":
+        sim.dt = STEP_FRACTION * float(P.min())
+        sim.integrator.corrector = 5
+        sim.integrator.safe_mode = 0  # integrate() synchronizes when it ends on a time
+    return sim
+
+
+def _velocities(sim, times: np.ndarray) -> np.ndarray:
+    """The star's vz (au/day) at ``times`` (all on one side of sim.t, in the order of
+    integration)."""
+    out = np.empty(times.size)
+    star = sim.particles[0]
+    for n, t in enumerate(times):
+        sim.integrate(float(t), exact_finish_time=1)
+        out[n] = star.vz
+    return out
+
+
+def star_velocity(
+    t_rel,
+    period,
+    tp_rel,
+    ecc,
+    omega,
+    K,
+    star_mass: float,
+    inclination: float = 0.5 * math.pi,
+    integrator: str | None = None,
+) -> np.ndarray:
+    """The star's line-of-sight velocity (m/s) at times ``t_rel`` (days from the epoch).
+
+    Parameters are those of :func:`simulation`. Returns shape ``t_rel.shape``. Positive
+    values move away from the observer, as a radial velocity does; for well-separated
+    light companions this is the sum of the Keplerians with the same elements.
+    """
+    t = np.asarray(t_rel, float)
+    flat = t.ravel()
+    out = np.zeros(flat.size)
+    if np.size(period) == 0:
+        return out.reshape(t.shape)
+    sim = simulation(period, tp_rel, ecc, omega, K, star_mass, inclination, integrator)
+    after = np.flatnonzero(flat >= 0.0)
+    before = np.flatnonzero(flat < 0.0)
+    back = sim.copy() if before.size else None
+    if after.size:
+        order = after[np.argsort(flat[after], kind="stable")]
+        out[order] = _velocities(sim, flat[order])
+    if before.size:
+        if back.integrator == "whfast":
+            back.dt = -back.dt
+        order = before[np.argsort(-flat[before], kind="stable")]
+        out[order] = _velocities(back, flat[order])
+    return (out * M_PER_S).reshape(t.shape)
+
+
+def star_velocity_rows(
+    t_rel: np.ndarray, arr: dict, star_mass: np.ndarray | float, inclination: np.ndarray
+) -> np.ndarray:
+    """:func:`star_velocity` for every row of the model's matrices ``arr`` (keys
+    ``period``, ``tp_rel``, ``ecc``, ``omega``, ``K``, shape (n_sets, n_companions)):
+    (n_sets, n_times). ``inclination`` (radians) has one value per row; a row that
+    cannot be integrated (an orbit crossing, an escape) gives NaN."""
+    n = arr["period"].shape[0]
+    out = np.empty((n, np.size(t_rel)))
+    mass = np.broadcast_to(np.asarray(star_mass, float), (n,))
+    inc = np.broadcast_to(np.asarray(inclination, float), (n,))
+    for r in range(n):
+        try:
+            out[r] = star_velocity(t_rel, arr["period"][r], arr["tp_rel"][r], arr["ecc"][r],
+                                   arr["omega"][r], arr["K"][r], mass[r], inc[r])  # fmt: skip
+        except (RuntimeError, ValueError, ArithmeticError):  # rebound.Escape etc.
+            out[r] = np.nan
+    return out

@@ -1,0 +1,245 @@
+"""The N-body star velocity (rvkep.nbody) against an independent integration of
+Newton's equations (scipy's solve_ivp, DOP853), the Keplerian limit, and the
+conservation laws; the analytic stability criteria (rvkep.stability) against their
+published limits and verdicts."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+rebound = pytest.importorskip("rebound")
+
+from rvkep import nbody, stability  # noqa: E402
+from rvkep.orbit import radial_velocity  # noqa: E402
+
+G = nbody.G_AU_DAY
+
+
+def _kepler_state(mu, P, e, w_planet, M0, inc):
+    """Position and velocity of a two-body relative orbit from its elements (node 0),
+    from the textbook formulas (Murray & Dermott 1999, Solar System Dynamics, sec. 2.8),
+    written here without REBOUND."""
+    a = (mu * (P / (2 * math.pi)) ** 2) ** (1 / 3)
+    E = M0
+    for _ in range(50):
+        E = E - (E - e * math.sin(E) - M0) / (1 - e * math.cos(E))
+    nu = 2 * math.atan2(math.sqrt(1 + e) * math.sin(E / 2), math.sqrt(1 - e) * math.cos(E / 2))
+    r = a * (1 - e * math.cos(E))
+    h = math.sqrt(mu * a * (1 - e * e))
+    x_orb = np.array([r * math.cos(nu), r * math.sin(nu), 0.0])
+    v_orb = np.array([-mu / h * math.sin(nu), mu / h * (e + math.cos(nu)), 0.0])
+    cw, sw, ci, si = math.cos(w_planet), math.sin(w_planet), math.cos(inc), math.sin(inc)
+    Rw = np.array([[cw, -sw, 0], [sw, cw, 0], [0, 0, 1]])
+    Ri = np.array([[1, 0, 0], [0, ci, -si], [0, si, ci]])
+    R = Ri @ Rw
+    return R @ x_orb, R @ v_orb
+
+
+def _masses(P, K, e, M_star, sin_i):
+    """Masses from the mass function with the interior mass (scipy's brentq)."""
+    from scipy.optimize import brentq
+
+    out, interior = [], M_star
+    gm_sun = G * nbody.AU_M**3 / 86400.0**2
+    for Pj, Kj, ej in zip(P, K, e, strict=True):
+        f = Pj * 86400 * Kj**3 * (1 - ej * ej) ** 1.5 / (2 * math.pi * gm_sun) / sin_i**3
+        m = brentq(lambda m, f=f, M=interior: m**3 - f * (M + m) ** 2, 1e-12, 1.0, xtol=1e-18)
+        out.append(m)
+        interior += m
+    return out
+
+
+def _newton_star_velocity(t, P, tp, e, w, K, M_star, inc):
+    """The star's vz (m/s) from Jacobi elements at t = 0 integrated with solve_ivp
+    (DOP853, rtol 1e-12, atol 1e-15), forwards and backwards. Planets sorted by period."""
+    from scipy.integrate import solve_ivp
+
+    masses = _masses(P, K, e, M_star, math.sin(inc))
+    pos = [np.zeros(3)]
+    vel = [np.zeros(3)]
+    m_all = [M_star]
+    com_r, com_v, interior = np.zeros(3), np.zeros(3), M_star
+    for j in range(len(P)):
+        mu = G * (interior + masses[j])
+        r, v = _kepler_state(mu, P[j], e[j], w[j] + math.pi, 2 * math.pi * (0 - tp[j]) / P[j],
+                             inc)  # fmt: skip
+        pos.append(com_r + r)
+        vel.append(com_v + v)
+        m_all.append(masses[j])
+        com_r = (interior * com_r + masses[j] * pos[-1]) / (interior + masses[j])
+        com_v = (interior * com_v + masses[j] * vel[-1]) / (interior + masses[j])
+        interior += masses[j]
+    m_all = np.array(m_all)
+    X = np.array(pos) - com_r
+    V = np.array(vel) - com_v
+    n = len(m_all)
+
+    def rhs(_, y):
+        x = y[: 3 * n].reshape(n, 3)
+        d = x[None, :, :] - x[:, None, :]
+        r3 = np.sum(d * d, axis=2) ** 1.5
+        np.fill_diagonal(r3, np.inf)
+        acc = G * np.sum(m_all[None, :, None] * d / r3[:, :, None], axis=1)
+        return np.concatenate([y[3 * n :], acc.ravel()])
+
+    y0 = np.concatenate([X.ravel(), V.ravel()])
+    out = np.empty(t.size)
+    for side in (t >= 0, t < 0):
+        if not side.any():
+            continue
+        ts = t[side]
+        end = ts.max() if ts[0] >= 0 else ts.min()
+        sol = solve_ivp(rhs, (0.0, end), y0, method="DOP853", rtol=1e-12, atol=1e-15,
+                        t_eval=np.sort(ts) if end > 0 else np.sort(ts)[::-1])  # fmt: skip
+        got = dict(zip(sol.t, sol.y[3 * n + 2], strict=True))
+        out[side] = [got[x] for x in ts]
+    return out * nbody.M_PER_S
+
+
+# an invented 2:1 resonant pair around an M dwarf of 0.37 solar masses
+PAIR = dict(P=np.array([30.1, 61.1]), tp=np.array([4.0, -12.0]), e=np.array([0.25, 0.03]),
+            w=np.array([1.1, 2.9]), K=np.array([88.0, 214.0]))  # fmt: skip
+TEN_YEARS = np.linspace(-1826.0, 1826.0, 121)
+
+
+def test_resonant_pair_matches_an_independent_integration_of_newtons_equations():
+    # reference: scipy.integrate.solve_ivp (DOP853) on Newton's equations, initial
+    # state from the textbook two-body formulas and Jacobi coordinates written above
+    inc = math.radians(60.0)
+    ref = _newton_star_velocity(TEN_YEARS, PAIR["P"], PAIR["tp"], PAIR["e"], PAIR["w"],
+                                PAIR["K"], 0.37, inc)  # fmt: skip
+    got = nbody.star_velocity(TEN_YEARS, PAIR["P"], PAIR["tp"], PAIR["e"], PAIR["w"],
+                              PAIR["K"], 0.37, inc)  # fmt: skip
+    assert np.max(np.abs(got - ref)) < 0.01  # m/s, over ten years
+    kepler = sum(radial_velocity(TEN_YEARS, PAIR["P"][j], PAIR["tp"][j], PAIR["e"][j],
+                                 PAIR["w"][j], PAIR["K"][j]) for j in range(2))  # fmt: skip
+    assert np.max(np.abs(got - kepler)) > 20.0  # the interaction is large: not a no-op
+
+
+def test_whfast_where_the_pair_is_hill_stable_ias15_where_it_is_not():
+    # two integrators of one library against each other (common practice, no source):
+    # a lighter 2:1 pair (K 20 and 30 m/s) is Hill stable and gets WHFast, which agrees
+    # with IAS15 to 0.01 m/s over ten years
+    light = dict(PAIR, K=np.array([20.0, 30.0]))
+    args = (TEN_YEARS, light["P"], light["tp"], light["e"], light["w"], light["K"], 0.37)
+    m = nbody.companion_masses(light["P"], light["K"], light["e"], 0.37)
+    assert nbody.integrator_for(light["P"], light["e"], m, 0.37) == "whfast"
+    a = nbody.star_velocity(*args, integrator="whfast")
+    b = nbody.star_velocity(*args, integrator="ias15")
+    assert np.max(np.abs(a - b)) < 0.01
+    # the heavy pair above is not Hill stable (like many resonant pairs): IAS15
+    m = nbody.companion_masses(PAIR["P"], PAIR["K"], PAIR["e"], 0.37)
+    assert nbody.integrator_for(PAIR["P"], PAIR["e"], m, 0.37) == "ias15"
+    assert nbody.integrator_for([3.0, 300.0], [0.6, 0.1], [1e-6, 1e-6], 1.0) == "ias15"
+
+
+def test_keplerian_limit_two_earths_far_apart_is_the_sum_of_keplerians():
+    # two Earth-mass planets at 12 d and 900 d (K 0.6 and 0.09 m/s around a Sun):
+    # the integration equals the two-body solution (Kepler's equation) to 0.01 m/s
+    P, tp, e, w = np.array([12.0, 900.0]), np.array([2.0, -300.0]), np.array([0.1, 0.3]), \
+        np.array([0.4, 5.0])  # fmt: skip
+    K = np.array([0.6, 0.09])
+    t = np.linspace(-1826.0, 1826.0, 400)
+    got = nbody.star_velocity(t, P, tp, e, w, K, 1.0)
+    ref = sum(radial_velocity(t, P[j], tp[j], e[j], w[j], K[j]) for j in range(2))
+    assert np.max(np.abs(got - ref)) < 0.01
+
+
+def test_energy_and_angular_momentum_are_conserved_over_ten_years():
+    # common practice, no source: a symplectic integration keeps the energy to a small
+    # bounded error and the angular momentum to rounding
+    sim = nbody.simulation(PAIR["P"], PAIR["tp"], PAIR["e"], PAIR["w"], PAIR["K"], 0.37)
+    E0, L0 = sim.energy(), np.array(sim.angular_momentum())
+    for t in np.linspace(0, 3652.5, 50):
+        sim.integrate(t)
+    E1, L1 = sim.energy(), np.array(sim.angular_momentum())
+    assert abs((E1 - E0) / E0) < 1e-7
+    assert np.max(np.abs(L1 - L0)) / np.linalg.norm(L0) < 1e-10
+
+
+def test_masses_from_the_mass_function_and_the_missing_library_message(monkeypatch):
+    # 51 Peg b: P = 4.2293 d, K = 59 m/s, 1 solar mass -> 0.47 M_Jup (Mayor & Queloz
+    # 1995, Nature 378, 355; from memory); 1 M_Jup = 9.5479e-4 M_sun (IAU 2015)
+    m = nbody.companion_masses([4.2293], [59.0], [0.0], 1.0)[0]
+    assert m / 9.5479e-4 == pytest.approx(0.47, abs=0.005)
+    # at i = 30 degrees the true mass is about twice m sin i
+    m30 = nbody.companion_masses([4.2293], [59.0], [0.0], 1.0, sin_i=0.5)[0]
+    assert m30 / m == pytest.approx(2.0, rel=1e-3)
+    import builtins
+
+    real = builtins.__import__
+
+    def no_rebound(name, *a, **k):
+        if name == "rebound":
+            raise ImportError(name)
+        return real(name, *a, **k)
+
+    monkeypatch.setattr(builtins, "__import__", no_rebound)
+    from rvkep.errors import OptionError
+
+    with pytest.raises(OptionError, match=r'pip install "rvkep\[dynamics\]"'):
+        nbody.require_rebound()
+
+
+# -- analytic stability ----------------------------------------------------------------
+
+M_JUP, M_SAT = 9.5479e-4, 2.8588e-4  # solar masses (IAU 2015 nominal values)
+
+
+def test_gladman_circular_limit_is_two_root_three_mutual_hill_radii():
+    # Gladman (1993, Icarus 106, 247): two planets on circular orbits are Hill stable
+    # when their separation exceeds 2 sqrt(3) = 3.46 mutual Hill radii (for small masses)
+    m = 1e-6
+    a1 = 1.0
+    rh = (2 * m / 3.0) ** (1 / 3)  # mutual Hill radius over the mean a, to first order
+    for factor, stable in ((1.01, True), (0.99, False)):
+        # solve a2 for (a2 - a1) / (rh (a1 + a2) / 2) = factor * 2 sqrt(3)
+        k = factor * 2 * math.sqrt(3) * rh / 2
+        a2 = a1 * (1 + k) / (1 - k)
+        assert stability.hill_stable_pair(a1, a2, 0.0, 0.0, m, m, 1.0) is stable
+
+
+def test_jupiter_and_saturn_are_hill_and_amd_stable_crossing_orbits_are_not():
+    # Jupiter-Saturn (a 5.20 and 9.58 au, e 0.048 and 0.054): Hill stable (Gladman
+    # 1993) and AMD stable (Laskar & Petit 2017, A&A 605, A72, their table for the
+    # outer Solar System); values from memory
+    assert stability.hill_stable_pair(5.2026, 9.5549, 0.0489, 0.0565, M_JUP, M_SAT, 1.0)
+    beta = stability.amd_beta([[5.2026, 9.5549]], [[0.0489, 0.0565]], [[M_JUP, M_SAT]])
+    assert beta[0, 0] < 1.0
+    # orbits that cross (a 1.0 and 1.3 au, e 0.4 and 0.1): neither
+    assert not stability.hill_stable_pair(1.0, 1.3, 0.4, 0.1, M_JUP, M_SAT, 1.0)
+    assert stability.amd_beta([[1.0, 1.3]], [[0.4, 0.1]], [[M_JUP, M_SAT]])[0, 0] > 1.0
+
+
+def test_critical_amd_is_the_least_amd_of_a_crossing_by_direct_minimization():
+    # Laskar & Petit (2017) define C_c as the least AMD on the collision line
+    # a1 (1 + e1) = a2 (1 - e2); scipy's bounded minimizer finds it directly
+    from scipy.optimize import minimize_scalar
+
+    for alpha, gamma in ((0.5, 1.0), (0.8, 0.1), (0.63, 3.0), (0.95, 0.5)):
+
+        def amd(e1, alpha=alpha, gamma=gamma):
+            e2 = 1 - alpha - alpha * e1
+            return gamma * math.sqrt(alpha) * (1 - math.sqrt(1 - e1 * e1)) + 1 - math.sqrt(
+                1 - e2 * e2)  # fmt: skip
+
+        best = minimize_scalar(amd, bounds=(0.0, (1 - alpha) / alpha * 0.999999),
+                               method="bounded", options={"xatol": 1e-12})  # fmt: skip
+        assert float(stability.critical_amd(alpha, gamma)) == pytest.approx(best.fun, rel=1e-6)
+
+
+def test_stability_summary_counts_draws():
+    rng = np.random.default_rng(3)
+    n = 200
+    draws = {"b.a": np.full(n, 1.0), "c.a": rng.uniform(1.05, 2.0, n), "b.ecc": np.zeros(n),
+             "c.ecc": np.zeros(n), "b.mass": np.full(n, 1e-3), "c.mass": np.full(n, 1e-3),
+             "star_mass": np.ones(n)}  # fmt: skip
+    median = {k: float(np.median(v)) for k, v in draws.items()}
+    out = stability.stability_summary(draws, ["b", "c"], median)
+    margins = stability.hill_margin(1.0, draws["c.a"], 0, 0, 1e-3, 1e-3, 1.0)
+    assert out["hill_stable_fraction"] == pytest.approx(np.mean(margins > 0))
+    assert 0.0 < out["hill_stable_fraction"] < 1.0
+    assert out["pairs"][0]["inner"] == "b" and out["median_hill_stable"]
