@@ -597,6 +597,34 @@ def _add_report(sub) -> argparse.ArgumentParser:
     return p
 
 
+def _run_stability(args: argparse.Namespace) -> int:
+    from rvkep.chaos import run_stability
+
+    out = run_stability(args.run_dir, draws=args.draws, orbits=args.orbits,
+                        workers=args.workers, scheduler=args.scheduler, seed=args.seed,
+                        quiet=args.quiet)  # fmt: skip
+    if not args.quiet:
+        frac = out["fraction_regular"]
+        print(f"{out['draws']} draws over {out['orbits_of_outermost']:g} outer orbits: "
+              f"{frac:.0%} regular (MEGNO <= {out['regular_if_megno_at_most']}), median MEGNO "
+              f"{out['megno_median']:.3g}; wrote {args.run_dir}/stability.json and "
+              "stability.csv")  # fmt: skip
+    return 0
+
+
+def _add_stability(sub) -> argparse.ArgumentParser:
+    p = _subcommand(sub, "stability", "integrate posterior draws of a finished run and measure "
+                    "their chaos (MEGNO)", "Integrate posterior draws of a finished "
+                    "multi-companion run with REBOUND (the dynamics extra) for a number of "
+                    "outer orbits, with the MEGNO chaos indicator (Cincotta & Simo 2000): "
+                    "about 2 for a regular system, growing for a chaotic one. Writes "
+                    "stability.json and stability.csv into RUN_DIR; draws run on local "
+                    "processes or a Dask cluster.", _run_stability)  # fmt: skip
+    p.add_argument("run_dir", metavar="RUN_DIR")
+    options.add_arguments(p, "stability")
+    return p
+
+
 def _run_population(args: argparse.Namespace) -> int:
     from rvkep.hierarchy import run_population
 
@@ -624,6 +652,7 @@ def _add_population(sub) -> argparse.ArgumentParser:
 _SUBCOMMANDS: list = [
     _add_check, _add_periodogram, _add_analyze, _add_demo, _add_sample, _add_batch,
     _add_predict, _add_events, _add_plan, _add_limits, _add_report, _add_population,
+    _add_stability,
 ]  # fmt: skip
 
 

@@ -96,7 +96,9 @@ class LogPosterior:
             rows = np.flatnonzero(ok)
             if rows.size == 0:
                 return lp
-        logL = self.noise.fast_loglike(model, arr, rows, self.linear)
+        logL = None
+        if model.dynamics == "keplerian":  # the compiled shortcuts sum Keplerians
+            logL = self.noise.fast_loglike(model, arr, rows, self.linear)
         if logL is None:  # no compiled shortcut: the noise model's general path
             return self._general(theta, arr, lp)[0]
         value = logL + (lp[rows] if self.include_prior else 0.0)

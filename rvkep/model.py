@@ -28,6 +28,10 @@ coordinate                     physical parameter and implied prior
 ``jitter.<instrument>``        extra white noise (m/s) added in quadrature
 ``noise.<name>``               a parameter the noise model owns (none for white
                                noise; see :mod:`rvkep.noise`), prior as stated
+``dynamics.cos_inc``           N-body models only (``dynamics="nbody"``): the
+                               cosine of the orbits' shared inclination to the
+                               sky; default uniform on [0, cos 10 deg] (isotropic
+                               orientations, masses at most 5.8 x m sin i)
 =============================  =================================================
 
 Offsets (one per instrument), the trend coefficients (slope in m/s/yr, curvature in
@@ -78,6 +82,12 @@ from rvkep.kepler import rv_rows
 from rvkep.orbit import conjunction_mean_anomaly
 from rvkep.physics import StarProperties
 from rvkep.priors import Fixed, Prior, Uniform
+
+#: how the star's velocity follows from the companions' elements: a sum of Keplerians,
+#: or an N-body integration (rvkep.nbody)
+DYNAMICS = ("keplerian", "nbody")
+#: the least inclination of the N-body default prior (degrees)
+MIN_INCLINATION = 10.0
 
 __all__ = [
     "Companion",
@@ -204,6 +214,14 @@ class SystemModel:
         decorrelated against: a linear coefficient per indicator and instrument,
         handled like the offsets. An instrument whose points all lack the column gets
         no coefficient.
+    dynamics : {"keplerian", "nbody"}
+        The star's velocity as a sum of Keplerians, or from an N-body integration of
+        star and companions (:mod:`rvkep.nbody`; the elements are osculating Jacobi
+        elements at the data's epoch, one shared inclination is sampled, the star's
+        mass is its nominal value).
+    dynamics_parameters : list of NoiseParameter, optional
+        The N-body model's own parameters (``cos_inc``) with priors and starts
+        (:func:`dynamics_parameters` when omitted).
     """
 
     data: RVData
@@ -214,8 +232,17 @@ class SystemModel:
     noise: str = "white"  # a name in rvkep.noise.NOISE_MODELS
     noise_parameters: list | None = None  # of rvkep.noise.NoiseParameter
     decorrelate: tuple[str, ...] = ()
+    dynamics: str = "keplerian"
+    dynamics_parameters: list | None = None
 
     def __post_init__(self) -> None:
+        if self.dynamics not in DYNAMICS:
+            raise ValueError(f"dynamics must be one of {', '.join(DYNAMICS)}, got "
+                             f"{self.dynamics!r}")  # fmt: skip
+        if self.dynamics_parameters is None:
+            self.dynamics_parameters = dynamics_parameters(self.dynamics)
+        if self.dynamics == "nbody" and (self.star is None or not self.star.mass > 0):
+            raise ValueError("the N-body model needs the star's mass (--star-mass)")
         own = self.noise_model.parameters(self.data)
         if self.noise_parameters is None:
             self.noise_parameters = own
@@ -286,10 +313,11 @@ class SystemModel:
             if not inst.jitter.is_fixed:
                 names.append(f"jitter.{inst.name}")
                 slots.append(("instrument", ii, "jitter"))
-        for ni, par in enumerate(self.noise_parameters):
-            if not par.prior.is_fixed:
-                names.append(f"noise.{par.name}")
-                slots.append(("noise", ni, par.name))
+        for group, owned in self._groups():
+            for ni, par in enumerate(owned):
+                if not par.prior.is_fixed:
+                    names.append(f"{group}.{par.name}")
+                    slots.append((group, ni, par.name))
         self.names = names
         self._slots = slots
         self._index = {(kind, i, f): j for j, (kind, i, f) in enumerate(slots)}
@@ -335,6 +363,19 @@ class SystemModel:
             np.array([p.domain[0] for p in self.noise_parameters], dtype=float),
             np.array([p.domain[1] for p in self.noise_parameters], dtype=float),
         )
+        dyn = self.dynamics_parameters
+        self._dyn_fill = np.array([p.prior.value if p.prior.is_fixed else np.nan for p in dyn])
+        self._dyn_gather = self._owned("dynamics")
+        self._dyn_domain = (np.array([p.domain[0] for p in dyn], dtype=float),
+                            np.array([p.domain[1] for p in dyn], dtype=float))  # fmt: skip
+
+    def _groups(self) -> tuple[tuple[str, list], ...]:
+        """The owned parameter lists by column prefix: the noise model's and the
+        dynamics'."""
+        return (("noise", self.noise_parameters), ("dynamics", self.dynamics_parameters))
+
+    def _owned_parameter(self, kind: str, i: int):
+        return (self.noise_parameters if kind == "noise" else self.dynamics_parameters)[i]
 
     def _decorrelation_columns(self) -> list[tuple[str, str, np.ndarray]]:
         """(indicator, instrument, design column) for each decorrelation coefficient:
@@ -431,6 +472,12 @@ class SystemModel:
                 if self.noise_parameters
                 else {}
             ),
+            **(
+                {"dynamics": self.dynamics,
+                 "dynamics_parameters": [p.canonical() for p in self.dynamics_parameters]}
+                if self.dynamics != "keplerian"
+                else {}
+            ),  # fmt: skip
             "linear": "marginalized, flat",
             "data_sha256": h.hexdigest(),
         }
@@ -454,6 +501,10 @@ class SystemModel:
                 {**p.canonical(), "start": float(p.start)} for p in self.noise_parameters
             ],  # fmt: skip
             "decorrelate": list(self.decorrelate),
+            "dynamics": self.dynamics,
+            "dynamics_parameters": [
+                {**p.canonical(), "start": float(p.start)} for p in self.dynamics_parameters
+            ],  # fmt: skip
         }
 
     @classmethod
@@ -476,8 +527,15 @@ class SystemModel:
         own = {p.name: p for p in get_noise_model(d["noise"]).parameters(data)}
         noise = [replace(own[p["name"]], prior=prior(p["prior"], f"noise.{p['name']}"),
                          start=float(p["start"])) for p in d["noise_parameters"]]  # fmt: skip
+        kind = d.get("dynamics", "keplerian")
+        mine = {p.name: p for p in dynamics_parameters(kind)}
+        dyn = [replace(mine[p["name"]], prior=prior(p["prior"], f"dynamics.{p['name']}"),
+                       start=float(p["start"]))
+               for p in d.get("dynamics_parameters", [])]  # fmt: skip
         return cls(data, comps, insts, int(d["trend"]), star, noise=d["noise"],
-                   noise_parameters=noise, decorrelate=tuple(d["decorrelate"]))  # fmt: skip
+                   noise_parameters=noise, decorrelate=tuple(d["decorrelate"]),
+                   dynamics=kind,
+                   dynamics_parameters=dyn if kind != "keplerian" else None)  # fmt: skip
 
     # -- coordinates <-> physical ---------------------------------------------
 
@@ -517,8 +575,11 @@ class SystemModel:
         noise = np.empty((theta.shape[0], len(self.noise_parameters)))
         noise[:] = self._noise_fill
         noise[:, self._noise_gather[1]] = theta[:, self._noise_gather[0]]
+        dyn = np.empty((theta.shape[0], len(self.dynamics_parameters)))
+        dyn[:] = self._dyn_fill
+        dyn[:, self._dyn_gather[1]] = theta[:, self._dyn_gather[0]]
         return {"period": P, "tc_rel": tc, "tp_rel": tp, "ecc": e, "omega": omega,
-                "K": K, "jitter": jit, "noise": noise}  # fmt: skip
+                "K": K, "jitter": jit, "noise": noise, "dynamics": dyn}  # fmt: skip
 
     def to_physical(self, theta: np.ndarray) -> dict[str, np.ndarray]:
         """Physical parameters of each row of ``theta`` (shape (n_sets, ndim)).
@@ -559,8 +620,9 @@ class SystemModel:
             out.update(el.columns())
         for ii, inst in enumerate(self.instruments):
             out[f"jitter.{inst.name}"] = arr["jitter"][:, ii]
-        for ni, par in enumerate(self.noise_parameters):
-            out[f"noise.{par.name}"] = arr["noise"][:, ni]
+        for group, owned in self._groups():
+            for ni, par in enumerate(owned):
+                out[f"{group}.{par.name}"] = arr[group][:, ni]
         return out
 
     def from_physical(self, values: dict[str, float | np.ndarray]) -> np.ndarray:
@@ -573,8 +635,8 @@ class SystemModel:
             if kind == "instrument":
                 theta[:, j] = values[f"jitter.{self.instruments[i].name}"]
                 continue
-            if kind == "noise":
-                theta[:, j] = values[f"noise.{f}"]
+            if kind in ("noise", "dynamics"):
+                theta[:, j] = values[f"{kind}.{f}"]
                 continue
             c = self.companions[i]
             L = c.label
@@ -613,8 +675,8 @@ class SystemModel:
             if kind == "instrument":
                 theta[:, j] = self.instruments[i].jitter.ppf(u[:, j])
                 continue
-            if kind == "noise":
-                theta[:, j] = self.noise_parameters[i].prior.ppf(u[:, j])
+            if kind in ("noise", "dynamics"):
+                theta[:, j] = self._owned_parameter(kind, i).prior.ppf(u[:, j])
                 continue
             c = self.companions[i]
             if f == "ln_period":
@@ -652,9 +714,10 @@ class SystemModel:
         for inst in self.instruments:
             value = inst.jitter.value if inst.jitter.is_fixed else inst.start_jitter
             out[f"jitter.{inst.name}"] = float(value)
-        for par in self.noise_parameters:
-            value = par.prior.value if par.prior.is_fixed else par.start
-            out[f"noise.{par.name}"] = float(value)
+        for group, owned in self._groups():
+            for par in owned:
+                value = par.prior.value if par.prior.is_fixed else par.start
+                out[f"{group}.{par.name}"] = float(value)
         return out
 
     def start_theta(self) -> np.ndarray:
@@ -686,7 +749,7 @@ class SystemModel:
             if not inst.jitter.is_fixed:
                 entries.append((4 * nc + ii, inst.jitter))
         ni = len(self.instruments)
-        for pi, par in enumerate(self.noise_parameters):
+        for pi, par in enumerate(self.noise_parameters + self.dynamics_parameters):
             if not par.prior.is_fixed:
                 entries.append((4 * nc + ni + pi, par.prior))
         groups: dict[str, list] = {"uniform": [], "loguniform": [], "normal": [], "other": []}
@@ -742,6 +805,7 @@ class SystemModel:
                 arr["K"],
                 arr["jitter"],
                 arr["noise"],
+                arr["dynamics"],
             ],
             axis=1,
         )
@@ -753,6 +817,8 @@ class SystemModel:
             & (
                 (arr["noise"] >= self._noise_domain[0]) & (arr["noise"] <= self._noise_domain[1])
             ).all(axis=1)
+            & ((arr["dynamics"] >= self._dyn_domain[0])
+               & (arr["dynamics"] <= self._dyn_domain[1])).all(axis=1)
         )
         lp = np.zeros(n)
         with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
@@ -789,7 +855,7 @@ class SystemModel:
         nc, ni = len(self.companions), len(self.instruments)
         plan, jac = self._plan if self._plan is not None else self._prior_plan()
         self._plan = (plan, jac)
-        if plan["other"] or self.noise_parameters:
+        if plan["other"] or self.noise_parameters or self.dynamics != "keplerian":
             self._compiled = ()
             return None
         fields = ("ln_period", "tc_rel", "h", "k", "K")
@@ -856,6 +922,7 @@ class SystemModel:
             (f"noise.{p.name}" + (f" [{p.unit}]" if p.unit else ""), p.prior.describe())
             for p in self.noise_parameters
         ]
+        rows += [(f"dynamics.{p.name}", p.prior.describe()) for p in self.dynamics_parameters]
         rows += [(n, "flat (marginalized analytically)") for n in self.linear_names]
         return rows
 
@@ -878,6 +945,13 @@ def keplerian_velocity(
                                for c in model.companions])
            for f in ("period", "tp", "ecc", "omega", "K")}  # fmt: skip
     arr["tp_rel"] = arr.pop("tp") - epoch
+    if model.dynamics != "keplerian":  # a column of phys, or the start value
+        start = model.start_physical()
+        n = arr["period"].shape[0]
+        arr["dynamics"] = np.column_stack([
+            np.asarray(phys[key], float)[rows] if key in phys else np.full(n, start[key])
+            for key in (f"dynamics.{p.name}" for p in model.dynamics_parameters)
+        ])  # fmt: skip
     return orbit_velocity(model, arr, t_rel)
 
 
@@ -887,6 +961,10 @@ def orbit_velocity(model: SystemModel, arr: dict, t_rel: np.ndarray | None = Non
     (minus the epoch; default the data's): the likelihood's path, free of any round
     trip through absolute times."""
     t = model.t if t_rel is None else np.asarray(t_rel, float)
+    if model.dynamics == "nbody":
+        from rvkep.nbody import star_velocity_rows
+
+        return star_velocity_rows(t, arr, model.star.mass, np.arccos(arr["dynamics"][:, 0]))
     out = np.zeros((next(iter(arr.values())).shape[0], t.size))
     for ci in range(len(model.companions)):
         w = arr["omega"][:, ci]
@@ -901,6 +979,20 @@ _E_CAP = 1.0 - 1e-12  # e >= 1 rows are refused by the prior; keep their tp fini
 def _stretch(e: np.ndarray) -> np.ndarray:
     """The steep coordinates' radius sqrt(-ln(1 - e)) (e = 1 - exp(-radius^2))."""
     return np.sqrt(-np.log1p(-np.asarray(e, float)))
+
+
+def dynamics_parameters(kind: str) -> list:
+    """The parameters a kind of dynamics adds to the sampled vector, with their default
+    priors and starts: none for ``"keplerian"``; for ``"nbody"`` ``cos_inc``, uniform
+    on [0, cos 10 deg] (orientations isotropic; common practice, no source), start 0.1
+    (nearly edge-on, where the N-body model is closest to the Keplerian one)."""
+    from rvkep.noise.base import NoiseParameter
+
+    if kind == "keplerian":
+        return []
+    high = math.cos(math.radians(MIN_INCLINATION))
+    return [NoiseParameter("cos_inc", Uniform(0.0, high), 0.1, "",
+                           "cosine of the shared inclination", (0.0, 1.0))]  # fmt: skip
 
 
 def default_instrument(data: RVData, name: str, jitter: Prior | None = None) -> Instrument:

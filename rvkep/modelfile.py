@@ -33,6 +33,10 @@ It is data, read with :mod:`tomllib`, never executed. Every key is optional exce
     kind = "gp"
     rotation_period = { start = 24, prior = "normal", mean = 24, sd = 3 }   # days
 
+    [dynamics]             # optional: an N-body model (default keplerian)
+    kind = "nbody"
+    cos_inc = { start = 0.5, prior = "uniform", min = 0, max = 0.98 }
+
     [sampling]
     walkers = 32
     max_steps = 20000
@@ -45,6 +49,8 @@ A parameter is a number (a start value with the default prior) or a table with
 value (a plain number stays a start value). Times are in the
 data's time system. ``[noise]`` names the noise model (``kind``: ``white``, ``gp`` or ``night``,
 see :mod:`rvkep.noise`) and takes that model's own parameters with the same syntax.
+``[dynamics]`` chooses ``kind = "keplerian"`` or ``"nbody"`` (:mod:`rvkep.nbody`) and,
+for N-body, the prior of ``cos_inc``, the cosine of the shared inclination.
 Errors name the file, the key and the problem.
 """
 
@@ -70,7 +76,7 @@ else:  # pragma: no cover
 
 __all__ = ["ModelSpec", "CompanionSpec", "read_model_file", "parse_model"]
 
-_TOP = {"star", "data", "trend", "instruments", "companions", "noise", "sampling"}
+_TOP = {"star", "data", "trend", "instruments", "companions", "noise", "dynamics", "sampling"}
 _STAR = {"name", "mass", "mass_err", "radius", "radius_err", "teff", "teff_err", "rotation",
          "rotation_err"}
 _DATA = {"files", "kms", "decorrelate"}
@@ -124,6 +130,8 @@ class ModelSpec:
     star_rotation: tuple | None = None  # (period, error or None) from [star] rotation
     decorrelate: tuple[str, ...] = ()  # indicator columns (the command line's add to them)
     noise_parameters: dict[str, tuple] = field(default_factory=dict)  # name: (prior, start)
+    dynamics: str | None = None  # None: not given (keplerian unless the command line says)
+    dynamics_parameters: dict[str, tuple] = field(default_factory=dict)  # name: (prior, start)
 
     def instruments_for(self, data: RVData) -> list[Instrument]:
         unknown = sorted(set(self.jitter) - set(data.instruments))
@@ -166,6 +174,26 @@ class ModelSpec:
                 elif not lo <= start <= hi:
                     start = float(prior.ppf(0.5))
                 par = replace(par, prior=prior, start=float(start))
+            out.append(par)
+        return out
+
+    def dynamics_parameters_for(self, kind: str) -> list:
+        """The dynamics' own parameters (:func:`rvkep.model.dynamics_parameters`) with
+        this file's priors and starts."""
+        from dataclasses import replace
+
+        from rvkep.model import dynamics_parameters
+
+        out = []
+        for par in dynamics_parameters(kind):
+            prior, start = self.dynamics_parameters.get(par.name, (None, None))
+            par = replace(par, prior=prior or par.prior)
+            if start is not None:
+                par = replace(par, start=float(start))
+            elif prior is not None and not prior.is_fixed:
+                lo, hi = prior.bounds
+                if not lo <= par.start <= hi:
+                    par = replace(par, start=0.5 * (lo + hi))
             out.append(par)
         return out
 
@@ -373,6 +401,7 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
             raise ModelFileError(f"{where}.ecc: start must be in [0, 1), got {c.start['ecc']:g}")
         spec.companions.append(c)
     _read_noise(doc.get("noise", {}), spec, path)
+    _read_dynamics(doc.get("dynamics", {}), spec, path)
     sampling = doc.get("sampling", {})
     _check_keys(sampling, _SAMPLING, _where(path, "sampling"))
     for key, value in sampling.items():
@@ -409,6 +438,37 @@ def _read_noise(table, spec: ModelSpec, path: str) -> None:
         if name in table:
             # a bare number is a start value with the default prior
             spec.noise_parameters[name] = _parameter(table[name], _where(path, "noise", name))
+
+
+def _read_dynamics(table, spec: ModelSpec, path: str) -> None:
+    """The ``[dynamics]`` table: ``kind`` and, for N-body, ``cos_inc``."""
+    from rvkep.model import DYNAMICS, dynamics_parameters
+
+    if not isinstance(table, dict):
+        raise ModelFileError(f"{_where(path, 'dynamics')}: must be a table")
+    if not table:
+        return
+    kind = table.get("kind", "keplerian")
+    if kind not in DYNAMICS:
+        raise ModelFileError(f"{_where(path, 'dynamics', 'kind')}: must be one of "
+                             f"{', '.join(DYNAMICS)}, got {kind!r}")  # fmt: skip
+    own = {p.name: p for p in dynamics_parameters(kind)}
+    _check_keys(table, {"kind", *own}, _where(path, "dynamics"))
+    spec.dynamics = kind
+    for name, par in own.items():
+        if name in table:
+            where = _where(path, "dynamics", name)
+            prior, start = _parameter(table[name], where)
+            lo, hi = par.domain
+            if prior is not None:
+                plo, phi = prior.bounds
+                if plo < lo or phi > hi:
+                    raise ModelFileError(f"{where}: the prior {prior.describe()} reaches "
+                                         f"outside [{lo:g}, {hi:g}]")  # fmt: skip
+            if start is not None and not lo <= start <= hi:
+                raise ModelFileError(f"{where}: start must be in [{lo:g}, {hi:g}], got "
+                                     f"{start:g}")  # fmt: skip
+            spec.dynamics_parameters[name] = (prior, start)
 
 
 def read_model_file(path: str | Path) -> ModelSpec:

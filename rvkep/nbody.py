@@ -22,7 +22,7 @@ Integrator (:func:`integrator_for`): WHFast (Wisdom & Holman 1991, AJ 102, 1528;
 Tamayo 2015, MNRAS 452, 376; symplectic corrector of order 5, Wisdom, Holman &
 Touma 1996) with a step of 1/20 of the shortest period, or IAS15
 (Rein & Spiegel 2015, MNRAS 446, 1424; adaptive, for close encounters) when an orbit
-is eccentric (e >= 0.5) or an adjacent pair is not Hill stable.
+is eccentric (e >= 0.5) or two orbits cross.
 
 Units inside: solar masses, au, days, G = k^2 with the Gaussian constant k.
 """
@@ -121,29 +121,25 @@ def companion_masses(period, K, ecc, star_mass: float, sin_i: float = 1.0) -> np
     return out
 
 
-def _hill_stable(a, e, m, star_mass) -> bool:
-    """Every adjacent pair Hill stable by Gladman's criterion (see rvkep.stability)."""
-    from rvkep.stability import hill_stable_pair
-
-    order = np.argsort(a)
-    return all(
-        hill_stable_pair(a[i], a[j], e[i], e[j], m[i], m[j], star_mass)
-        for i, j in zip(order[:-1], order[1:], strict=True)
-    )
-
-
 def integrator_for(period, ecc, masses, star_mass: float) -> str:
-    """``"whfast"`` or ``"ias15"`` by the rule in the module docstring."""
-    P = np.asarray(period, float)
-    e = np.asarray(ecc, float)
+    """``"whfast"``, or ``"ias15"`` when an orbit is eccentric (e >= :data:`ECCENTRIC`)
+    or two orbits cross (the inner apoastron reaches the outer periastron), where
+    encounters can be close. A heavy 2:1 pair (K 88 and 214 m/s around 0.37 solar
+    masses, e 0.25, not Hill stable) stays within 0.05 m/s of IAS15 over ten years
+    with WHFast at P_min/20 (tests/test_nbody.py), so Hill instability alone does not
+    send a system to the slower integrator."""
+    P = np.atleast_1d(np.asarray(period, float))
+    e = np.atleast_1d(np.asarray(ecc, float))
     if P.size == 0:
         return "whfast"
     if np.max(e) >= ECCENTRIC:
         return "ias15"
-    if P.size > 1:
-        a = np.cbrt(G_AU_DAY * (star_mass + np.asarray(masses)) * (P / (2 * math.pi)) ** 2)
-        if not _hill_stable(a, e, np.asarray(masses), star_mass):
-            return "ias15"
+    order = np.argsort(P)
+    m = np.atleast_1d(np.asarray(masses, float))[order]
+    a = np.cbrt(G_AU_DAY * (star_mass + m) * (P[order] / (2 * math.pi)) ** 2)
+    e = e[order]
+    if np.any(a[:-1] * (1 + e[:-1]) >= a[1:] * (1 - e[1:])):
+        return "ias15"
     return "whfast"
 
 

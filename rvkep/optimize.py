@@ -127,8 +127,8 @@ def _bounds(model: SystemModel) -> list[tuple[float, float]]:
             lo, hi = model.instruments[i].jitter.bounds
             out.append((max(lo, 0.0), hi if np.isfinite(hi) else None))
             continue
-        if kind == "noise":
-            lo, hi = model.noise_parameters[i].prior.bounds
+        if kind in ("noise", "dynamics"):
+            lo, hi = model._owned_parameter(kind, i).prior.bounds
             out.append((lo if np.isfinite(lo) else None, hi if np.isfinite(hi) else None))
             continue
         c = model.companions[i]

@@ -233,6 +233,12 @@ OPTIONS: tuple[Option, ...] = (
            column=True, model_key="[noise] kind",
            shown_default="the model file's [noise], else night for an instrument with two "
            "or more nights of 4+ points within 6 hours, else white"),  # fmt: skip
+    Option("dynamics", "choice", None, "how the star's velocity follows from the "
+           "companions: keplerian (a sum of Keplerian orbits) or nbody (an N-body "
+           "integration with REBOUND, one shared inclination sampled; needs the dynamics "
+           "extra and --star-mass), fitted from the Keplerian solution and compared with it",
+           choices=("keplerian", "nbody"), column=True, model_key="[dynamics] kind",
+           shown_default="the model file's [dynamics], else keplerian"),  # fmt: skip
     Option("decorrelate", "columns", (), "decorrelate the velocities against these extra "
            "data columns (activity indicators such as fwhm,bis): one linear coefficient "
            "per column and instrument, marginalized like the offsets",
@@ -274,7 +280,7 @@ OPTIONS: tuple[Option, ...] = (
     Option("quick", "flag", False, "short chains for a preview or tests (flagged in every "
            "output)", commands=ANALYSIS | {"batch"}),  # fmt: skip
     Option("quiet", "flag", False, "no progress bar or messages",
-           commands=ANALYSIS | {"batch", "limits", "page", "population"}),  # fmt: skip
+           commands=ANALYSIS | {"batch", "limits", "page", "population", "stability"}),  # fmt: skip
     Option("timings", "flag", False, "print the seconds each stage took (always in "
            "results.json)", commands=ANALYSIS),  # fmt: skip
     # --- periodogram
@@ -287,7 +293,7 @@ OPTIONS: tuple[Option, ...] = (
            shown_default="the number of cores", commands=frozenset({"batch"})),  # fmt: skip
     Option("scheduler", "text", None, "run on an existing Dask cluster, e.g. "
            "tcp://10.0.0.5:8786", metavar="ADDRESS",
-           commands=frozenset({"batch", "limits"})),  # fmt: skip
+           commands=frozenset({"batch", "limits", "stability"})),  # fmt: skip
     Option("seed", "int", 0, "seed of the whole list (each target's seed follows from it "
            "and the target's name)", low=0, high=MAX_SEED,
            commands=frozenset({"batch"})),  # fmt: skip
@@ -310,7 +316,7 @@ OPTIONS: tuple[Option, ...] = (
     Option("draws", "int", None, "posterior draws", low=1, high=10_000_000,
            shown_default="all", commands=frozenset({"predict"})),  # fmt: skip
     Option("seed", "int", 0, "chooses the posterior draws", low=0, high=MAX_SEED,
-           commands=frozenset({"predict", "plan", "limits"})),  # fmt: skip
+           commands=frozenset({"predict", "plan", "limits", "stability"})),  # fmt: skip
     Option("out", "path", None, "CSV file", metavar="FILE", shown_default="standard output",
            commands=frozenset({"predict", "events", "plan"})),  # fmt: skip
     Option("ra", "float", None, "right ascension (ICRS), for calendar dates", metavar="DEG",
@@ -367,6 +373,13 @@ OPTIONS: tuple[Option, ...] = (
            commands=frozenset({"limits"})),  # fmt: skip
     Option("out", "path", None, "output folder", metavar="DIR",
            shown_default="the run's folder", commands=frozenset({"limits"})),  # fmt: skip
+    # --- stability
+    Option("draws", "int", 100, "posterior draws to integrate", low=1, high=100_000,
+           commands=frozenset({"stability"})),  # fmt: skip
+    Option("orbits", "float", 5000.0, "length of each integration in periods of the "
+           "outermost companion", low=10, high=1e7, commands=frozenset({"stability"})),  # fmt: skip
+    Option("workers", "int", 1, "local processes", metavar="N", low=1, high=4096,
+           commands=frozenset({"stability"})),  # fmt: skip
     # --- population
     Option("out", "path", None, "output folder", metavar="DIR", required=True,
            commands=frozenset({"population"})),  # fmt: skip

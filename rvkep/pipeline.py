@@ -381,6 +381,7 @@ def analyze(files=None, opts: AnalyzeOptions | None = None, **keywords):
     check_against_model_file(opts, spec)
     data, data_notes = read_data(files, opts, spec)
     star = star_properties(opts, spec)
+    check_dynamics(opts, spec, star)
     prepare_kernels(quiet=opts.quiet)  # the first run after an install compiles them
     timings = {"read": time.perf_counter() - t_start}
     out = Path(opts.out)
@@ -457,7 +458,11 @@ def _run_in_folder(files, opts, spec, data, data_notes, star, out: Path, timings
         _say(opts, f"read {len(data)} velocities from {len(data.instruments)} instrument(s): "
                    f"{', '.join(data.instruments)}")  # fmt: skip
         chosen = choose_model(data, opts, spec, folder=out)
+        t0 = time.perf_counter()
+        chosen = fit_dynamics(chosen, opts, spec, star)
         timings.update(chosen.timings)
+        if chosen.dynamics_rows:
+            timings["nbody_fit"] = time.perf_counter() - t0
         t0 = time.perf_counter()
         sampled, sample_notes, seed = sample_posterior(chosen.fit, opts, spec, out / "chain.h5",
                                                        nested=chosen.nested)  # fmt: skip
@@ -570,6 +575,7 @@ class ModelChoice:
     evidence: list[dict] = field(default_factory=list)  # ln Z per number of companions
     nested: object = None  # the nested run of the chosen model, when there is one
     extra_notes: list[str] = field(default_factory=list)  # from the evidence stage
+    dynamics_rows: list[dict] = field(default_factory=list)  # Keplerian against N-body
     timings: dict = field(default_factory=dict)  # seconds: model_choice, evidence
 
 
@@ -639,6 +645,74 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
 #: this: a Bayes factor above e^5 ~ 150, "very strong" on the scale of Kass & Raftery
 #: (1995, 2 ln B > 10), the same bar as the BIC rule (Delta BIC ~ -2 ln B)
 EVIDENCE_THRESHOLD = 5.0
+
+
+def dynamics_kind(opts: AnalyzeOptions, spec=None) -> str:
+    """``--dynamics`` over the model file's ``[dynamics] kind``, else keplerian."""
+    return opts.dynamics or (spec.dynamics if spec is not None else None) or "keplerian"
+
+
+def check_dynamics(opts: AnalyzeOptions, spec, star) -> None:
+    """Refuse an N-body run that cannot start, before any folder is made: REBOUND
+    missing, or no stellar mass (the masses, and so the interactions, scale with it)."""
+    if dynamics_kind(opts, spec) != "nbody":
+        return
+    from rvkep.nbody import require_rebound
+
+    require_rebound()
+    if star is None:
+        raise OptionError("--dynamics nbody needs the star's mass: give --star-mass (or a "
+                          "model file's [star] mass)")  # fmt: skip
+
+
+#: inclinations (cosines) the N-body best fit starts from, beside the model's own start
+NBODY_STARTS = (0.1, 0.5, 0.8)
+
+
+def fit_dynamics(choice: ModelChoice, opts: AnalyzeOptions, spec=None, star=None) -> ModelChoice:
+    """Stage 3b, with ``--dynamics nbody``: the chosen Keplerian model refitted as an
+    N-body one (:mod:`rvkep.nbody`), from the Keplerian optimum at several
+    inclinations; the two are compared (ln L, BIC) in ``dynamics_rows`` and the
+    N-body fit becomes the chosen one. Without companions there is nothing to
+    integrate and the Keplerian model stays, with a note."""
+    from rvkep.optimize import fit as best_fit
+
+    kind = dynamics_kind(opts, spec)
+    if kind == "keplerian":
+        return choice
+    kep = choice.fit
+    if not kep.model.companions:
+        choice.notes.append("--dynamics nbody: no companion was adopted, so the model stays "
+                            "Keplerian")  # fmt: skip
+        return choice
+    own = spec.dynamics_parameters_for(kind) if spec is not None else None
+    model = replace(kep.model, dynamics=kind, dynamics_parameters=own, star=star)
+    start = {k: v for k, v in kep.params.items() if k in set(model.start_physical())}
+    cos_starts = dict.fromkeys([model.start_physical()["dynamics.cos_inc"], *NBODY_STARTS])
+    lo, hi = model.dynamics_parameters[0].prior.bounds
+    starts = [model.from_physical({**start, "dynamics.cos_inc": c})[0]
+              for c in cos_starts if lo <= c <= hi]  # fmt: skip
+    _say(opts, f"N-body fit (REBOUND) of {len(kep.model.companions)} companion(s) from the "
+               f"Keplerian solution, {len(starts)} inclination start(s)")  # fmt: skip
+    nb = best_fit(model, starts)
+    rows = []
+    for name, f in (("keplerian", kep), ("nbody", nb)):
+        rows.append({"dynamics": name, "n_free": f.n_free, "log_likelihood": f.log_likelihood,
+                     "bic": f.bic})  # fmt: skip
+    best_bic = min(r["bic"] for r in rows)
+    for r in rows:
+        r["delta_bic"] = r["bic"] - best_bic
+    gain = nb.log_likelihood - kep.log_likelihood
+    inc = math.degrees(math.acos(min(1.0, nb.params["dynamics.cos_inc"])))
+    _say(opts, f"N-body: ln L {nb.log_likelihood:.2f} against {kep.log_likelihood:.2f} "
+               f"(Keplerian), delta BIC {rows[1]['bic'] - rows[0]['bic']:+.2f}; inclination "
+               f"{inc:.1f} deg at the best fit")  # fmt: skip
+    if gain < -1.0:  # a nested model (sin i -> 1, light masses) should not lose
+        choice.notes.append(f"the N-body best fit has ln L lower than the Keplerian one by "
+                            f"{-gain:.1f}: the optimizer may have stopped early")  # fmt: skip
+    choice.fit = nb
+    choice.dynamics_rows = rows
+    return choice
 
 
 def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
@@ -820,6 +894,7 @@ def _build_results(data, chosen: ModelChoice, sampled, star, opts, seed: int, no
         data, fit, sampled, posterior, star, rng=seed + 1, search=chosen.search,
         comparison=chosen.comparison, quick=opts.quick, seed=seed,
         trend_comparison=chosen.trend_rows, evidence=chosen.evidence,
+        dynamics_comparison=chosen.dynamics_rows,
     )  # fmt: skip
     results.notes.extend(notes)
     from rvkep.constraint import prior_notes

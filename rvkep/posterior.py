@@ -64,8 +64,10 @@ class PosteriorSamples:
             cols.update({f"{el.label}.{k}": named[f"{el.label}.{k}"] for k in order})
         for inst in model.instruments:
             cols[f"jitter.{inst.name}"] = phys[f"jitter.{inst.name}"]
-        for par in model.noise_parameters:
-            cols[f"noise.{par.name}"] = phys[f"noise.{par.name}"]
+        for group, owned in (("noise", model.noise_parameters),
+                             ("dynamics", model.dynamics_parameters)):  # fmt: skip
+            for par in owned:
+                cols[f"{group}.{par.name}"] = phys[f"{group}.{par.name}"]
         lin = LogPosterior(model).linear_parameters(flat, rng=rng)
         for j, name in enumerate(model.linear_names):
             cols[name] = lin[:, j]

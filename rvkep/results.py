@@ -55,6 +55,8 @@ class Results:
     saved: dict | None = None  # results.json of a run read back by Results.load
     provenance: dict = field(default_factory=dict)  # command, seed, input checksums
     star_name: str | None = None  # titles the summary and the report
+    dynamics_comparison: list[dict] = field(default_factory=list)  # Keplerian vs N-body
+    stability: dict = field(default_factory=dict)  # rvkep.stability.stability_summary
 
     # -- building -------------------------------------------------------------
 
@@ -78,7 +80,22 @@ class Results:
                     posterior.add(f"{L}.{key}", values)
         if fit.model.companions:
             posterior.add("star.mass_msun", star_mass)
+        if fit.model.dynamics == "nbody":  # the inclination and true masses
+            from rvkep.physics import minimum_mass
+
+            cos_i = np.clip(posterior["dynamics.cos_inc"], 0.0, 1.0)
+            sin_i = np.sqrt(1.0 - cos_i**2)
+            posterior.add("dynamics.inclination_deg", np.degrees(np.arccos(cos_i)))
+            for c in fit.model.companions:
+                L = c.label
+                mass = minimum_mass(posterior[f"{L}.period"], posterior[f"{L}.K"] / sin_i,
+                                    posterior[f"{L}.ecc"], star_mass)  # fmt: skip
+                posterior.add(f"{L}.mass_mjup", mass)
         out = cls(data, posterior, fit, sampling, star=star, star_assumed=assumed, **kwargs)
+        if len(fit.model.companions) > 1:
+            out.stability = _stability(fit.model, posterior)
+            if not (out.stability["median_hill_stable"] and out.stability["median_amd_stable"]):
+                out.notes.append(_stability_warning(out.stability))
         if assumed:
             out.notes.append("star mass not given: 1 M_sun assumed for masses and orbit sizes")
         return out
@@ -189,6 +206,8 @@ class Results:
             trend_comparison=saved.get("trend_comparison", []), quick=bool(kind["quick"]),
             seed=saved.get("seed"), notes=list(saved.get("notes", [])), saved=saved,
             star_name=s.get("name"),
+            dynamics_comparison=saved.get("dynamics", {}).get("comparison", []),
+            stability=saved.get("stability", {}),
         )  # fmt: skip
 
     def predict(
@@ -431,6 +450,14 @@ class Results:
             "evidence": list(self.evidence),
             "timings": {k: float(v) for k, v in self.timings.items()},
             "trend_comparison": self.trend_comparison,
+            **({"dynamics": {
+                "kind": model.dynamics,
+                "inclination_deg": self.estimate("dynamics.inclination_deg"),
+                "comparison": self.dynamics_comparison,
+                "integrator": "REBOUND: WHFast (step P_min/20), or IAS15 for e >= 0.5 or "
+                              "crossing orbits; coplanar, Jacobi elements at the epoch",
+            }} if model.dynamics != "keplerian" else {}),  # fmt: skip
+            **({"stability": self.stability} if self.stability else {}),
             "priors": [{"parameter": p, "prior": d} for p, d in model.describe_priors()],
             "reference_epoch": self.data.epoch,
             "seed": self.seed,
@@ -480,7 +507,15 @@ class Results:
                 f"  {p['label']}: P = {text_estimate(p['period_d'])} d, K = {text_estimate(p['K_mps'])} m/s, "
                 f"e = {text_estimate(p['ecc'])}, m sin i = {text_estimate(p['msini_mjup'])} M_Jup "
                 f"({text_estimate(p['msini_mearth'])} M_Earth), a = {text_estimate(p['a_au'])} au"
+                + (f", m = {text_estimate(p['mass_mjup'])} M_Jup" if "mass_mjup" in p else "")
             )
+        if "dynamics" in d:
+            lines.append(f"  N-body: inclination = {text_estimate(d['dynamics']['inclination_deg'])}"
+                         " deg (shared)")  # fmt: skip
+        if "stability" in d:
+            st = d["stability"]
+            lines.append(f"  stable draws: Hill {st['hill_stable_fraction']:.0%}, AMD "
+                         f"{st['amd_stable_fraction']:.0%}")  # fmt: skip
         for i in d["instruments"]:
             lines.append(
                 f"  {i['name']}: offset = {text_estimate(i['offset_mps'])} m/s, jitter = {text_estimate(i['jitter_mps'])} m/s"
@@ -555,7 +590,7 @@ def _load_fit(folder: Path, data, star, saved: dict, posterior: PosteriorSamples
         raise DataError(f"{folder}: model.json and results.json disagree (best-fit ln L "
                         f"{fit.log_likelihood:.6f}, saved {want:.6f})")  # fmt: skip
     cols = {k: v for k, v in posterior.columns.items()
-            if k.startswith(("jitter.", "noise."))}  # fmt: skip
+            if k.startswith(("jitter.", "noise.", "dynamics."))}  # fmt: skip
     for c in model.companions:
         cols.update(Elements.from_columns(c.label, posterior.columns).columns())
     posterior.theta = model.from_physical(cols)
@@ -608,3 +643,34 @@ def _clean(x):
     if isinstance(x, np.bool_):
         return bool(x)
     return x
+
+
+def _stability(model, posterior) -> dict:
+    """Hill and AMD stability per posterior draw (:mod:`rvkep.stability`): masses are
+    the true masses of an N-body run, else m sin i (coplanar, edge-on: the least
+    masses, so the most favourable case)."""
+    from rvkep.physics import M_JUP, M_SUN
+    from rvkep.stability import stability_summary
+
+    labels = [c.label for c in model.companions]
+    mass_key = "mass_mjup" if model.dynamics == "nbody" else "msini_mjup"
+    draws = {"star_mass": np.asarray(posterior["star.mass_msun"], float)}
+    for L in labels:
+        draws[f"{L}.a"] = np.asarray(posterior[f"{L}.a_au"], float)
+        draws[f"{L}.ecc"] = np.asarray(posterior[f"{L}.ecc"], float)
+        draws[f"{L}.mass"] = np.asarray(posterior[f"{L}.{mass_key}"], float) * (M_JUP / M_SUN)
+    median = {k: float(np.median(v)) for k, v in draws.items()}
+    out = stability_summary(draws, labels, median)
+    out["masses"] = "true masses (N-body inclination)" if mass_key == "mass_mjup" else (
+        "minimum masses m sin i, coplanar")  # fmt: skip
+    return out
+
+
+def _stability_warning(stab: dict) -> str:
+    """The note for a median solution that fails a criterion."""
+    failed = [name for name, ok in (("Hill (Gladman 1993)", stab["median_hill_stable"]),
+                                    ("AMD (Laskar & Petit 2017)", stab["median_amd_stable"]))
+              if not ok]  # fmt: skip
+    return (f"WARNING: the median solution is not {' or '.join(failed)} stable; stable draws: "
+            f"Hill {stab['hill_stable_fraction']:.0%}, AMD {stab['amd_stable_fraction']:.0%} "
+            "(a resonance can protect such a pair: check with rvkep stability)")

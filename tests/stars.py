@@ -6,8 +6,11 @@ inputs, not demos. Times are BJD - 2450000 style numbers near 2459000.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
+from rvkep import nbody
 from rvkep.data import RVData
 from rvkep.orbit import radial_velocity
 
@@ -105,3 +108,111 @@ def signal_in_one_instrument(seed: int = 11) -> RVData:
     v = v + np.where(inst == "wren", radial_velocity(t, 9.3, 2459003.0, 0.0, 0.0, 4.0), 0.0)
     v = v + np.where(inst == "wren", 25.0, 0.0) + rng.normal(0, 1.0, t.size) * err
     return RVData(t, v, err, inst)
+
+
+# -- interacting planets: an integration of Newton's equations independent of REBOUND --
+
+G = nbody.G_AU_DAY  # the Gaussian constant squared (au^3 / Msun / day^2)
+
+
+def _kepler_state(mu, P, e, w_planet, M0, inc):
+    """Position and velocity of a two-body relative orbit from its elements (node 0),
+    from the textbook formulas (Murray & Dermott 1999, Solar System Dynamics, sec. 2.8),
+    written here without REBOUND."""
+    a = (mu * (P / (2 * math.pi)) ** 2) ** (1 / 3)
+    E = M0
+    for _ in range(50):
+        E = E - (E - e * math.sin(E) - M0) / (1 - e * math.cos(E))
+    nu = 2 * math.atan2(math.sqrt(1 + e) * math.sin(E / 2), math.sqrt(1 - e) * math.cos(E / 2))
+    r = a * (1 - e * math.cos(E))
+    h = math.sqrt(mu * a * (1 - e * e))
+    x_orb = np.array([r * math.cos(nu), r * math.sin(nu), 0.0])
+    v_orb = np.array([-mu / h * math.sin(nu), mu / h * (e + math.cos(nu)), 0.0])
+    cw, sw, ci, si = math.cos(w_planet), math.sin(w_planet), math.cos(inc), math.sin(inc)
+    Rw = np.array([[cw, -sw, 0], [sw, cw, 0], [0, 0, 1]])
+    Ri = np.array([[1, 0, 0], [0, ci, -si], [0, si, ci]])
+    R = Ri @ Rw
+    return R @ x_orb, R @ v_orb
+
+
+def _masses(P, K, e, M_star, sin_i):
+    """Masses from the mass function with the interior mass (scipy's brentq)."""
+    from scipy.optimize import brentq
+
+    out, interior = [], M_star
+    gm_sun = G * nbody.AU_M**3 / 86400.0**2
+    for Pj, Kj, ej in zip(P, K, e, strict=True):
+        f = Pj * 86400 * Kj**3 * (1 - ej * ej) ** 1.5 / (2 * math.pi * gm_sun) / sin_i**3
+        m = brentq(lambda m, f=f, M=interior: m**3 - f * (M + m) ** 2, 1e-12, 1.0, xtol=1e-18)
+        out.append(m)
+        interior += m
+    return out
+
+
+def newton_star_velocity(t, P, tp, e, w, K, M_star, inc):
+    """The star's vz (m/s) from Jacobi elements at t = 0 integrated with solve_ivp
+    (DOP853, rtol 1e-12, atol 1e-15), forwards and backwards. Planets sorted by period."""
+    from scipy.integrate import solve_ivp
+
+    masses = _masses(P, K, e, M_star, math.sin(inc))
+    pos = [np.zeros(3)]
+    vel = [np.zeros(3)]
+    m_all = [M_star]
+    com_r, com_v, interior = np.zeros(3), np.zeros(3), M_star
+    for j in range(len(P)):
+        mu = G * (interior + masses[j])
+        r, v = _kepler_state(mu, P[j], e[j], w[j] + math.pi, 2 * math.pi * (0 - tp[j]) / P[j],
+                             inc)  # fmt: skip
+        pos.append(com_r + r)
+        vel.append(com_v + v)
+        m_all.append(masses[j])
+        com_r = (interior * com_r + masses[j] * pos[-1]) / (interior + masses[j])
+        com_v = (interior * com_v + masses[j] * vel[-1]) / (interior + masses[j])
+        interior += masses[j]
+    m_all = np.array(m_all)
+    X = np.array(pos) - com_r
+    V = np.array(vel) - com_v
+    n = len(m_all)
+
+    def rhs(_, y):
+        x = y[: 3 * n].reshape(n, 3)
+        d = x[None, :, :] - x[:, None, :]
+        r3 = np.sum(d * d, axis=2) ** 1.5
+        np.fill_diagonal(r3, np.inf)
+        acc = G * np.sum(m_all[None, :, None] * d / r3[:, :, None], axis=1)
+        return np.concatenate([y[3 * n :], acc.ravel()])
+
+    y0 = np.concatenate([X.ravel(), V.ravel()])
+    out = np.empty(t.size)
+    for side in (t >= 0, t < 0):
+        if not side.any():
+            continue
+        ts = t[side]
+        end = ts.max() if ts[0] >= 0 else ts.min()
+        sol = solve_ivp(rhs, (0.0, end), y0, method="DOP853", rtol=1e-12, atol=1e-15,
+                        t_eval=np.sort(ts) if end > 0 else np.sort(ts)[::-1])  # fmt: skip
+        got = dict(zip(sol.t, sol.y[3 * n + 2], strict=True))
+        out[side] = [got[x] for x in ts]
+    return out * nbody.M_PER_S
+
+
+def interacting_pair(
+    seed: int = 13, inclination_deg: float = 60.0, n: int = 70, span: float = 1400.0
+) -> tuple[RVData, dict]:
+    """Two planets in 2:1 resonance around an M dwarf of 0.37 solar masses: P 30.1 and
+    61.1 d, K 88 and 214 m/s, e 0.25 (omega 1.1 rad) and 0.03 (omega 2.9 rad), as
+    osculating Jacobi elements at the data's epoch (the middle of the data, as rvkep
+    sets it), coplanar at ``inclination_deg``; ``n`` velocities over ``span`` days from
+    one spectrograph with 2 m/s errors, made by :func:`newton_star_velocity` (scipy's
+    DOP853 on Newton's equations, not REBOUND). Returns (data, truth)."""
+    rng = np.random.default_rng(seed)
+    t = _season_times(rng, n, span)
+    epoch = float(np.round(0.5 * (t[0] + t[-1])))
+    truth = dict(P=np.array([30.1, 61.1]), tp=np.array([4.0, -12.0]), e=np.array([0.25, 0.03]),
+                 w=np.array([1.1, 2.9]), K=np.array([88.0, 214.0]), star_mass=0.37,
+                 inclination_deg=inclination_deg, epoch=epoch)  # fmt: skip
+    v = newton_star_velocity(t - epoch, truth["P"], truth["tp"], truth["e"], truth["w"],
+                             truth["K"], 0.37, math.radians(inclination_deg))  # fmt: skip
+    err = np.full(t.size, 2.0)
+    data = RVData(t, v + rng.normal(0, 2.0, t.size), err, np.array(["wren"] * t.size))
+    return data, truth

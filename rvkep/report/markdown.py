@@ -168,6 +168,7 @@ def render(results) -> str:
                 f"| {row['degree']} | {row['n_companions']} | {periods} | {row.get('n_free', '')} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
             )
         lines.append("")
+    lines += _dynamics_lines(d)
     lines += [
         "## Sampler", "",
         (f"{s['walkers']} walkers, {s['steps']} steps, autocorrelation time {s['autocorr_steps']:.1f} steps, "
@@ -210,4 +211,37 @@ def _how_it_was_run(prov: dict | None) -> list[str]:
                      f"seed {prov.get('seed')}.")  # fmt: skip
     for f in prov.get("inputs", []):
         lines.append(f"- input `{f['file']}`: sha256 {f['sha256'] or 'unreadable'}.")
+    return lines
+
+
+def _dynamics_lines(d: dict) -> list[str]:
+    """The N-body comparison and the stability of a multi-companion solution."""
+    lines: list[str] = []
+    dyn = d.get("dynamics")
+    if dyn:
+        inc = dyn["inclination_deg"]
+        lines += [
+            "## Dynamics", "",
+            f"N-body model ({dyn['integrator']}); light-travel time neglected. Shared "
+            f"inclination {inc['median']:.1f} (+{inc['plus']:.1f} -{inc['minus']:.1f}) "
+            "deg.", "",
+            "| dynamics | free parameters | ln L | BIC | delta BIC |", "|---|---|---|---|---|",
+        ]  # fmt: skip
+        lines += [f"| {r['dynamics']} | {r['n_free']} | {r['log_likelihood']:.2f} | "
+                  f"{r['bic']:.2f} | {r['delta_bic']:.2f} |" for r in dyn["comparison"]]  # fmt: skip
+        lines.append("")
+    st = d.get("stability")
+    if st:
+        lines += [
+            "## Stability", "",
+            f"Over {st['draws']:,} posterior draws ({st['masses']}): Hill stable "
+            f"(Gladman 1993) {st['hill_stable_fraction']:.1%}, AMD stable (Laskar & Petit "
+            f"2017) {st['amd_stable_fraction']:.1%}.", "",
+            "| pair | Hill margin | AMD beta | median solution |", "|---|---|---|---|",
+        ]  # fmt: skip
+        for p in st["pairs"]:
+            ok = p["hill_margin"] > 0 and p["amd_beta"] < 1
+            lines.append(f"| {p['inner']}-{p['outer']} | {p['hill_margin']:+.3g} | "
+                         f"{p['amd_beta']:.3g} | {'stable' if ok else 'NOT stable'} |")  # fmt: skip
+        lines.append("")
     return lines

@@ -23,6 +23,7 @@ PLANET_COLUMNS = [
     ("tc_bjd", "tc", "", r"$t_\mathrm{c}$"),
     ("msini_mjup", "msini_mjup", "M$_\\mathrm{J}$", r"$m \sin i$"),
     ("msini_mearth", "msini_mearth", "M$_\\oplus$", r"$m \sin i$"),
+    ("mass_mjup", "mass_mjup", "M$_\\mathrm{J}$", r"$m$"),  # N-body runs: the true mass
     ("a_au", "a_au", "au", r"$a$"),
     ("periastron_au", "periastron_au", "au", r"$r_\mathrm{peri}$"),
     ("apastron_au", "apastron_au", "au", r"$r_\mathrm{apo}$"),
@@ -94,6 +95,10 @@ def parameter_rows(results) -> list[ParameterRow]:
         est = results.estimate(f"noise.{name}")
         rows.append(ParameterRow(f"noise ({results.noise_kind})", name, symbol, est, unit,
                                  plain_unit(unit)))  # fmt: skip
+    if "dynamics.inclination_deg" in results.posterior:
+        est = results.estimate("dynamics.inclination_deg")
+        rows.append(ParameterRow("dynamics (N-body)", "inclination_deg", r"$i$", est, "deg",
+                                 "deg"))  # fmt: skip
     degree = results.trend_degree
     if degree >= 1:
         rows.append(ParameterRow("trend", "slope_mps_per_yr", r"$\dot\gamma$",
