@@ -164,3 +164,57 @@ def test_stability_summary_counts_draws():
     assert out["hill_stable_fraction"] == pytest.approx(np.mean(margins > 0))
     assert 0.0 < out["hill_stable_fraction"] < 1.0
     assert out["pairs"][0]["inner"] == "b" and out["median_hill_stable"]
+
+
+# -- the N-body model in the system model, the model file and the likelihood ------------
+
+
+def _pair_model(**kw):
+    from stars import interacting_pair
+
+    from rvkep.model import SystemModel, default_companion
+    from rvkep.physics import StarProperties
+
+    data, truth = interacting_pair(n=30, span=600.0)
+    rows = zip("bc", truth["P"], truth["K"], truth["e"], strict=True)
+    comps = [default_companion(data, L, P, truth["epoch"] + 3.0, K, ecc=e) for L, P, K, e in rows]
+    return SystemModel(data, comps, star=StarProperties(0.37), **kw), data
+
+
+def test_nbody_model_keys_checkpoints_round_trips_and_scores_rows():
+    # the layout itself (common practice, no source): one more sampled coordinate, a
+    # different checkpoint key, model.json round trip, and a finite log posterior
+    from rvkep.likelihood import LogPosterior
+    from rvkep.model import SystemModel
+
+    kep, data = _pair_model()
+    nb, _ = _pair_model(dynamics="nbody")
+    assert nb.ndim == kep.ndim + 1 and nb.names[-1] == "dynamics.cos_inc"
+    assert nb.canonical() != kep.canonical() and "dynamics" not in kep.canonical()
+    again = SystemModel.from_dict(nb.to_dict(), data, nb.star)
+    assert again.canonical() == nb.canonical()
+    theta = np.repeat(nb.start_theta()[None, :], 3, axis=0)
+    theta[1, -1] = 0.5
+    theta[2, -1] = 1.5  # outside the prior: -inf, no integration
+    values = LogPosterior(nb)(theta)
+    assert np.isfinite(values[:2]).all() and values[2] == -np.inf
+    assert values[0] != values[1]  # the inclination changes the interactions
+    with pytest.raises(ValueError, match="star's mass"):
+        SystemModel(data, [], dynamics="nbody")
+
+
+def test_model_file_dynamics_table_is_read_and_checked(tmp_path):
+    # the model file's [dynamics] table (common practice, no source)
+    from rvkep.errors import ModelFileError
+    from rvkep.modelfile import parse_model
+
+    doc = {"dynamics": {"kind": "nbody", "cos_inc": {"start": 0.4, "prior": "uniform",
+                                                      "min": 0.0, "max": 0.9}}}  # fmt: skip
+    spec = parse_model(doc, "m.toml")
+    (par,) = spec.dynamics_parameters_for("nbody")
+    assert spec.dynamics == "nbody" and par.start == 0.4 and par.prior.bounds == (0.0, 0.9)
+    with pytest.raises(ModelFileError, match=r"dynamics\.cos_inc.*outside"):
+        parse_model({"dynamics": {"kind": "nbody", "cos_inc": {"prior": "uniform", "min": 0,
+                                                               "max": 2}}}, "m.toml")  # fmt: skip
+    with pytest.raises(ModelFileError, match="dynamics.kind"):
+        parse_model({"dynamics": {"kind": "relativistic"}}, "m.toml")

@@ -30,7 +30,8 @@ def test_nbody_run_recovers_the_pair_and_the_inclination_and_its_draws_are_regul
     table.write_text(
         "time,rv,err\n"
         + "".join(
-            f"{t:.8f},{v:.6f},{e:.3f}\n" for t, v, e in zip(data.time, data.rv, data.err, strict=True)
+            f"{t:.8f},{v:.6f},{e:.3f}\n"
+            for t, v, e in zip(data.time, data.rv, data.err, strict=True)
         )
     )
     run = _rvkep("analyze", str(table), "--star-mass", "0.37", "--companions", "2", "--trend",
@@ -73,7 +74,8 @@ def test_nbody_without_a_star_mass_is_refused_before_anything_is_written(tmp_pat
     table.write_text(
         "time,rv,err\n"
         + "".join(
-            f"{t:.8f},{v:.6f},{e:.3f}\n" for t, v, e in zip(data.time, data.rv, data.err, strict=True)
+            f"{t:.8f},{v:.6f},{e:.3f}\n"
+            for t, v, e in zip(data.time, data.rv, data.err, strict=True)
         )
     )
     run = _rvkep("analyze", str(table), "--dynamics", "nbody", "--out", "run", cwd=tmp_path)
