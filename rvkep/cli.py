@@ -458,8 +458,9 @@ def _run_events(args: argparse.Namespace) -> int:
         raise OptionError(str(exc)) from None
     fields = ["companion", "event", "time_median", "time_lo68", "time_hi68", "time_lo95",
               "time_hi95", "transit_probability"]  # fmt: skip
+    dyn = f"; {res.dynamics_note}" if res.dynamics_note else ""
     _write_csv(args.out, f"rvkep events: {args.run_dir} ({res.run_label()}); times in the "
-               f"data's system{note}; intervals 68.27% and 95.45% over the posterior",
+               f"data's system{note}; intervals 68.27% and 95.45% over the posterior{dyn}",
                fields, rows)  # fmt: skip
     return 0
 
@@ -500,7 +501,7 @@ def _run_plan(args: argparse.Namespace) -> int:
                f"{plan.noise_sd:.3g} m/s{gain}; site {args.site}, RA {args.ra:g}, Dec "
                f"{args.dec:g}, Sun below {plan.grid.sun_limit:g} deg, airmass <= "
                f"{args.max_airmass:g}; time in the data's system (BJD_TDB minus "
-               f"{plan.time_offset:g})",
+               f"{plan.time_offset:g})" + (f"; {res.dynamics_note}" if res.dynamics_note else ""),
                fields, rows)  # fmt: skip
     figure = args.figure or (str(Path(args.out).with_suffix(".png")) if args.out else None)
     if figure:

@@ -326,6 +326,15 @@ class Results:
             marks.append(f"stellar mass ASSUMED ({self.star.mass:g} M_sun)")
         return marks
 
+    @property
+    def dynamics_note(self) -> str:
+        """For an N-body run, what the Keplerian-based outputs (events, plans) assume;
+        empty otherwise."""
+        if "dynamics.cos_inc" not in self.posterior:
+            return ""
+        return ("N-body run: from each companion's osculating elements at the epoch as "
+                "Keplerian orbits (the interactions shift later events)")
+
     def run_label(self) -> str:
         """The marks joined into one line, or ``final`` when there are none."""
         return "; ".join(self.run_marks()) or "final"

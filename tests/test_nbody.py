@@ -218,3 +218,27 @@ def test_model_file_dynamics_table_is_read_and_checked(tmp_path):
                                                                "max": 2}}}, "m.toml")  # fmt: skip
     with pytest.raises(ModelFileError, match="dynamics.kind"):
         parse_model({"dynamics": {"kind": "relativistic"}}, "m.toml")
+
+
+def test_predictions_of_an_nbody_run_integrate_each_draw():
+    # the prediction's total is the integration of each draw (rvkep.nbody, itself
+    # checked against solve_ivp above), not the Keplerian sum of the osculating orbits
+    from rvkep.predict import predict
+
+    epoch = 2459500.0
+    cols = {"dynamics.cos_inc": np.array([0.1, 0.6]), "star.mass_msun": np.array([0.37, 0.4])}
+    for j, L in enumerate("bc"):
+        cols[f"{L}.period"] = np.array([PAIR["P"][j]] * 2)
+        cols[f"{L}.K"] = np.array([PAIR["K"][j]] * 2)
+        cols[f"{L}.ecc"] = np.array([PAIR["e"][j]] * 2)
+        cols[f"{L}.omega_deg"] = np.degrees([PAIR["w"][j]] * 2)
+        cols[f"{L}.tp"] = epoch + np.array([PAIR["tp"][j]] * 2)
+    t = epoch + np.array([-800.0, 0.0, 2000.0])
+    pred = predict(cols, ["b", "c"], t, epoch=epoch)
+    for r, (cos_i, mass) in enumerate(zip(cols["dynamics.cos_inc"], cols["star.mass_msun"],
+                                          strict=True)):  # fmt: skip
+        want = nbody.star_velocity(t - epoch, PAIR["P"], PAIR["tp"], PAIR["e"], PAIR["w"],
+                                   PAIR["K"], mass, math.acos(cos_i))  # fmt: skip
+        np.testing.assert_allclose(pred.curves["total"][r], want, rtol=0, atol=1e-9)
+    kepler = pred.curves["b"] + pred.curves["c"]
+    assert np.max(np.abs(pred.curves["total"] - kepler)) > 10.0
