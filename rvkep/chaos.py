@@ -48,7 +48,8 @@ def megno(period, tp_rel, ecc, omega, K, star_mass: float, inclination: float = 
         sim.integrator.safe_mode = 1  # the variational equations need synchronized steps
     sim.init_megno()
     try:
-        sim.integrate(float(orbits * P.max()), exact_finish_time=0)
+        with nbody.keep_sigint():
+            sim.integrate(float(orbits * P.max()), exact_finish_time=0)
     except (rebound.Escape, rebound.Encounter, RuntimeError):
         return math.inf
     value = float(sim.megno())

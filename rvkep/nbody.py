@@ -29,6 +29,7 @@ Units inside: solar masses, au, days, G = k^2 with the Gaussian constant k.
 
 from __future__ import annotations
 
+import contextlib
 import math
 
 import numpy as np
@@ -42,6 +43,7 @@ __all__ = [
     "simulation",
     "star_velocity",
     "star_velocity_rows",
+    "threads",
     "M_PER_S",
 ]
 
@@ -202,7 +204,7 @@ def _velocities(sim, times: np.ndarray) -> np.ndarray:
     return out
 
 
-def star_velocity(
+def _star_velocity(
     t_rel,
     period,
     tp_rel,
@@ -239,21 +241,122 @@ def star_velocity(
     return (out * M_PER_S).reshape(t.shape)
 
 
+def star_velocity(
+    t_rel,
+    period,
+    tp_rel,
+    ecc,
+    omega,
+    K,
+    star_mass: float,
+    inclination: float = 0.5 * math.pi,
+    integrator: str | None = None,
+) -> np.ndarray:
+    """The star's line-of-sight velocity (m/s) at times ``t_rel`` (days from the epoch).
+
+    Parameters are those of :func:`simulation`. Returns shape ``t_rel.shape``. Positive
+    values move away from the observer, as a radial velocity does; for well-separated
+    light companions this is the sum of the Keplerians with the same elements.
+    """
+    with keep_sigint():
+        return _star_velocity(t_rel, period, tp_rel, ecc, omega, K, star_mass, inclination,
+                              integrator)  # fmt: skip
+
+
+@contextlib.contextmanager
+def keep_sigint():
+    """Keep Ctrl-C working around REBOUND.
+
+    REBOUND's integrate installs its own C handler for SIGINT and leaves it there: a
+    later Ctrl-C would be swallowed (measured with 5.2.2). On the main thread this
+    puts Python's handler back when the block ends; a Ctrl-C that REBOUND caught
+    inside (its KeyboardInterrupt) is handed to that handler as the signal would have
+    been, so the sampler's own Ctrl-C handling (stop at the next step) still applies."""
+    import signal
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    handler = signal.getsignal(signal.SIGINT)
+    caught = False
+    try:
+        yield
+    except KeyboardInterrupt:
+        caught = True
+    finally:
+        if handler is not None:
+            signal.signal(signal.SIGINT, handler)
+    if caught:
+        if callable(handler):
+            handler(signal.SIGINT, None)
+        elif handler != signal.SIG_IGN:
+            raise KeyboardInterrupt
+
+
+def threads() -> int:
+    """Threads :func:`star_velocity_rows` spreads its rows over: ``OMP_NUM_THREADS``
+    when set (rvkep's batch and limits workers set it to 1), else the cores this
+    process may use. REBOUND's C integrator runs without Python's lock (ctypes), so
+    the rows integrate side by side: 1.5x on 2 cores (16 four-planet rows)."""
+    import os
+
+    given = os.environ.get("OMP_NUM_THREADS", "")
+    if given.isdigit() and int(given) > 0:
+        return int(given)
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+_POOL = None
+
+
+def _pool(n: int):
+    global _POOL
+    if _POOL is None or _POOL._max_workers != n:
+        from concurrent.futures import ThreadPoolExecutor
+
+        _POOL = ThreadPoolExecutor(n, thread_name_prefix="rvkep-nbody")
+    return _POOL
+
+
 def star_velocity_rows(
     t_rel: np.ndarray, arr: dict, star_mass: np.ndarray | float, inclination: np.ndarray
 ) -> np.ndarray:
     """:func:`star_velocity` for every row of the model's matrices ``arr`` (keys
     ``period``, ``tp_rel``, ``ecc``, ``omega``, ``K``, shape (n_sets, n_companions)):
     (n_sets, n_times). ``inclination`` (radians) has one value per row; a row that
-    cannot be integrated (an orbit crossing, an escape) gives NaN."""
+    cannot be integrated (an orbit crossing, an escape) gives NaN. Rows run on
+    :func:`threads` threads; each row's result is the same whatever their number."""
     n = arr["period"].shape[0]
     out = np.empty((n, np.size(t_rel)))
     mass = np.broadcast_to(np.asarray(star_mass, float), (n,))
     inc = np.broadcast_to(np.asarray(inclination, float), (n,))
-    for r in range(n):
+
+    interrupted = []
+
+    def row(r: int) -> None:
+        if interrupted:
+            out[r] = np.nan
+            return
         try:
-            out[r] = star_velocity(t_rel, arr["period"][r], arr["tp_rel"][r], arr["ecc"][r],
+            out[r] = _star_velocity(t_rel, arr["period"][r], arr["tp_rel"][r], arr["ecc"][r],
                                    arr["omega"][r], arr["K"][r], mass[r], inc[r])  # fmt: skip
         except (RuntimeError, ValueError, ArithmeticError):  # rebound.Escape etc.
             out[r] = np.nan
+        except KeyboardInterrupt:  # REBOUND caught a Ctrl-C (in any thread)
+            interrupted.append(r)
+            out[r] = np.nan
+
+    workers = min(threads(), n)
+    with keep_sigint():
+        if workers > 1:
+            list(_pool(workers).map(row, range(n)))
+        else:
+            for r in range(n):
+                row(r)
+        if interrupted:
+            raise KeyboardInterrupt
     return out

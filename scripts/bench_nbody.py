@@ -75,6 +75,19 @@ def main() -> None:
         f"{side * 1e3:.2f} ms (x2 sides), the rest is stopping at the 160 times"
     )
     print("  target: <= 20 ms per call")
+    n = 32  # a sampler's walkers: the rows of one call, on threads
+    arr = {k: np.tile(v, (n, 1)) for k, v in (("period", P), ("tp_rel", TP), ("ecc", E),
+                                              ("omega", W), ("K", K))}  # fmt: skip
+    inc = np.full(n, 1.2)
+    import os
+
+    cores = nbody.threads()
+    os.environ["OMP_NUM_THREADS"] = "1"
+    serial = best_of(lambda: nbody.star_velocity_rows(t, arr, M, inc), 2)
+    os.environ["OMP_NUM_THREADS"] = str(cores)
+    threaded = best_of(lambda: nbody.star_velocity_rows(t, arr, M, inc), 2)
+    print(f"{n} rows (walkers): one thread {serial:.3f} s, {cores} threads {threaded:.3f} s: "
+          f"{serial / threaded:.2f}x")
 
 
 if __name__ == "__main__":

@@ -242,3 +242,22 @@ def test_predictions_of_an_nbody_run_integrate_each_draw():
         np.testing.assert_allclose(pred.curves["total"][r], want, rtol=0, atol=1e-9)
     kepler = pred.curves["b"] + pred.curves["c"]
     assert np.max(np.abs(pred.curves["total"] - kepler)) > 10.0
+
+
+def test_ctrl_c_still_works_after_rebound_integrations():
+    # REBOUND 5.2.2 leaves its own SIGINT handler installed after integrate(), which
+    # swallowed every later Ctrl-C (measured); rvkep.nbody puts Python's back
+    import os
+    import signal
+    import time
+
+    arr = {k: np.tile(v, (3, 1)) for k, v in (("period", PAIR["P"]), ("tp_rel", PAIR["tp"]),
+                                              ("ecc", PAIR["e"]), ("omega", PAIR["w"]),
+                                              ("K", PAIR["K"]))}  # fmt: skip
+    nbody.star_velocity_rows(TEN_YEARS[:20], arr, 0.37, np.full(3, 1.0))
+    nbody.star_velocity(TEN_YEARS[:20], PAIR["P"], PAIR["tp"], PAIR["e"], PAIR["w"],
+                        PAIR["K"], 0.37)  # fmt: skip
+    assert signal.getsignal(signal.SIGINT) is signal.default_int_handler
+    with pytest.raises(KeyboardInterrupt):
+        os.kill(os.getpid(), signal.SIGINT)
+        time.sleep(1.0)
