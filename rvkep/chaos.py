@@ -13,7 +13,8 @@ companion, with the integrator :mod:`rvkep.nbody` chooses (WHFast, or IAS15 for
 eccentric or crossing orbits), the inclination of an N-body run (edge-on, m sin i, for
 a Keplerian one). Draws run as independent tasks on local processes or a Dask cluster
 (:mod:`rvkep.workers`: progress, Ctrl-C). The results go to RUN_DIR/stability.json
-and stability.csv (one row per draw), written atomically.
+and stability.csv (one row per draw), written atomically, and into the run's
+report.html (its Stability section) when the run has one.
 """
 
 from __future__ import annotations
@@ -152,4 +153,6 @@ def run_stability(run_dir: str | Path, draws: int = 100, orbits: float = 5000.0,
             f"{'yes' if v <= REGULAR_MEGNO else 'no'}" for r, v in zip(rows, y, strict=True)
         ]  # fmt: skip
         write_text(run_dir / "stability.csv", "\n".join(csv) + "\n")
+        if (run_dir / "report.html").exists():  # the report shows the integrations too
+            results.write_report(run_dir)
     return summary

@@ -35,7 +35,7 @@ def test_nbody_run_recovers_the_pair_and_the_inclination_and_its_draws_are_regul
         )
     )
     run = _rvkep("analyze", str(table), "--star-mass", "0.37", "--companions", "2", "--trend",
-                 "0", "--dynamics", "nbody", "--quick", "--figures", "none", "--out", "run",
+                 "0", "--dynamics", "nbody", "--quick", "--figures", "summary", "--out", "run",
                  "--seed", "3", cwd=tmp_path)  # fmt: skip
     assert run.returncode == 0, run.stderr
     res = json.loads((tmp_path / "run" / "results.json").read_text())
@@ -66,6 +66,9 @@ def test_nbody_run_recovers_the_pair_and_the_inclination_and_its_draws_are_regul
     assert out["draws"] == 4 and out["fraction_regular"] == 1.0
     assert all(math.isfinite(d["megno"]) for d in out["per_draw"])
     assert np.isfinite(out["megno_median"]) and abs(out["megno_median"] - 2.0) < 0.5
+    page = (tmp_path / "run" / "report.html").read_text()
+    assert 'id="dynamics-comparison"' in page and 'id="stability"' in page
+    assert "MEGNO): 100% regular" in page  # the integrations joined the report
 
 
 def test_nbody_without_a_star_mass_is_refused_before_anything_is_written(tmp_path):

@@ -140,7 +140,16 @@ def _context(results, folder: Path | None, name: str | None) -> dict:
                     "jitter": _estimate(i["jitter_mps"], f"jitter.{i['name']}")}
                    for i in d["instruments"]]  # fmt: skip
     star = d["star"]
+    megno = None  # rvkep stability's integrations of this run, when made
+    if folder is not None and (folder / "stability.json").is_file():
+        import json
+
+        try:
+            megno = json.loads((folder / "stability.json").read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            megno = None
     return {
+        "megno": megno,
         "title": name or "rvkep run", "d": d, "planets": planets, "warnings": warnings,
         "figures": figures, "rows": rows, "instruments": instruments, "star": star,
         "version": __version__, "run_label": results.run_label(),
