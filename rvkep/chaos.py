@@ -34,20 +34,22 @@ REGULAR_MEGNO = 2.5
 ESCAPE_FACTOR = 20.0
 
 
-def megno(period, tp_rel, ecc, omega, K, star_mass: float, inclination: float = 0.5 * math.pi,
-          orbits: float = 5000.0) -> float:  # fmt: skip
+def megno(period, tp_rel, ecc, omega, K, star_mass: float, inclination=0.5 * math.pi,
+          orbits: float = 5000.0, node=0.0, seed: int = 0) -> float:  # fmt: skip
     """<Y> after ``orbits`` periods of the outermost companion (inf if a companion
-    escapes or the integration fails). Arguments as :func:`rvkep.nbody.simulation`."""
+    escapes or the integration fails). Arguments as :func:`rvkep.nbody.simulation`;
+    ``seed`` sets the variational orbit's random start (REBOUND draws one from the clock
+    otherwise), so a draw's value is the same wherever it runs."""
     from rvkep import nbody
 
     rebound = nbody.require_rebound()
-    sim = nbody.simulation(period, tp_rel, ecc, omega, K, star_mass, inclination)
+    sim = nbody.simulation(period, tp_rel, ecc, omega, K, star_mass, inclination, node=node)
     P = np.atleast_1d(np.asarray(period, float))
     a_max = max(p.a for p in sim.particles[1:])
     sim.exit_max_distance = ESCAPE_FACTOR * a_max
     if sim.integrator.name == b"whfast":
         sim.integrator.safe_mode = 1  # the variational equations need synchronized steps
-    sim.init_megno()
+    sim.init_megno(seed=seed)
     try:
         with nbody.keep_sigint():
             sim.integrate(float(orbits * P.max()), exact_finish_time=0)
@@ -57,10 +59,11 @@ def megno(period, tp_rel, ecc, omega, K, star_mass: float, inclination: float = 
     return value if math.isfinite(value) else math.inf
 
 
-def _draw_task(row: dict, orbits: float) -> float:
+def _draw_task(row: dict, orbits: float, seed: int) -> float:
     """One draw's MEGNO (a module-level function: it is pickled to workers)."""
     return megno(row["period"], row["tp_rel"], row["ecc"], row["omega"], row["K"],
-                 row["star_mass"], row["inclination"], orbits)  # fmt: skip
+                 row["star_mass"], row["inclination"], orbits, row["node"],
+                 seed=seed + row["index"])  # fmt: skip
 
 
 def _draws(results, n: int, seed: int) -> list[dict]:
@@ -71,8 +74,9 @@ def _draws(results, n: int, seed: int) -> list[dict]:
     rng = np.random.default_rng(seed)
     index = rng.choice(total, size=min(n, total), replace=False)
     epoch = results.data.epoch
-    inc = (np.radians(np.asarray(post["dynamics.inclination_deg"], float))
-           if "dynamics.inclination_deg" in post else np.full(total, 0.5 * math.pi))  # fmt: skip
+    from rvkep.nbody import orientation
+
+    inc, node = orientation(post.columns, labels)  # edge-on for a Keplerian run
     rows = []
     for i in index:
         rows.append({
@@ -83,7 +87,8 @@ def _draws(results, n: int, seed: int) -> list[dict]:
             "omega": np.radians([post[f"{L}.omega_deg"][i] for L in labels]),
             "K": np.array([post[f"{L}.K"][i] for L in labels]),
             "star_mass": float(post["star.mass_msun"][i]),
-            "inclination": float(inc[i]),
+            "inclination": inc[i],
+            "node": node[i],
         })  # fmt: skip
     return rows
 
@@ -121,8 +126,8 @@ def run_stability(run_dir: str | Path, draws: int = 100, orbits: float = 5000.0,
 
     with folder_lock(run_dir):
         try:
-            run_tasks(_draw_task, [(k, (row, orbits)) for k, row in enumerate(rows)], on_result,
-                      workers=workers, scheduler=scheduler)  # fmt: skip
+            tasks = [(k, (row, orbits, seed)) for k, row in enumerate(rows)]
+            run_tasks(_draw_task, tasks, on_result, workers=workers, scheduler=scheduler)
         finally:
             if not quiet:
                 print(file=sys.stderr)
@@ -137,7 +142,7 @@ def run_stability(run_dir: str | Path, draws: int = 100, orbits: float = 5000.0,
             "megno_median": float(np.median(y[done])) if done.any() else None,
             "regular_if_megno_at_most": REGULAR_MEGNO,
             "inclination": "the N-body run's" if results.saved.get("dynamics") else
-                           "edge-on (m sin i)",
+                           "edge-on, coplanar (m sin i)",
             "seed": seed,
             "seconds": time.perf_counter() - t0,
             "reference": "Cincotta & Simo (2000), A&AS 147, 205",

@@ -32,6 +32,11 @@ coordinate                     physical parameter and implied prior
                                cosine of the orbits' shared inclination to the
                                sky; default uniform on [0, cos 10 deg] (isotropic
                                orientations, masses at most 5.8 x m sin i)
+``dynamics.cos_inc.<label>``,  ``dynamics="nbody-inclined"``: each companion's own
+``dynamics.node.<label>``      inclination (prior as above) and, but for the first
+                               companion's (the reference, 0), its longitude of
+                               the node on the sky (radians, uniform on
+                               [-pi, pi]): mutual inclinations are free
 =============================  =================================================
 
 Offsets (one per instrument), the trend coefficients (slope in m/s/yr, curvature in
@@ -85,7 +90,7 @@ from rvkep.priors import Fixed, Prior, Uniform
 
 #: how the star's velocity follows from the companions' elements: a sum of Keplerians,
 #: or an N-body integration (rvkep.nbody)
-DYNAMICS = ("keplerian", "nbody")
+DYNAMICS = ("keplerian", "nbody", "nbody-inclined")
 #: the least inclination of the N-body default prior (degrees)
 MIN_INCLINATION = 10.0
 
@@ -239,9 +244,12 @@ class SystemModel:
         if self.dynamics not in DYNAMICS:
             raise ValueError(f"dynamics must be one of {', '.join(DYNAMICS)}, got "
                              f"{self.dynamics!r}")  # fmt: skip
-        if self.dynamics_parameters is None:
-            self.dynamics_parameters = dynamics_parameters(self.dynamics)
-        if self.dynamics == "nbody" and (self.star is None or not self.star.mass > 0):
+        # the dynamics' parameters for these companions, given ones kept by name (a
+        # model with other companions gets theirs)
+        given = {p.name: p for p in (self.dynamics_parameters or [])}
+        self.dynamics_parameters = [given.get(p.name, p) for p in
+                                    dynamics_parameters(self.dynamics, self.labels())]  # fmt: skip
+        if self.dynamics != "keplerian" and (self.star is None or not self.star.mass > 0):
             raise ValueError("the N-body model needs the star's mass (--star-mass)")
         own = self.noise_model.parameters(self.data)
         if self.noise_parameters is None:
@@ -961,10 +969,13 @@ def orbit_velocity(model: SystemModel, arr: dict, t_rel: np.ndarray | None = Non
     (minus the epoch; default the data's): the likelihood's path, free of any round
     trip through absolute times."""
     t = model.t if t_rel is None else np.asarray(t_rel, float)
-    if model.dynamics == "nbody":
-        from rvkep.nbody import star_velocity_rows
+    if model.dynamics != "keplerian":
+        from rvkep.nbody import orientation, star_velocity_rows
 
-        return star_velocity_rows(t, arr, model.star.mass, np.arccos(arr["dynamics"][:, 0]))
+        columns = {f"dynamics.{p.name}": arr["dynamics"][:, k]
+                   for k, p in enumerate(model.dynamics_parameters)}  # fmt: skip
+        inc, node = orientation(columns, model.labels())
+        return star_velocity_rows(t, arr, model.star.mass, inc, node)
     out = np.zeros((next(iter(arr.values())).shape[0], t.size))
     for ci in range(len(model.companions)):
         w = arr["omega"][:, ci]
@@ -981,18 +992,28 @@ def _stretch(e: np.ndarray) -> np.ndarray:
     return np.sqrt(-np.log1p(-np.asarray(e, float)))
 
 
-def dynamics_parameters(kind: str) -> list:
+def dynamics_parameters(kind: str, labels=()) -> list:
     """The parameters a kind of dynamics adds to the sampled vector, with their default
     priors and starts: none for ``"keplerian"``; for ``"nbody"`` ``cos_inc``, uniform
     on [0, cos 10 deg] (orientations isotropic; common practice, no source), start 0.1
-    (nearly edge-on, where the N-body model is closest to the Keplerian one)."""
+    (nearly edge-on, where the N-body model is closest to the Keplerian one); for
+    ``"nbody-inclined"`` a ``cos_inc.<label>`` per companion (the same prior) and a
+    ``node.<label>`` (radians, uniform on [-pi, pi], start 0: coplanar) for each but
+    the first of ``labels``."""
     from rvkep.noise.base import NoiseParameter
 
     if kind == "keplerian":
         return []
     high = math.cos(math.radians(MIN_INCLINATION))
-    return [NoiseParameter("cos_inc", Uniform(0.0, high), 0.1, "",
-                           "cosine of the shared inclination", (0.0, 1.0))]  # fmt: skip
+    if kind == "nbody":
+        return [NoiseParameter("cos_inc", Uniform(0.0, high), 0.1, "",
+                               "cosine of the shared inclination", (0.0, 1.0))]  # fmt: skip
+    out = [NoiseParameter(f"cos_inc.{L}", Uniform(0.0, high), 0.1, "",
+                          f"cosine of {L}'s inclination", (0.0, 1.0)) for L in labels]  # fmt: skip
+    out += [NoiseParameter(f"node.{L}", Uniform(-math.pi, math.pi), 0.0, "rad",
+                           f"{L}'s longitude of the node from {labels[0]}'s",
+                           (-math.pi, math.pi)) for L in labels[1:]]  # fmt: skip
+    return out
 
 
 def default_instrument(data: RVData, name: str, jitter: Prior | None = None) -> Instrument:

@@ -452,7 +452,7 @@ def _read_dynamics(table, spec: ModelSpec, path: str) -> None:
     if kind not in DYNAMICS:
         raise ModelFileError(f"{_where(path, 'dynamics', 'kind')}: must be one of "
                              f"{', '.join(DYNAMICS)}, got {kind!r}")  # fmt: skip
-    own = {p.name: p for p in dynamics_parameters(kind)}
+    own = {p.name: p for p in dynamics_parameters(kind)}  # none per companion here
     _check_keys(table, {"kind", *own}, _where(path, "dynamics"))
     spec.dynamics = kind
     for name, par in own.items():

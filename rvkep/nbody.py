@@ -13,7 +13,8 @@ measurably over years. :func:`star_velocity` integrates the whole system instead
   for the star's Jacobi reflex motion (the Keplerian limit of the integration is the
   sum of Keplerians to rounding);
 * the orbits are coplanar with one inclination i to the sky (the line of sight is the
-  z axis; a positive velocity moves away from the observer), nodes at 0;
+  z axis; a positive velocity moves away from the observer), nodes at 0; or each
+  companion has its own inclination and longitude of the node (mutual inclinations);
 * the integration runs from the epoch forwards and backwards to each observation time
   exactly (each ``integrate`` ends on the time: no interpolation);
 * light-travel time across the system and relativity are neglected.
@@ -43,6 +44,8 @@ __all__ = [
     "simulation",
     "star_velocity",
     "star_velocity_rows",
+    "orientation",
+    "mutual_inclination",
     "threads",
     "M_PER_S",
 ]
@@ -152,8 +155,9 @@ def simulation(
     omega,
     K,
     star_mass: float,
-    inclination: float = 0.5 * math.pi,
+    inclination=0.5 * math.pi,
     integrator: str | None = None,
+    node=0.0,
 ):
     """A REBOUND simulation of the system at the epoch (time 0), centre of mass at rest.
 
@@ -164,25 +168,28 @@ def simulation(
         argument of periastron (radians; the companion's is omega + pi), m/s.
     star_mass : float
         Solar masses.
-    inclination : float
-        Radians (pi/2: edge-on).
+    inclination : float or array_like
+        Radians (pi/2: edge-on), shared or one per companion.
     integrator : {"whfast", "ias15"}, optional
         Default: :func:`integrator_for`.
+    node : float or array_like
+        Longitudes of the node on the sky (radians), shared or one per companion.
     """
     rebound = require_rebound()
     P = np.atleast_1d(np.asarray(period, float))
     tp = np.atleast_1d(np.asarray(tp_rel, float))
     e = np.atleast_1d(np.asarray(ecc, float))
     w = np.atleast_1d(np.asarray(omega, float))
-    s = math.sin(inclination)
-    masses = companion_masses(P, K, e, star_mass, s)
+    inc = np.broadcast_to(np.asarray(inclination, float), P.shape)
+    nodes = np.broadcast_to(np.asarray(node, float), P.shape)
+    masses = companion_masses(P, K, e, star_mass, np.sin(inc))
     sim = rebound.Simulation()
     sim.G = G_AU_DAY
     sim.add(m=star_mass)
     for j in np.argsort(P, kind="stable"):  # Jacobi: by period, inside out
         M = 2.0 * math.pi * (0.0 - tp[j]) / P[j]
-        sim.add(m=masses[j], P=P[j], e=e[j], omega=w[j] + math.pi, inc=inclination,
-                Omega=0.0, M=M)  # fmt: skip
+        sim.add(m=masses[j], P=P[j], e=e[j], omega=w[j] + math.pi, inc=float(inc[j]),
+                Omega=float(nodes[j]), M=M)  # fmt: skip
     sim.move_to_com()
     kind = integrator or integrator_for(P, e, masses, star_mass)
     sim.integrator = kind
@@ -212,21 +219,16 @@ def _star_velocity(
     omega,
     K,
     star_mass: float,
-    inclination: float = 0.5 * math.pi,
+    inclination=0.5 * math.pi,
     integrator: str | None = None,
+    node=0.0,
 ) -> np.ndarray:
-    """The star's line-of-sight velocity (m/s) at times ``t_rel`` (days from the epoch).
-
-    Parameters are those of :func:`simulation`. Returns shape ``t_rel.shape``. Positive
-    values move away from the observer, as a radial velocity does; for well-separated
-    light companions this is the sum of the Keplerians with the same elements.
-    """
     t = np.asarray(t_rel, float)
     flat = t.ravel()
     out = np.zeros(flat.size)
     if np.size(period) == 0:
         return out.reshape(t.shape)
-    sim = simulation(period, tp_rel, ecc, omega, K, star_mass, inclination, integrator)
+    sim = simulation(period, tp_rel, ecc, omega, K, star_mass, inclination, integrator, node)
     after = np.flatnonzero(flat >= 0.0)
     before = np.flatnonzero(flat < 0.0)
     back = sim.copy() if before.size else None
@@ -249,8 +251,9 @@ def star_velocity(
     omega,
     K,
     star_mass: float,
-    inclination: float = 0.5 * math.pi,
+    inclination=0.5 * math.pi,
     integrator: str | None = None,
+    node=0.0,
 ) -> np.ndarray:
     """The star's line-of-sight velocity (m/s) at times ``t_rel`` (days from the epoch).
 
@@ -260,7 +263,7 @@ def star_velocity(
     """
     with keep_sigint():
         return _star_velocity(t_rel, period, tp_rel, ecc, omega, K, star_mass, inclination,
-                              integrator)  # fmt: skip
+                              integrator, node)  # fmt: skip
 
 
 @contextlib.contextmanager
@@ -322,18 +325,56 @@ def _pool(n: int):
     return _POOL
 
 
+def orientation(columns, labels, rows=slice(None)) -> tuple[np.ndarray, np.ndarray]:
+    """(inclinations, nodes) in radians, each (n_draws, n_companions), from posterior
+    or model columns: ``dynamics.cos_inc`` (shared, nodes 0) or ``dynamics.cos_inc.<L>``
+    and ``dynamics.node.<L>`` (the first companion's node 0); edge-on without them."""
+
+    def col(key):
+        return np.atleast_1d(np.asarray(columns[key], float))[rows]
+
+    if "dynamics.cos_inc" in columns:
+        inc = np.arccos(np.clip(col("dynamics.cos_inc"), 0.0, 1.0))[:, None]
+        inc = np.repeat(inc, len(labels), axis=1)
+        return inc, np.zeros_like(inc)
+    if labels and f"dynamics.cos_inc.{labels[0]}" in columns:
+        inc = np.column_stack([np.arccos(np.clip(col(f"dynamics.cos_inc.{L}"), 0.0, 1.0))
+                               for L in labels])  # fmt: skip
+        node = np.column_stack([col(f"dynamics.node.{L}") if f"dynamics.node.{L}" in columns
+                                else np.zeros(inc.shape[0]) for L in labels])  # fmt: skip
+        return inc, node
+    n = len(np.atleast_1d(np.asarray(next(iter(columns.values()))))[rows]) if columns else 1
+    return np.full((n, len(labels)), 0.5 * math.pi), np.zeros((n, len(labels)))
+
+
+def mutual_inclination(inc1, node1, inc2, node2) -> np.ndarray:
+    """The angle between two orbit planes (radians) from their inclinations and nodes
+    on the sky: cos Phi = cos i1 cos i2 + sin i1 sin i2 cos(node1 - node2) (spherical
+    trigonometry; common practice, no source)."""
+    c = np.cos(inc1) * np.cos(inc2) + np.sin(inc1) * np.sin(inc2) * np.cos(node1 - node2)
+    return np.arccos(np.clip(c, -1.0, 1.0))
+
+
 def star_velocity_rows(
-    t_rel: np.ndarray, arr: dict, star_mass: np.ndarray | float, inclination: np.ndarray
+    t_rel: np.ndarray, arr: dict, star_mass: np.ndarray | float, inclination: np.ndarray,
+    node: np.ndarray | float = 0.0,
 ) -> np.ndarray:
     """:func:`star_velocity` for every row of the model's matrices ``arr`` (keys
     ``period``, ``tp_rel``, ``ecc``, ``omega``, ``K``, shape (n_sets, n_companions)):
-    (n_sets, n_times). ``inclination`` (radians) has one value per row; a row that
+    (n_sets, n_times). ``inclination`` and ``node`` (radians) have one value per row,
+    or a row of one per companion (:func:`orientation`); a row that
     cannot be integrated (an orbit crossing, an escape) gives NaN. Rows run on
     :func:`threads` threads; each row's result is the same whatever their number."""
     n = arr["period"].shape[0]
     out = np.empty((n, np.size(t_rel)))
     mass = np.broadcast_to(np.asarray(star_mass, float), (n,))
-    inc = np.broadcast_to(np.asarray(inclination, float), (n,))
+    nc = arr["period"].shape[1]
+
+    def per_row(x):  # a value per row, or per row and companion
+        x = np.asarray(x, float)
+        return np.broadcast_to(x[:, None] if x.ndim == 1 else x, (n, nc))
+
+    inc, nodes = per_row(inclination), per_row(node)
 
     interrupted = []
 
@@ -343,7 +384,8 @@ def star_velocity_rows(
             return
         try:
             out[r] = _star_velocity(t_rel, arr["period"][r], arr["tp_rel"][r], arr["ecc"][r],
-                                   arr["omega"][r], arr["K"][r], mass[r], inc[r])  # fmt: skip
+                                   arr["omega"][r], arr["K"][r], mass[r], inc[r],
+                                   node=nodes[r])  # fmt: skip
         except (RuntimeError, ValueError, ArithmeticError):  # rebound.Escape etc.
             out[r] = np.nan
         except KeyboardInterrupt:  # REBOUND caught a Ctrl-C (in any thread)

@@ -234,10 +234,13 @@ OPTIONS: tuple[Option, ...] = (
            shown_default="the model file's [noise], else night for an instrument with two "
            "or more nights of 4+ points within 6 hours, else white"),  # fmt: skip
     Option("dynamics", "choice", None, "how the star's velocity follows from the "
-           "companions: keplerian (a sum of Keplerian orbits) or nbody (an N-body "
-           "integration with REBOUND, one shared inclination sampled; needs the dynamics "
-           "extra and --star-mass), fitted from the Keplerian solution and compared with it",
-           choices=("keplerian", "nbody"), column=True, model_key="[dynamics] kind",
+           "companions: keplerian (a sum of Keplerian orbits), nbody (an N-body "
+           "integration with REBOUND, coplanar, one shared inclination sampled) or "
+           "nbody-inclined (each companion its own inclination and node); the N-body "
+           "kinds need the dynamics extra and --star-mass, and are fitted from the "
+           "Keplerian solution and compared with it",
+           choices=("keplerian", "nbody", "nbody-inclined"), column=True,
+           model_key="[dynamics] kind",
            shown_default="the model file's [dynamics], else keplerian"),  # fmt: skip
     Option("decorrelate", "columns", (), "decorrelate the velocities against these extra "
            "data columns (activity indicators such as fwhm,bis): one linear coefficient "

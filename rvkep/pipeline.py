@@ -655,7 +655,7 @@ def dynamics_kind(opts: AnalyzeOptions, spec=None) -> str:
 def check_dynamics(opts: AnalyzeOptions, spec, star) -> None:
     """Refuse an N-body run that cannot start, before any folder is made: REBOUND
     missing, or no stellar mass (the masses, and so the interactions, scale with it)."""
-    if dynamics_kind(opts, spec) != "nbody":
+    if dynamics_kind(opts, spec) == "keplerian":
         return
     from rvkep.nbody import require_rebound
 
@@ -688,9 +688,12 @@ def fit_dynamics(choice: ModelChoice, opts: AnalyzeOptions, spec=None, star=None
     own = spec.dynamics_parameters_for(kind) if spec is not None else None
     model = replace(kep.model, dynamics=kind, dynamics_parameters=own, star=star)
     start = {k: v for k, v in kep.params.items() if k in set(model.start_physical())}
-    cos_starts = dict.fromkeys([model.start_physical()["dynamics.cos_inc"], *NBODY_STARTS])
+    own_start = model.start_physical()
+    cos_keys = [f"dynamics.{p.name}" for p in model.dynamics_parameters
+                if p.name.startswith("cos_inc")]  # fmt: skip
     lo, hi = model.dynamics_parameters[0].prior.bounds
-    starts = [model.from_physical({**start, "dynamics.cos_inc": c})[0]
+    cos_starts = dict.fromkeys([own_start[cos_keys[0]], *NBODY_STARTS])
+    starts = [model.from_physical({**own_start, **start, **dict.fromkeys(cos_keys, c)})[0]
               for c in cos_starts if lo <= c <= hi]  # fmt: skip
     _say(opts, f"N-body fit (REBOUND) of {len(kep.model.companions)} companion(s) from the "
                f"Keplerian solution, {len(starts)} inclination start(s)")  # fmt: skip
@@ -703,10 +706,11 @@ def fit_dynamics(choice: ModelChoice, opts: AnalyzeOptions, spec=None, star=None
     for r in rows:
         r["delta_bic"] = r["bic"] - best_bic
     gain = nb.log_likelihood - kep.log_likelihood
-    inc = math.degrees(math.acos(min(1.0, nb.params["dynamics.cos_inc"])))
+    inc = ", ".join(f"{k.removeprefix('dynamics.cos_inc').lstrip('.') or 'shared'} "
+                    f"{math.degrees(math.acos(min(1.0, nb.params[k]))):.1f}" for k in cos_keys)
     _say(opts, f"N-body: ln L {nb.log_likelihood:.2f} against {kep.log_likelihood:.2f} "
                f"(Keplerian), delta BIC {rows[1]['bic'] - rows[0]['bic']:+.2f}; inclination "
-               f"{inc:.1f} deg at the best fit")  # fmt: skip
+               f"(deg) {inc} at the best fit")  # fmt: skip
     if gain < -1.0:  # a nested model (sin i -> 1, light masses) should not lose
         choice.notes.append(f"the N-body best fit has ln L lower than the Keplerian one by "
                             f"{-gain:.1f}: the optimizer may have stopped early")  # fmt: skip

@@ -20,8 +20,8 @@ kinds of curve are returned:
 The trend is a polynomial in years from the data's reference epoch, as in the model.
 Times are in the data's own time system.
 
-For an N-body run (the columns hold ``dynamics.cos_inc``) ``total`` integrates each
-draw with all the companions asked for (:func:`rvkep.nbody.star_velocity_rows`, the
+For an N-body run (columns ``dynamics.cos_inc``, or one per companion) ``total``
+integrates each draw with all the companions asked for (:func:`rvkep.nbody.star_velocity_rows`, the
 draw's stellar mass and inclination), so the interactions carry into the future; the
 ``<label>`` curves stay the Keplerian curves of each companion's osculating elements
 at the epoch (the interactions belong to the system, not to one companion).
@@ -149,17 +149,17 @@ def predict(
                             np.radians(col["omega_deg"]), col["K"])  # fmt: skip
         curves[L] = v
         total = total + v
-    if labels and "dynamics.cos_inc" in columns:  # an N-body run: integrate each draw
-        from rvkep.nbody import star_velocity_rows
+    if labels and any(k.startswith("dynamics.cos_inc") for k in columns):  # N-body run
+        from rvkep.nbody import orientation, star_velocity_rows
 
         def stack(key):
             return np.column_stack([np.asarray(columns[f"{L}.{key}"], float)[idx] for L in labels])
 
         arr = {"period": stack("period"), "tp_rel": stack("tp") - epoch, "ecc": stack("ecc"),
                "omega": np.radians(stack("omega_deg")), "K": stack("K")}  # fmt: skip
-        inc = np.arccos(np.clip(np.asarray(columns["dynamics.cos_inc"], float)[idx], 0, 1))
+        inc, node = orientation(columns, labels, idx)
         total = star_velocity_rows(dt, arr, np.asarray(columns["star.mass_msun"], float)[idx],
-                                   inc)  # fmt: skip
+                                   inc, node)  # fmt: skip
     years = dt / 365.25
     for name, power in (("trend.slope", 1), ("trend.curvature", 2)):
         if name in columns:

@@ -80,15 +80,21 @@ class Results:
                     posterior.add(f"{L}.{key}", values)
         if fit.model.companions:
             posterior.add("star.mass_msun", star_mass)
-        if fit.model.dynamics == "nbody":  # the inclination and true masses
+        if fit.model.dynamics != "keplerian":  # inclinations and true masses
+            from rvkep.nbody import mutual_inclination, orientation
             from rvkep.physics import minimum_mass
 
-            cos_i = np.clip(posterior["dynamics.cos_inc"], 0.0, 1.0)
-            sin_i = np.sqrt(1.0 - cos_i**2)
-            posterior.add("dynamics.inclination_deg", np.degrees(np.arccos(cos_i)))
-            for c in fit.model.companions:
-                L = c.label
-                mass = minimum_mass(posterior[f"{L}.period"], posterior[f"{L}.K"] / sin_i,
+            labels = [c.label for c in fit.model.companions]
+            inc, node = orientation(posterior.columns, labels)
+            if "dynamics.cos_inc" in posterior:
+                posterior.add("dynamics.inclination_deg", np.degrees(inc[:, 0]))
+            for j, L in enumerate(labels):
+                if "dynamics.cos_inc" not in posterior:
+                    posterior.add(f"{L}.inclination_deg", np.degrees(inc[:, j]))
+                    if j:
+                        posterior.add(f"{L}.mutual_inclination_deg", np.degrees(
+                            mutual_inclination(inc[:, 0], node[:, 0], inc[:, j], node[:, j])))
+                mass = minimum_mass(posterior[f"{L}.period"], posterior[f"{L}.K"] / np.sin(inc[:, j]),
                                     posterior[f"{L}.ecc"], star_mass)  # fmt: skip
                 posterior.add(f"{L}.mass_mjup", mass)
         out = cls(data, posterior, fit, sampling, star=star, star_assumed=assumed, **kwargs)
@@ -330,7 +336,7 @@ class Results:
     def dynamics_note(self) -> str:
         """For an N-body run, what the Keplerian-based outputs (events, plans) assume;
         empty otherwise."""
-        if "dynamics.cos_inc" not in self.posterior:
+        if not any(k.startswith("dynamics.cos_inc") for k in self.posterior.columns):
             return ""
         return ("N-body run: from each companion's osculating elements at the epoch as "
                 "Keplerian orbits (the interactions shift later events)")
@@ -461,7 +467,8 @@ class Results:
             "trend_comparison": self.trend_comparison,
             **({"dynamics": {
                 "kind": model.dynamics,
-                "inclination_deg": self.estimate("dynamics.inclination_deg"),
+                **({"inclination_deg": self.estimate("dynamics.inclination_deg")}
+                   if "dynamics.inclination_deg" in self.posterior else {}),
                 "comparison": self.dynamics_comparison,
                 "integrator": "REBOUND: WHFast (step P_min/20), or IAS15 for e >= 0.5 or "
                               "crossing orbits; coplanar, Jacobi elements at the epoch",
@@ -518,7 +525,7 @@ class Results:
                 f"({text_estimate(p['msini_mearth'])} M_Earth), a = {text_estimate(p['a_au'])} au"
                 + (f", m = {text_estimate(p['mass_mjup'])} M_Jup" if "mass_mjup" in p else "")
             )
-        if "dynamics" in d:
+        if "dynamics" in d and "inclination_deg" in d["dynamics"]:
             lines.append(f"  N-body: inclination = {text_estimate(d['dynamics']['inclination_deg'])}"
                          " deg (shared)")  # fmt: skip
         if "stability" in d:

@@ -115,7 +115,7 @@ def signal_in_one_instrument(seed: int = 11) -> RVData:
 G = nbody.G_AU_DAY  # the Gaussian constant squared (au^3 / Msun / day^2)
 
 
-def _kepler_state(mu, P, e, w_planet, M0, inc):
+def _kepler_state(mu, P, e, w_planet, M0, inc, node=0.0):
     """Position and velocity of a two-body relative orbit from its elements (node 0),
     from the textbook formulas (Murray & Dermott 1999, Solar System Dynamics, sec. 2.8),
     written here without REBOUND."""
@@ -131,7 +131,9 @@ def _kepler_state(mu, P, e, w_planet, M0, inc):
     cw, sw, ci, si = math.cos(w_planet), math.sin(w_planet), math.cos(inc), math.sin(inc)
     Rw = np.array([[cw, -sw, 0], [sw, cw, 0], [0, 0, 1]])
     Ri = np.array([[1, 0, 0], [0, ci, -si], [0, si, ci]])
-    R = Ri @ Rw
+    cn, sn = math.cos(node), math.sin(node)
+    Rn = np.array([[cn, -sn, 0], [sn, cn, 0], [0, 0, 1]])
+    R = Rn @ Ri @ Rw
     return R @ x_orb, R @ v_orb
 
 
@@ -141,20 +143,27 @@ def _masses(P, K, e, M_star, sin_i):
 
     out, interior = [], M_star
     gm_sun = G * nbody.AU_M**3 / 86400.0**2
-    for Pj, Kj, ej in zip(P, K, e, strict=True):
-        f = Pj * 86400 * Kj**3 * (1 - ej * ej) ** 1.5 / (2 * math.pi * gm_sun) / sin_i**3
+    for Pj, Kj, ej, sj in zip(P, K, e, np.broadcast_to(sin_i, np.shape(P)), strict=True):
+        f = Pj * 86400 * Kj**3 * (1 - ej * ej) ** 1.5 / (2 * math.pi * gm_sun) / sj**3
         m = brentq(lambda m, f=f, M=interior: m**3 - f * (M + m) ** 2, 1e-12, 1.0, xtol=1e-18)
         out.append(m)
         interior += m
     return out
 
 
-def newton_star_velocity(t, P, tp, e, w, K, M_star, inc):
+def newton_star_velocity(t, P, tp, e, w, K, M_star, inc, node=0.0):
     """The star's vz (m/s) from Jacobi elements at t = 0 integrated with solve_ivp
-    (DOP853, rtol 1e-12, atol 1e-15), forwards and backwards. Planets sorted by period."""
+    (DOP853, rtol 1e-12, atol 1e-15), forwards and backwards. Planets sorted by period;
+    ``inc`` and ``node`` (radians) shared or one per planet."""
+    inc = np.broadcast_to(np.asarray(inc, float), np.shape(P))
+    node = np.broadcast_to(np.asarray(node, float), np.shape(P))
+    return _newton(t, P, tp, e, w, K, M_star, inc, node)
+
+
+def _newton(t, P, tp, e, w, K, M_star, inc, node):
     from scipy.integrate import solve_ivp
 
-    masses = _masses(P, K, e, M_star, math.sin(inc))
+    masses = _masses(P, K, e, M_star, np.sin(inc))
     pos = [np.zeros(3)]
     vel = [np.zeros(3)]
     m_all = [M_star]
@@ -162,7 +171,7 @@ def newton_star_velocity(t, P, tp, e, w, K, M_star, inc):
     for j in range(len(P)):
         mu = G * (interior + masses[j])
         r, v = _kepler_state(mu, P[j], e[j], w[j] + math.pi, 2 * math.pi * (0 - tp[j]) / P[j],
-                             inc)  # fmt: skip
+                             inc[j], node[j])  # fmt: skip
         pos.append(com_r + r)
         vel.append(com_v + v)
         m_all.append(masses[j])

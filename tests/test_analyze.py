@@ -140,3 +140,40 @@ def test_star_options_checked(tmp_path, capsys):
     assert "--star-radius needs --star-mass" in capsys.readouterr().err
     assert main([*args, "--star-mass", "1", "--star-teff", "5000"]) == 2
     assert "--star-teff needs --star-radius" in capsys.readouterr().err
+
+
+@pytest.mark.integration
+def test_stability_of_the_demo_star_analytic_and_integrated_on_pools_and_dask(demo_run,
+                                                                               tmp_path):
+    # the demo's two companions (truth 11.9 and 97 d, invented by scripts/make_demo.py)
+    # are far apart: every draw Hill and AMD stable, and MEGNO regular (about 2,
+    # Cincotta & Simo 2000); the draws' values are the same on one process, two local
+    # processes and a Dask cluster
+    pytest.importorskip("rebound")
+    distributed = pytest.importorskip("distributed")
+    import shutil
+
+    res = json.loads((demo_run / "results.json").read_text())
+    st = res["stability"]
+    assert st["hill_stable_fraction"] == 1.0 and st["amd_stable_fraction"] == 1.0
+    assert st["masses"].startswith("minimum masses")
+    values = {}
+    for how, extra in (("here", []), ("pool", ["--workers", "2"]), ("dask", None)):
+        run = tmp_path / how
+        shutil.copytree(demo_run, run)
+        if extra is None:
+            with distributed.LocalCluster(
+                n_workers=2, threads_per_worker=1, processes=True, host="127.0.0.1",
+                dashboard_address="127.0.0.1:0", local_directory=str(tmp_path / "dask"),
+            ) as cluster:  # fmt: skip
+                code = main(["stability", str(run), "--draws", "6", "--orbits", "300",
+                             "--quiet", "--scheduler", cluster.scheduler_address])  # fmt: skip
+        else:
+            code = main(["stability", str(run), "--draws", "6", "--orbits", "300", "--quiet",
+                         *extra])  # fmt: skip
+        assert code == 0
+        out = json.loads((run / "stability.json").read_text())
+        values[how] = [d["megno"] for d in out["per_draw"]]
+        assert out["fraction_regular"] == 1.0 and abs(out["megno_median"] - 2.0) < 0.3
+        assert (run / "stability.csv").read_text().count("\n") == 7
+    assert values["here"] == values["pool"] == values["dask"]

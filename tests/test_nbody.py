@@ -261,3 +261,26 @@ def test_ctrl_c_still_works_after_rebound_integrations():
     with pytest.raises(KeyboardInterrupt):
         os.kill(os.getpid(), signal.SIGINT)
         time.sleep(1.0)
+
+
+def test_mutually_inclined_pair_matches_newtons_equations_and_differs_from_coplanar():
+    # reference: solve_ivp on Newton's equations (tests/stars.py), each planet with its
+    # own inclination and node (rotations Rz(node) Rx(i) Rz(omega), Murray & Dermott
+    # 1999, sec. 2.8); the mutual inclination by spherical trigonometry
+    inc = np.radians([60.0, 75.0])
+    node = np.array([0.0, 0.7])
+    args = (TEN_YEARS, PAIR["P"], PAIR["tp"], PAIR["e"], PAIR["w"], PAIR["K"], 0.37)
+    ref = newton_star_velocity(*args, inc, node)
+    got = nbody.star_velocity(*args, inc, node=node)
+    assert np.max(np.abs(got - ref)) < 0.05
+    flat = nbody.star_velocity(*args, inc[0])
+    assert np.max(np.abs(got - flat)) > 5.0
+    # the angle between the orbit normals Rz(node) Rx(i) z = (sin i sin node,
+    # -sin i cos node, cos i), by the dot product
+    normals = np.column_stack([np.sin(inc) * np.sin(node), -np.sin(inc) * np.cos(node),
+                               np.cos(inc)])  # fmt: skip
+    phi = nbody.mutual_inclination(inc[0], node[0], inc[1], node[1])
+    assert float(phi) == pytest.approx(math.acos(normals[0] @ normals[1]), abs=1e-12)
+    # equal inclinations and nodes: the coplanar model
+    same = nbody.star_velocity(*args, np.array([inc[0], inc[0]]), node=np.array([0.3, 0.3]))
+    np.testing.assert_allclose(same, flat, atol=1e-6)

@@ -219,12 +219,13 @@ def _dynamics_lines(d: dict) -> list[str]:
     lines: list[str] = []
     dyn = d.get("dynamics")
     if dyn:
-        inc = dyn["inclination_deg"]
+        inc = dyn.get("inclination_deg")
+        shared = (f" Shared inclination {inc['median']:.1f} (+{inc['plus']:.1f} "
+                  f"-{inc['minus']:.1f}) deg." if inc else " Inclinations and nodes free "
+                  "(per companion in the table above; Phi: mutual inclination with the first).")
         lines += [
             "## Dynamics", "",
-            f"N-body model ({dyn['integrator']}); light-travel time neglected. Shared "
-            f"inclination {inc['median']:.1f} (+{inc['plus']:.1f} -{inc['minus']:.1f}) "
-            "deg.", "",
+            f"N-body model ({dyn['integrator']}); light-travel time neglected.{shared}", "",
             "| dynamics | free parameters | ln L | BIC | delta BIC |", "|---|---|---|---|---|",
         ]  # fmt: skip
         lines += [f"| {r['dynamics']} | {r['n_free']} | {r['log_likelihood']:.2f} | "

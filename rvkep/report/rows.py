@@ -24,6 +24,8 @@ PLANET_COLUMNS = [
     ("msini_mjup", "msini_mjup", "M$_\\mathrm{J}$", r"$m \sin i$"),
     ("msini_mearth", "msini_mearth", "M$_\\oplus$", r"$m \sin i$"),
     ("mass_mjup", "mass_mjup", "M$_\\mathrm{J}$", r"$m$"),  # N-body runs: the true mass
+    ("inclination_deg", "inclination_deg", "deg", r"$i$"),  # N-body, inclinations free
+    ("mutual_inclination_deg", "mutual_inclination_deg", "deg", r"$\Phi$"),
     ("a_au", "a_au", "au", r"$a$"),
     ("periastron_au", "periastron_au", "au", r"$r_\mathrm{peri}$"),
     ("apastron_au", "apastron_au", "au", r"$r_\mathrm{apo}$"),
