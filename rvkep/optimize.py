@@ -498,7 +498,8 @@ def _grid_by_period(data, resid, weights, design, periods, n_starts, keep):
     return [grids[i] for i in sorted(order)]
 
 
-def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitResult:
+def _add_one(current, data, periods, period_range, n_starts, spec=None,
+             keep: int = MAX_FULL_FITS) -> FitResult:  # fmt: skip
     model = current.model
     # a noise model's own parameters (a Gaussian process's timescales) are held at the
     # current fit's values while the candidates are screened, then freed for the winner
@@ -514,7 +515,7 @@ def _add_one(current, data, periods, period_range, n_starts, spec=None) -> FitRe
     if spec is not None:
         label = spec.label
     grids = _grid_by_period(data, resid, weights, model.design, list(periods), n_starts,
-                            MAX_FULL_FITS)  # fmt: skip
+                            keep)  # fmt: skip
     for P, grid in grids:
         starts = []
         # conjunction nearest the epoch, or nearest the centre of a given tc prior

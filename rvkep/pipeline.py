@@ -83,11 +83,15 @@ def _say(opts: AnalyzeOptions, text: str) -> None:
         print(text, flush=True)
 
 
-def choose_companions(search_result, data, base, period_range, max_companions: int):
-    """Fits with 0 .. N+1 companions and the chosen N (FAP and BIC, see module text).
+def choose_companions(search_result, data, base, period_range, max_companions: int,
+                      notes: list | None = None):  # fmt: skip
+    """Fits with 0 .. N+1 companions and the chosen N (FAP and BIC, see module text),
+    each count also tried with an orbit longer than the data
+    (:func:`rvkep.choice.long_period_stage`, its notes appended to ``notes``).
 
     Returns (fits, n_chosen, comparison rows).
     """
+    from rvkep.choice import long_period_stage
     from rvkep.optimize import fit_companions
 
     fits = list(search_result.fits)
@@ -105,6 +109,9 @@ def choose_companions(search_result, data, base, period_range, max_companions: i
             fits = fits[: n_fap + 1] + [extra]
         except (RvkepError, ValueError, np.linalg.LinAlgError):
             fits = fits[: n_fap + 1]
+    fits, stage_notes = long_period_stage(fits, data, period_range)
+    if notes is not None:
+        notes.extend(stage_notes)
     n = n_fap
     while n > 0 and fits[n].bic > fits[n - 1].bic - BIC_THRESHOLD:
         n -= 1
@@ -116,8 +123,9 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
     """Search and choose the companions for one trend degree (``base.trend``).
 
     Returns (search result, chosen fit, companion-number comparison rows, message,
-    the fits by number of companions).
+    the fits by number of companions, notes).
     """
+    from rvkep.choice import long_period_stage
     from rvkep.optimize import fit_companions
     from rvkep.search import search
 
@@ -138,7 +146,7 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
         comparison = _comparison_rows(fits, 1, search_result)
         comparison[1]["n_companions"] = len(spec.companions)
         return (search_result, fit, comparison,
-                f"model file: {len(spec.companions)} companion(s)", fits)  # fmt: skip
+                f"model file: {len(spec.companions)} companion(s)", fits, [])  # fmt: skip
     if opts.companions is not None:
         fits = list(search_result.fits)
         from rvkep.search import candidate_periods, residual_periodogram
@@ -148,16 +156,18 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
             fits.append(fit_companions(data, [candidate_periods(pg, data.time, period_range)],
                                        base=base, period_range=period_range,
                                        previous=fits[-1]))  # fmt: skip
-        fits = fits[: opts.companions + 1]
+        fits, notes = long_period_stage(fits[: opts.companions + 1], data, period_range)
         comparison = _comparison_rows(fits, opts.companions, search_result)
         return (search_result, fits[opts.companions], comparison,
-                f"{opts.companions} companion(s) fitted as asked (--companions)", fits)  # fmt: skip
+                f"{opts.companions} companion(s) fitted as asked (--companions)", fits,
+                notes)  # fmt: skip
+    notes: list[str] = []
     fits, n, comparison = choose_companions(
-        search_result, data, base, period_range, opts.max_companions
+        search_result, data, base, period_range, opts.max_companions, notes
     )
     message = (f"search: {len(search_result.significant)} significant signal(s); "
                f"{n} companion(s) kept after the BIC comparison")  # fmt: skip
-    return search_result, fits[n], comparison, message, fits
+    return search_result, fits[n], comparison, message, fits, notes
 
 
 def choose_across(outcomes: list, data, fixed: bool, spec=None):
@@ -173,6 +183,7 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
 
     per_degree = [list(o[4]) for o in outcomes]
     notes: list[str] = []
+    chosen_notes = [n for o in outcomes for n in (o[5] if len(o) > 5 else [])]
     if len(outcomes) > 1:
         per_degree, _ = rules.nested_refits(per_degree)
     cands = []  # (degree index, companion count)
@@ -220,6 +231,8 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
         })  # fmt: skip
     if not fixed:
         notes += rules.alternatives([per_degree[a][b] for a, b in cands], fit)
+    prefix = f"{k} companion(s), degree {fit.model.trend}:"  # the chosen model's own stage
+    notes += [n for n in chosen_notes if n.startswith(prefix)]
     return search_result, fit, comparison, message, fits, rows, notes
 
 

@@ -225,3 +225,39 @@ def interacting_pair(
     err = np.full(t.size, 2.0)
     data = RVData(t, v + rng.normal(0, 2.0, t.size), err, np.array(["wren"] * t.size))
     return data, truth
+
+
+def giant_and_outer_companion(seed: int = 17) -> RVData:
+    """A giant planet (P 326 d, K 40 m/s, e 0.1, omega 1.0 rad) and an outer companion
+    on an orbit one and a half times longer than the data (P 6,000 d, K 35 m/s, e 0.4,
+    omega 4.0 rad, periastron inside the data); 90 velocities over 4,000 days from three
+    spectrographs ("heron" to day 1,500, "ibis" to 2,800, "jay" after; zero points 0,
+    25 and -15 m/s), errors 4 m/s.
+
+    Truth: two companions, no trend. On a published star of this kind the outer orbit
+    came out at 587 d with e = 0.93 and a linear trend."""
+    rng = np.random.default_rng(seed)
+    t = _season_times(rng, 90, 4000)
+    v = radial_velocity(t, 326.0, 2459100.0, 0.1, 1.0, 40.0)
+    v = v + radial_velocity(t, 6000.0, 2461200.0, 0.4, 4.0, 35.0)
+    day = t - t.min()
+    inst = np.where(day < 1500, "heron", np.where(day < 2800, "ibis", "jay"))
+    zero = np.where(inst == "heron", 0.0, np.where(inst == "ibis", 25.0, -15.0))
+    v = v + zero + rng.normal(0, 4.0, t.size)
+    return RVData(t, v, np.full(t.size, 4.0), inst)
+
+
+def quadratic_instead_of_brown_dwarf(seed: int = 7) -> RVData:
+    """The times, errors and two zero points of :func:`brown_dwarf_open_orbit` with the
+    companion replaced by a quadratic trend (slope 30 m/s/yr, curvature -6 m/s/yr^2
+    about the middle of the data).
+
+    Truth: no companion, a trend of degree 2."""
+    rng = np.random.default_rng(seed)
+    t = np.sort(2459000.0 + rng.uniform(0, 6500, 50))
+    years = (t - 0.5 * (t[0] + t[-1])) / 365.25
+    v = 30.0 * years - 6.0 * years**2
+    late = t - t.min() > 3000
+    v = v + np.where(late, 40.0, 0.0) + rng.normal(0, 5.0, t.size)
+    inst = np.where(late, "eagle-2", "eagle-1")
+    return RVData(t, v, np.full(t.size, 5.0), inst)

@@ -137,3 +137,32 @@ def test_a_signal_one_instrument_alone_sees_is_not_adopted():
     ch = choose_model(data, AnalyzeOptions(quiet=True, noise="white", trend=0))
     assert choice.periods_of(ch.fit) == pytest.approx([31.4], rel=2e-3)
     assert any("seen by wren only" in n for n in ch.notes)
+
+
+def test_an_outer_companion_longer_than_the_data_is_an_orbit_not_a_trend():
+    # invented (tests/stars.py): a 326-d giant and a companion at 1.5 x the span (6,000
+    # d over 4,000 d). The periodogram's second period was 2,359 d; with a linear trend
+    # a 3,130-d orbit won. The long-period stage finds the open orbit at degree 0
+    from stars import giant_and_outer_companion
+
+    from rvkep.pipeline import AnalyzeOptions, choose_model
+
+    data = giant_and_outer_companion()
+    ch = choose_model(data, AnalyzeOptions(quiet=True))
+    periods = sorted(ch.fit.params[f"{c.label}.period"] for c in ch.fit.model.companions)
+    span = float(data.time.max() - data.time.min())
+    assert ch.fit.model.trend == 0 and len(periods) == 2
+    assert abs(periods[0] - 326.0) < 3.0
+    assert periods[1] > span  # an orbit longer than the data, not closed
+    assert any("longer than half the data" in n for n in ch.notes)
+
+
+def test_a_quadratic_trend_stays_a_trend():
+    # the same times and zero points as the invented brown dwarf, the companion
+    # replaced by a quadratic (tests/stars.py): a trend of degree 2, no companion
+    from stars import quadratic_instead_of_brown_dwarf
+
+    from rvkep.pipeline import AnalyzeOptions, choose_model
+
+    ch = choose_model(quadratic_instead_of_brown_dwarf(), AnalyzeOptions(quiet=True))
+    assert ch.fit.model.trend == 2 and not ch.fit.model.companions
