@@ -990,4 +990,9 @@ def write_figures(results, out: str | Path, fmt: str = "png", which: str = "all"
             written.append(save_figure(corner_figure(results, L), out / f"corner_{L}.{fmt}"))
     if "periodogram" in kinds and results.search is not None:
         written.append(save_figure(plot_periodograms(results.search), out / f"periodogram.{fmt}"))
+    if "timeseries" in kinds and results.trend_degree >= 1:
+        from rvkep.plots import trend_companion_figure
+
+        written.append(save_figure(trend_companion_figure(results),
+                                   out / f"trend_companion.{fmt}"))  # fmt: skip
     return written

@@ -432,6 +432,33 @@ def plan_figure(plan, fig=None):
 
 
 @_styled
+def trend_companion_figure(results, fig=None):
+    """The least mass of a companion that could cause the run's trend, against its
+    separation (:meth:`rvkep.results.Results.trend_companion`): the median over the
+    posterior of the slope and its 1st percentile, with the brown-dwarf and stellar
+    limits (13 and 80 Jupiter masses) drawn for scale."""
+    rows = results.trend_companion()
+    fig, axes = _figure(fig, 1, figsize=(6.5, 4.2))
+    ax = axes[0]
+    a = np.array([r["a_au"] for r in rows])
+    ax.plot(a, [r["min_mass_mjup"] for r in rows], color=MODEL_COLOUR, lw=1.6,
+            label="least mass (median slope)")  # fmt: skip
+    ax.plot(a, [r["min_mass_mjup_p1"] for r in rows], color=MODEL_COLOUR, lw=1.0, ls="--",
+            label="1st percentile of the slope")  # fmt: skip
+    for m, text in ((13.0, "13 M_Jup"), (80.0, "80 M_Jup")):
+        ax.axhline(m, color="0.6", lw=0.8, ls=":")
+        ax.annotate(text, (a[0], m), xytext=(2, 2), textcoords="offset points", fontsize=7,
+                    color="0.4")  # fmt: skip
+    ax.set_xscale("log")
+    ax.set_yscale("log")
+    ax.set_xlabel("separation [au]")
+    ax.set_ylabel("least companion mass [Jupiter masses]")
+    ax.set_title("what the trend implies (Torres 1999)", fontsize=10)
+    ax.legend(loc="lower right", fontsize=8, frameon=False)
+    return fig
+
+
+@_styled
 def plot_limits(limits, companions=(), fig=None):
     """A completeness map (:class:`rvkep.limits.Limits`): the share of injected
     companions recovered in each period and M sin i cell, the 50% and 95% curves, and

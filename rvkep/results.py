@@ -57,6 +57,7 @@ class Results:
     star_name: str | None = None  # titles the summary and the report
     dynamics_comparison: list[dict] = field(default_factory=list)  # Keplerian vs N-body
     stability: dict = field(default_factory=dict)  # rvkep.stability.stability_summary
+    open_orbits: dict = field(default_factory=dict)  # rvkep.outer.open_orbits
 
     # -- building -------------------------------------------------------------
 
@@ -98,6 +99,12 @@ class Results:
                                     posterior[f"{L}.ecc"], star_mass)  # fmt: skip
                 posterior.add(f"{L}.mass_mjup", mass)
         out = cls(data, posterior, fit, sampling, star=star, star_assumed=assumed, **kwargs)
+        from rvkep.outer import jitter_notes, open_orbit_note, open_orbits
+
+        span = float(np.ptp(data.time)) if len(data) else 0.0
+        out.open_orbits = open_orbits(posterior.columns, out.labels, span)
+        out.notes += [open_orbit_note(L, e, span) for L, e in out.open_orbits.items()]
+        out.notes += jitter_notes(fit.model, posterior.columns)
         if len(fit.model.companions) > 1:
             out.stability = _stability(fit.model, posterior)
             if not (out.stability["median_hill_stable"] and out.stability["median_amd_stable"]):
@@ -332,6 +339,16 @@ class Results:
             marks.append(f"stellar mass ASSUMED ({self.star.mass:g} M_sun)")
         return marks
 
+    def trend_companion(self) -> list[dict]:
+        """The least mass of a companion causing the trend, by separation
+        (:func:`rvkep.outer.trend_companion`; empty without a trend)."""
+        from rvkep.outer import trend_companion
+
+        if "trend.slope" not in self.posterior:
+            return []
+        return trend_companion(self.posterior.columns, float(np.ptp(self.data.time)),
+                               float(self.star.mass))  # fmt: skip
+
     @property
     def dynamics_note(self) -> str:
         """For an N-body run, what the Keplerian-based outputs (events, plans) assume;
@@ -362,6 +379,9 @@ class Results:
                     entry[key] = self.estimate(f"{L}.{col}")
             if L in self.ecc_tests:
                 entry["ecc_test"] = dict(self.ecc_tests[L])
+            entry["orbit_closed"] = L not in self.open_orbits
+            if L in self.open_orbits:
+                entry["lower_limits"] = dict(self.open_orbits[L]["lower_limits"])
             planets.append(entry)
         instruments = []
         model = self.fit.model
@@ -474,6 +494,7 @@ class Results:
                               "crossing orbits; coplanar, Jacobi elements at the epoch",
             }} if model.dynamics != "keplerian" else {}),  # fmt: skip
             **({"stability": self.stability} if self.stability else {}),
+            **({"trend_companion": self.trend_companion()} if model.trend else {}),
             "priors": [{"parameter": p, "prior": d} for p, d in model.describe_priors()],
             "reference_epoch": self.data.epoch,
             "seed": self.seed,
@@ -524,6 +545,9 @@ class Results:
                 f"e = {text_estimate(p['ecc'])}, m sin i = {text_estimate(p['msini_mjup'])} M_Jup "
                 f"({text_estimate(p['msini_mearth'])} M_Earth), a = {text_estimate(p['a_au'])} au"
                 + (f", m = {text_estimate(p['mass_mjup'])} M_Jup" if "mass_mjup" in p else "")
+                + (f"; orbit NOT closed: P > {p['lower_limits']['period_d']:.4g} d, m sin i > "
+                   f"{p['lower_limits']['msini_mjup']:.3g} M_Jup (1st percentiles)"
+                   if not p.get("orbit_closed", True) else "")
             )
         if "dynamics" in d and "inclination_deg" in d["dynamics"]:
             lines.append(f"  N-body: inclination = {text_estimate(d['dynamics']['inclination_deg'])}"

@@ -32,6 +32,7 @@ FIGURE_ORDER = (
     ("phase_{L}.png", "Companion {L}, folded on its period"),
     ("periodogram.png", "The search's periodograms"),
     ("limits.png", "Detection limits"),
+    ("trend_companion.png", "What the trend implies: the least mass of its cause"),
     ("corner_{L}.png", "Companion {L}: posterior"),
 )
 

@@ -168,6 +168,7 @@ def render(results) -> str:
                 f"| {row['degree']} | {row['n_companions']} | {periods} | {row.get('n_free', '')} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
             )
         lines.append("")
+    lines += _trend_companion_lines(d)
     lines += _dynamics_lines(d)
     lines += [
         "## Sampler", "",
@@ -246,3 +247,21 @@ def _dynamics_lines(d: dict) -> list[str]:
                          f"{p['amd_beta']:.3g} | {'stable' if ok else 'NOT stable'} |")  # fmt: skip
         lines.append("")
     return lines
+
+
+def _trend_companion_lines(d: dict) -> list[str]:
+    """The least mass of a companion that could cause the trend, by separation."""
+    rows = d.get("trend_companion")
+    if not rows:
+        return []
+    lines = [
+        "## What the trend implies", "",
+        "If an unseen companion causes the trend, it needs at least this mass at each "
+        "separation (M >= a^2 |dv/dt| / G, the most favourable geometry; Torres 1999). "
+        "Closer than the first row its period would be shorter than the data and show as "
+        "an orbit:", "",
+        "| separation [au] | least mass [M_Jup], median | 1st percentile |", "|---|---|---|",
+    ]  # fmt: skip
+    lines += [f"| {r['a_au']:.3g} | {r['min_mass_mjup']:.3g} | {r['min_mass_mjup_p1']:.3g} |"
+              for r in rows]  # fmt: skip
+    return lines + [""]
