@@ -1,6 +1,7 @@
 """The model curves the figures draw, as arrays (for a notebook or a report too).
 
-:func:`timeseries_curves` gives the best-fit velocity curve over the data's span, its
+:func:`timeseries_curves` gives the best-fit velocity curve over the data's span (and
+ten years past it when an orbit is not closed), its
 68% posterior band (from up to 300 posterior draws, one kernel call), the data with
 offsets and trend removed and the residuals; :func:`phase_curves` gives one companion's
 phase-folded points (the other companions, offsets, trend and any correlated activity
@@ -64,6 +65,10 @@ def _draws(results, n: int, rng):
     return results.fit.model.to_physical(theta[idx])
 
 
+#: how far the time series runs past the data when an orbit is not closed (ten years)
+FUTURE_DAYS = 3652.5
+
+
 def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) -> dict:
     """Keys: ``time`` (grid), ``curve`` (best fit), ``band`` ((low, high) or None),
     ``data`` (RVData, the offsets and trend removed but each instrument's offset added
@@ -76,7 +81,10 @@ def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) ->
     model, epoch = fit.model, data.epoch
     offsets, own, off = _zero_points(results)
     span = data.time[-1] - data.time[0]
-    ct = np.linspace(data.time[0] - 0.03 * span, data.time[-1] + 0.03 * span, n_grid)
+    # an orbit not closed: the posterior's spread over the next ten years
+    ahead = FUTURE_DAYS if any(not p.get("orbit_closed", True)
+                               for p in results.to_dict()["planets"]) else 0.03 * span  # fmt: skip
+    ct = np.linspace(data.time[0] - 0.03 * span, data.time[-1] + ahead, n_grid)
     best = model.to_physical(fit.theta[None, :])
     curve = keplerian_velocity(model, best, t=ct)[0]
     band = None
