@@ -178,7 +178,8 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
 
     ``outcomes`` are :func:`select_companions`' results per degree; ``fixed``: the
     number of companions is given (model file or ``--companions``). Returns (search
-    result, fit, companion-number rows, message, fits by count, model rows, notes)."""
+    result, fit, companion-number rows, message, fits by count, model rows, notes, the
+    harmonic tests' records)."""
     from rvkep import choice as rules
 
     per_degree = [list(o[4]) for o in outcomes]
@@ -197,7 +198,14 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
     d, k = chosen
     fit = per_degree[d][k]
     span = float(data.time.max() - data.time.min())
-    checks = (lambda f: rules.harmonic_check(f, span)[:2], rules.support_check)
+    harmonics: list[dict] = []  # every harmonic test, for results.json
+
+    def harmonic(f):
+        reduced, found, records = rules.harmonic_check(f, span)
+        harmonics.extend(records)
+        return reduced, found
+
+    checks = (harmonic, rules.support_check)
     for check in checks if not fixed else ():
         if not fit.model.companions:
             break
@@ -233,7 +241,7 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
         notes += rules.alternatives([per_degree[a][b] for a, b in cands], fit)
     prefix = f"{k} companion(s), degree {fit.model.trend}:"  # the chosen model's own stage
     notes += [n for n in chosen_notes if n.startswith(prefix)]
-    return search_result, fit, comparison, message, fits, rows, notes
+    return search_result, fit, comparison, message, fits, rows, notes, harmonics
 
 
 def _selection_notes(search_result, fit, comparison) -> list[str]:
@@ -589,6 +597,7 @@ class ModelChoice:
     nested: object = None  # the nested run of the chosen model, when there is one
     extra_notes: list[str] = field(default_factory=list)  # from the evidence stage
     dynamics_rows: list[dict] = field(default_factory=list)  # Keplerian against N-body
+    harmonic_checks: list[dict] = field(default_factory=list)  # rvkep.choice.harmonic_check
     timings: dict = field(default_factory=dict)  # seconds: model_choice, evidence
 
 
@@ -632,13 +641,14 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
     t0 = time.perf_counter()
     outcomes = [select_companions(data, replace(base, trend=d), opts, spec) for d in degrees]
     fixed = bool(spec and spec.companions) or opts.companions is not None
-    search_result, fit, comparison, message, fits, trend_rows, rule_notes = choose_across(
-        outcomes, data, fixed, spec)  # fmt: skip
+    (search_result, fit, comparison, message, fits, trend_rows, rule_notes,
+     harmonics) = choose_across(outcomes, data, fixed, spec)  # fmt: skip
     _say(opts, message)
     if len(outcomes) > 1:
         _say(opts, f"trend: degree {fit.model.trend} chosen of 0, 1, 2 (BIC by parameter count, "
                    "see trend_comparison)")  # fmt: skip
     choice = ModelChoice(search_result, fit, comparison, trend_rows, [], fits)
+    choice.harmonic_checks = harmonics
     choice.extra_notes = list(rule_notes)
     t1 = time.perf_counter()
     choice.timings["model_choice"] = t1 - t0  # the search and the best fits, every trend
@@ -911,7 +921,7 @@ def _build_results(data, chosen: ModelChoice, sampled, star, opts, seed: int, no
         data, fit, sampled, posterior, star, rng=seed + 1, search=chosen.search,
         comparison=chosen.comparison, quick=opts.quick, seed=seed,
         trend_comparison=chosen.trend_rows, evidence=chosen.evidence,
-        dynamics_comparison=chosen.dynamics_rows,
+        dynamics_comparison=chosen.dynamics_rows, harmonic_checks=chosen.harmonic_checks,
     )  # fmt: skip
     results.notes.extend(notes)
     from rvkep.constraint import prior_notes

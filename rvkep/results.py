@@ -58,6 +58,7 @@ class Results:
     dynamics_comparison: list[dict] = field(default_factory=list)  # Keplerian vs N-body
     stability: dict = field(default_factory=dict)  # rvkep.stability.stability_summary
     open_orbits: dict = field(default_factory=dict)  # rvkep.outer.open_orbits
+    harmonic_checks: list[dict] = field(default_factory=list)  # which won, by how much
 
     # -- building -------------------------------------------------------------
 
@@ -485,6 +486,8 @@ class Results:
             "evidence": list(self.evidence),
             "timings": {k: float(v) for k, v in self.timings.items()},
             "trend_comparison": self.trend_comparison,
+            "harmonic_checks": [{k: (bool(v) if k == "kept" else v) for k, v in r.items()}
+                                for r in self.harmonic_checks],  # fmt: skip
             **({"dynamics": {
                 "kind": model.dynamics,
                 **({"inclination_deg": self.estimate("dynamics.inclination_deg")}

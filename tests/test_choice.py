@@ -166,3 +166,23 @@ def test_a_quadratic_trend_stays_a_trend():
 
     ch = choose_model(quadratic_instead_of_brown_dwarf(), AnalyzeOptions(quiet=True))
     assert ch.fit.model.trend == 2 and not ch.fit.model.companions
+
+
+@pytest.mark.integration
+def test_the_harmonic_tests_reach_results_json_and_the_summary():
+    # the invented resonant pair (tests/stars.py): whatever the search proposes at a
+    # harmonic is tested, and the record says which won and by how much
+    from stars import eccentric_resonant_pair
+
+    from rvkep.pipeline import _build_results, choose_model, sample_posterior
+
+    data = eccentric_resonant_pair()
+    opts = AnalyzeOptions(quiet=True, quick=True, max_steps=200, search="sine")
+    ch = choose_model(data, opts)
+    assert ch.harmonic_checks, "the sine search proposed no harmonic on this star"
+    sampled, notes, seed = sample_posterior(ch.fit, opts)
+    results = _build_results(data, ch, sampled, None, opts, seed, notes)
+    rec = results.to_dict()["harmonic_checks"][0]
+    assert set(rec) >= {"companion", "of", "ratio", "delta_bic", "kept"}
+    assert isinstance(rec["kept"], bool)
+    assert "## Harmonics" in results.markdown()

@@ -168,6 +168,18 @@ def render(results) -> str:
                 f"| {row['degree']} | {row['n_companions']} | {periods} | {row.get('n_free', '')} | {row['log_likelihood']:.2f} | {row['bic']:.2f} | {row['delta_bic']:.2f} | {'yes' if row['chosen'] else ''} |"
             )
         lines.append("")
+    if d.get("harmonic_checks"):
+        lines += [
+            "## Harmonics", "",
+            "A companion at P/2, P/3 or 2P of another is kept only if it beats the other "
+            "refitted eccentric by more than 10 in BIC:", "",
+            "| companion | period [d] | at the | of | delta BIC | e of the other alone | kept |",
+            "|---|---|---|---|---|---|---|",
+        ]  # fmt: skip
+        lines += [f"| {r['companion']} | {r['period_d']:.6g} | {r['ratio']} | {r['of']} | "
+                  f"{r['delta_bic']:.1f} | {r['ecc_without']:.3f} | "
+                  f"{'yes' if r['kept'] else 'no'} |" for r in d["harmonic_checks"]]  # fmt: skip
+        lines.append("")
     lines += _trend_companion_lines(d)
     lines += _dynamics_lines(d)
     lines += [
