@@ -926,12 +926,38 @@ def _build_results(data, chosen: ModelChoice, sampled, star, opts, seed: int, no
     results.notes.extend(notes)
     from rvkep.constraint import prior_notes
 
-    for note in prior_notes(fit.model, posterior.columns):
+    for note in prior_notes(fit.model, posterior.columns) + window_notes(data, posterior):
         _say(opts, f"note: {note}")
         results.notes.append(note)
     if opts.quick:
         results.notes.append("quick mode: short chains for a preview, not for publication")
     return results
+
+
+#: a window peak this high (the spectral window is 1 at zero frequency) makes a GP
+#: rotation period near it suspect
+WINDOW_SUSPECT = 0.2
+
+
+def window_notes(data, posterior) -> list[str]:
+    """A note when the GP's rotation period lies within 10% of a strong peak of the
+    spectral window (Deeming 1975): the sampling's own period, not the star's."""
+    if "noise.rotation_period" not in posterior:
+        return []
+    from rvkep.periodogram import frequency_grid, spectral_window
+
+    rot = float(np.median(posterior["noise.rotation_period"]))
+    f = frequency_grid(data.time, 0.9 * rot, 1.1 * rot, 10.0)
+    if f.size == 0:
+        return []
+    w = spectral_window(data.time, f)
+    k = int(np.argmax(w))
+    if w[k] < WINDOW_SUSPECT:
+        return []
+    return [f"the activity's rotation period ({rot:.4g} d) lies within 10% of a peak of the "
+            f"spectral window at {1 / f[k]:.4g} d (height {w[k]:.2f}): it may be the "
+            "sampling's period rather than the star's; give --star-rotation if photometry "
+            "knows it"]
 
 
 def write_outputs(results, out: Path, opts: AnalyzeOptions) -> dict[str, Path]:

@@ -127,7 +127,7 @@ def test_default_priors_and_parameters(gp_fit):
     assert names == list(model.noise_model.parameter_keys)
     assert model.names[-4:] == [f"noise.{n}" for n in names]
     pri = dict(model.describe_priors())
-    assert pri["noise.rotation_period [d]"].startswith("log-uniform(1, ")
+    assert pri["noise.rotation_period [d]"].startswith("log-uniform(1.1, ")
     assert pri["noise.harmonic_fraction"] == "uniform(0, 1)"
     theta = model.start_theta()
     bad = theta.copy()
@@ -206,3 +206,24 @@ def test_figures_draw_the_activity_apart_and_remove_it_from_the_phase_plot():
     assert white + act["at_data"] == pytest.approx(data.rv - model.linear_part(fit.params))
     fig = timeseries_figure(res)
     assert len(fig.axes) == 4 and "activity" in fig.axes[1].get_legend().texts[0].get_text()
+
+
+def test_the_rotation_prior_starts_above_the_daily_alias_and_a_window_peak_is_named():
+    # the sidereal day is the spectral window's strongest peak for nightly ground-based
+    # data (Deeming 1975, Ap&SS 36, 137; Dawson & Fabrycky 2010, ApJ 722, 937): the
+    # default rotation prior starts 10% above it, and a GP rotation on a window peak
+    # (here a 29.5-d sampling pattern, one run of nights a month) is named as suspect
+    from rvkep.data import RVData
+    from rvkep.noise.gp import ROTATION_MIN, QuasiPeriodicGP
+    from rvkep.pipeline import window_notes
+
+    rng = np.random.default_rng(4)
+    nights = np.array([d for d in range(600) if (d % 29.53) < 7])
+    t = 2459000.0 + nights + rng.normal(0, 0.02, nights.size)
+    data = RVData(t, rng.normal(0, 3, t.size), np.full(t.size, 2.0), np.array(["a"] * t.size))
+    rot = {p.name: p for p in QuasiPeriodicGP().parameters(data)}["rotation_period"]
+    assert rot.prior.bounds[0] == ROTATION_MIN and ROTATION_MIN > 1.0 / 1.0027 * 1.1 - 1e-3
+    assert window_notes(data, {"noise.rotation_period": np.full(100, 29.8)})[0].startswith(
+        "the activity's rotation period (29.8 d) lies within 10% of a peak")
+    assert window_notes(data, {"noise.rotation_period": np.full(100, 21.0)}) == []
+    assert window_notes(data, {}) == []

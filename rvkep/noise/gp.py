@@ -31,9 +31,10 @@ Offsets and the trend are marginalized (or solved) through C exactly as for whit
 columns together.
 
 Default priors (:meth:`QuasiPeriodicGP.parameters`): A uniform on [0, max(10, 3 x RMS)]
-m/s, like the jitters; P log-uniform from 1 d to half the baseline (at most 100 d);
-L log-uniform from 1 d to twice the baseline (at least 100 d); f uniform on [0, 1].
-A model file's ``[noise]`` table replaces any of them.
+m/s, like the jitters; P log-uniform from 1.1 d (``ROTATION_MIN``, above the daily
+alias) to half the baseline (at most 100 d); L log-uniform from 1 d to twice the
+baseline (at least 100 d); f uniform on [0, 1]. A model file's ``[noise]`` table
+replaces any of them.
 
 References
 ----------
@@ -55,6 +56,12 @@ from rvkep.priors import LogUniform, Uniform
 __all__ = ["QuasiPeriodicGP", "covariance"]
 
 _LOG_2PI = float(np.log(2.0 * np.pi))
+#: the shortest rotation period the default prior allows: 10% above the sidereal day,
+#: the spectral window's strongest peak for data taken from the ground at night, so
+#: the GP cannot settle on the sampling's daily alias (an invented active star's GP
+#: rotation went to 1.04 d from a prior starting at 1 d); its fractions (1/2, 1/3 d)
+#: lie below it. A star rotating faster needs a model file's [noise] rotation_period
+ROTATION_MIN = 1.1
 #: rotation periods tried for the start value, per decade
 _GRID_PER_DECADE = 12
 #: frequencies whose design columns are solved through C at once in the periodogram
@@ -130,12 +137,13 @@ class QuasiPeriodicGP(NoiseModel):
     def parameters(self, data) -> list[NoiseParameter]:
         rms = float(np.std(defaults.centred_velocities(data))) if len(data) > 1 else 10.0
         span = float(np.ptp(data.time))
-        p_hi = max(min(100.0, 0.5 * span), 2.0)
+        p_hi = max(min(100.0, 0.5 * span), 2.0 * ROTATION_MIN)
         l_hi = max(100.0, 2.0 * span)
         return [
             NoiseParameter("amplitude", Uniform(0.0, max(10.0, 3.0 * rms)), max(0.5 * rms, 0.1),
                            "m/s", "activity signal's standard deviation", (0.0, np.inf)),
-            NoiseParameter("rotation_period", LogUniform(1.0, p_hi), float(np.sqrt(p_hi)),
+            NoiseParameter("rotation_period", LogUniform(ROTATION_MIN, p_hi),
+                           float(np.sqrt(ROTATION_MIN * p_hi)),
                            "d", "stellar rotation period", (1e-3, np.inf)),
             NoiseParameter("evolution_time", LogUniform(1.0, l_hi), float(np.sqrt(l_hi)),
                            "d", "spot lifetime (coherence time of the signal)", (1e-3, np.inf)),
