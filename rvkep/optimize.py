@@ -23,6 +23,7 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
+from rvkep import defaults
 from rvkep.data import RVData
 from rvkep.likelihood import LogPosterior
 from rvkep.model import LABELS, SystemModel, default_companion, orbit_velocity
@@ -455,9 +456,10 @@ def fit_companions(
 def _new_companion(data, label, P, start, period_range, spec):
     """A companion built from a start (tc in data time), default priors or ``spec``'s."""
     if spec is None:
+        short = P < defaults.CIRCULAR_BELOW  # tidally circularized (rvkep.defaults)
         return default_companion(
-            data, label, P, start["tc"], max(start["K"], 0.1), start["ecc"], start["omega"],
-            period_range,
+            data, label, P, start["tc"], max(start["K"], 0.1),
+            0.0 if short else start["ecc"], start["omega"], period_range, circular=short,
         )  # fmt: skip
     ecc = 0.0 if spec.ecc is not None and spec.ecc.is_fixed else start["ecc"]
     full = {

@@ -27,6 +27,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from rvkep.data import RVData
+from rvkep.defaults import CIRCULAR_BELOW
 from rvkep.model import SystemModel
 from rvkep.optimize import FitResult, fit, fit_companions
 from rvkep.options import SEARCH_KINDS
@@ -221,6 +222,16 @@ def residual_periodogram(fit_result: FitResult, frequency: np.ndarray, label: st
 #: An orbit fitted at least this eccentric has its sine peak checked against the
 #: Keplerian periodogram in the ``auto`` search.
 AUTO_ECC = 0.5
+#: the ``auto`` search's Keplerian checks look at periods from this up: shorter orbits
+#: are fitted circular (rvkep.defaults.CIRCULAR_BELOW), where the sine periodogram
+#: already is the Keplerian one; the checks then cost the same whatever the shortest
+#: period searched (0.2 d by default)
+KEPLERIAN_MIN_PERIOD = CIRCULAR_BELOW
+
+
+def _long_enough(freq: np.ndarray) -> np.ndarray:
+    """The part of a frequency grid the ``auto`` Keplerian checks cover."""
+    return freq[freq <= 1.0 / KEPLERIAN_MIN_PERIOD]
 #: The searches: the sine periodogram, the Keplerian one, or the sine one checked by
 #: the Keplerian one (see :func:`search`).
 
@@ -270,7 +281,8 @@ def search(
     ----------
     data : RVData
     min_period, max_period : float, optional
-        Search range in days (default 1.2 d to the baseline).
+        Search range in days (default 0.2 d, the Roche limit of a rocky planet, to
+        the baseline).
     fap_threshold : float
         Stop at the first peak with a larger false-alarm probability.
     max_signals : int
@@ -331,8 +343,8 @@ def search(
         significant = fap < fap_threshold and len(candidates) < max_signals
         cand = Candidate(period, power, fap, None, significant,
                          periodogram="keplerian" if kind == "keplerian" else "sine")  # fmt: skip
-        if check and not significant and len(candidates) < max_signals:
-            kp = keplerian_residual_periodogram(current, freq, label)
+        if check and not significant and len(candidates) < max_signals and _long_enough(freq).size:
+            kp = keplerian_residual_periodogram(current, _long_enough(freq), label)
             k_period, k_power, _ = kp.best()
             bound, trials = bounded_fap(kp, k_power)
             if bound < fap_threshold:
@@ -389,7 +401,9 @@ def _check_eccentric(current, previous, cand, tries, freq, label, data, base, pe
     are new, the joint fit on them competes with ``current`` by likelihood."""
     new = current.model.companions[-1].label
     e = current.params[f"{new}.ecc"]
-    kp = keplerian_residual_periodogram(previous, freq, label)
+    if _long_enough(freq).size == 0:
+        return current
+    kp = keplerian_residual_periodogram(previous, _long_enough(freq), label)
     k_period = kp.best()[0]
     if any(abs(k_period / q - 1.0) <= 0.01 for q in tries):
         cand.notes.append(f"fitted e = {e:.2f}: the Keplerian periodogram peaks at a period "
