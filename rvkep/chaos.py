@@ -47,7 +47,7 @@ def megno(period, tp_rel, ecc, omega, K, star_mass: float, inclination=0.5 * mat
     P = np.atleast_1d(np.asarray(period, float))
     a_max = max(p.a for p in sim.particles[1:])
     sim.exit_max_distance = ESCAPE_FACTOR * a_max
-    if sim.integrator.name == b"whfast":
+    if sim.integrator == "whfast":
         sim.integrator.safe_mode = 1  # the variational equations need synchronized steps
     sim.init_megno(seed=seed)
     try:
@@ -132,7 +132,7 @@ def run_stability(run_dir: str | Path, draws: int = 100, orbits: float = 5000.0,
             if not quiet:
                 print(file=sys.stderr)
         y = np.array([values.get(k, math.nan) for k in range(len(rows))])
-        done = np.isfinite(y) | np.isinf(y)
+        done = ~np.isnan(y)  # finite, or inf for an escape
         if interrupted:
             raise KeyboardInterrupt
         summary = {

@@ -211,7 +211,20 @@ def _velocities(sim, times: np.ndarray) -> np.ndarray:
     return out
 
 
-def _star_velocity(
+def _keeping_sigint(fn):
+    """``fn`` run inside :func:`keep_sigint` (it is defined below; looked up at call)."""
+    import functools
+
+    @functools.wraps(fn)
+    def guarded(*args, **kwargs):
+        with keep_sigint():
+            return fn(*args, **kwargs)
+
+    return guarded
+
+
+@_keeping_sigint
+def star_velocity(
     t_rel,
     period,
     tp_rel,
@@ -223,6 +236,13 @@ def _star_velocity(
     integrator: str | None = None,
     node=0.0,
 ) -> np.ndarray:
+    """The star's line-of-sight velocity (m/s) at times ``t_rel`` (days from the epoch).
+
+    Parameters are those of :func:`simulation`. Returns shape ``t_rel.shape``. Positive
+    values move away from the observer, as a radial velocity does; for well-separated
+    light companions this is the sum of the Keplerians with the same elements. The
+    unguarded integration (for worker threads) is ``star_velocity.__wrapped__``.
+    """
     t = np.asarray(t_rel, float)
     flat = t.ravel()
     out = np.zeros(flat.size)
@@ -241,29 +261,6 @@ def _star_velocity(
         order = before[np.argsort(-flat[before], kind="stable")]
         out[order] = _velocities(back, flat[order])
     return (out * M_PER_S).reshape(t.shape)
-
-
-def star_velocity(
-    t_rel,
-    period,
-    tp_rel,
-    ecc,
-    omega,
-    K,
-    star_mass: float,
-    inclination=0.5 * math.pi,
-    integrator: str | None = None,
-    node=0.0,
-) -> np.ndarray:
-    """The star's line-of-sight velocity (m/s) at times ``t_rel`` (days from the epoch).
-
-    Parameters are those of :func:`simulation`. Returns shape ``t_rel.shape``. Positive
-    values move away from the observer, as a radial velocity does; for well-separated
-    light companions this is the sum of the Keplerians with the same elements.
-    """
-    with keep_sigint():
-        return _star_velocity(t_rel, period, tp_rel, ecc, omega, K, star_mass, inclination,
-                              integrator, node)  # fmt: skip
 
 
 @contextlib.contextmanager
@@ -383,9 +380,9 @@ def star_velocity_rows(
             out[r] = np.nan
             return
         try:
-            out[r] = _star_velocity(t_rel, arr["period"][r], arr["tp_rel"][r], arr["ecc"][r],
-                                   arr["omega"][r], arr["K"][r], mass[r], inc[r],
-                                   node=nodes[r])  # fmt: skip
+            out[r] = star_velocity.__wrapped__(
+                t_rel, arr["period"][r], arr["tp_rel"][r], arr["ecc"][r], arr["omega"][r],
+                arr["K"][r], mass[r], inc[r], node=nodes[r])  # fmt: skip
         except (RuntimeError, ValueError, ArithmeticError):  # rebound.Escape etc.
             out[r] = np.nan
         except KeyboardInterrupt:  # REBOUND caught a Ctrl-C (in any thread)
