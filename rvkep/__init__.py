@@ -24,12 +24,12 @@ __all__ = [
 # name -> (module, attribute)
 _LAZY = {
     "load_rv": ("rvkep.data", "load_rv"),
-    "search": ("rvkep.search", "search"),
+    "search": ("rvkep.period_search", "search"),
     "fit": ("rvkep.optimize", "fit_orbits"),
     "sample": ("rvkep.sampling", "sample"),
     "analyze": ("rvkep.pipeline", "analyze"),
     "Results": ("rvkep.results", "Results"),
-    "predict": ("rvkep.predict", "predict"),
+    "predict": ("rvkep.prediction", "predict"),
     "StarProperties": ("rvkep.physics", "StarProperties"),
     "demo_files": ("rvkep.cli", "demo_files"),
     "population": ("rvkep.hierarchy", "run_population"),

@@ -24,6 +24,9 @@ from numba.extending import intrinsic
 from rvkep._constants import ALPHA_A as _ALPHA_A
 from rvkep._constants import ALPHA_B as _ALPHA_B
 from rvkep._constants import PI as _PI
+from rvkep._constants import PRIOR_LOGUNIFORM as _LOGUNIFORM
+from rvkep._constants import PRIOR_NORMAL as _NORMAL
+from rvkep._constants import PRIOR_UNIFORM as _UNIFORM
 from rvkep._constants import SMALL_E as _SMALL_E
 from rvkep._constants import TWO_PI as _TWO_PI
 from rvkep._kernel_cache import cache_folder, jit
@@ -325,16 +328,17 @@ def _row_elements(theta, cols, fill, circular, steep, steep_k, jit_cols, jit_fil
         kd = kind[j]
         v = V[j]
         dV[j] = 0.0
-        if kd == 1:
+        # the packed prior table's rows (rvkep.priors.PriorTable, PACKED_DENSITY)
+        if kd == _UNIFORM:
             if not (v >= pa[j] and v <= pb[j]):
                 ok = False
             lp += pc[j]
-        elif kd == 2:
+        elif kd == _LOGUNIFORM:
             if not (v >= pa[j] and v <= pb[j]):
                 ok = False
             lp += pc[j] - math.log(v if v > 0.0 else 1.0)
             dV[j] = -1.0 / v if v > 0.0 else 0.0
-        elif kd == 3:
+        elif kd == _NORMAL:
             z = (v - pa[j]) / pb[j]
             lp += pc[j] - 0.5 * z * z
             dV[j] = -z / pb[j]
@@ -360,7 +364,8 @@ def white_noise_logpost(theta, cols, fill, circular, steep, steep_k, jit_cols, j
     eccentricity coordinates and K, or -1 for the value in ``fill``; ``circular``,
     ``steep``, ``steep_k`` (n_comp,) as the model's flags; ``jit_cols``/``jit_fill``
     alike per instrument. The prior of value j of [P | tc | e | K | jitter] has
-    ``kind[j]`` (0 none, 1 uniform on [pa, pb], 2 log-uniform on [pa, pb], 3 normal with
+    ``kind[j]`` (the packed prior table's rows, :class:`rvkep.priors.PriorTable`: a
+    :class:`rvkep.priors.PriorCode`, uniform or log-uniform on [pa, pb], normal with
     mean pa and sd pb) and log normalization ``pc[j]``; ``period_jac`` marks the
     sampled periods (Jacobian P). Invalid sets give -inf.
     """

@@ -101,8 +101,8 @@ def _run_periodogram(args: argparse.Namespace) -> int:
     data = _load(args)
     from rvkep.data import check_size
     from rvkep.outputs import save_figure
+    from rvkep.period_search import search
     from rvkep.plots import plot_periodograms
-    from rvkep.search import search
 
     check_size(data)
     try:

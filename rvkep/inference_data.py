@@ -25,7 +25,7 @@ __all__ = ["to_inference_data", "pointwise_log_likelihood"]
 def pointwise_log_likelihood(results) -> np.ndarray:
     """(n_samples, n_points): log N(v_i; model_i + offset, err_i^2 + jitter^2) per
     posterior sample, the model being the companions and the trend of that sample."""
-    from rvkep.predict import predict
+    from rvkep.prediction import predict
 
     data = results.data
     cols = results.posterior.columns

@@ -15,7 +15,7 @@ Baluev level of the false-alarm threshold (0.1% by default) over the search's ow
 frequency grid; the companion counts as recovered when that peak lies within 1% of
 the injected period or, when it does not but the injected period is one of the periods
 the search would put to the joint fit (the peak's alias and harmonic families,
-:func:`rvkep.search.candidate_periods`), when the joint fit's linear start grid fits
+:func:`rvkep.period_search.candidate_periods`), when the joint fit's linear start grid fits
 the injected period best (the screen that orders the joint fits). The ``auto``
 search's Keplerian check can only add detections, so these curves are conservative
 for it.
@@ -130,8 +130,8 @@ def _screen_prefers(setup, y, peak_power, freq, P_true) -> bool:
     fit it best?"""
     from rvkep.data import RVData
     from rvkep.optimize import grid_starts
+    from rvkep.period_search import candidate_periods
     from rvkep.periodogram import Periodogram
-    from rvkep.search import candidate_periods
 
     t0 = setup.time - np.round(np.mean(setup.time))
     pg = Periodogram(freq, peak_power, t0, y, setup.dy)
@@ -314,9 +314,9 @@ def setup_from_results(results, *, n_injections: int = 20, periods: tuple | None
     1.2 d to the baseline), masses from ``masses`` (min, max Earth masses; default from
     a third to five times the 50% semi-amplitude of white noise at the period range's
     ends)."""
+    from rvkep.period_search import residual_velocities
     from rvkep.periodogram import frequency_grid, periodogram
     from rvkep.physics import minimum_mass
-    from rvkep.search import residual_velocities
 
     if results.noise_kind != "white":
         raise OptionError(f"limits: injection-recovery runs on white-noise runs only; this run "

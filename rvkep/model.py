@@ -80,19 +80,26 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from rvkep import defaults
+from rvkep import model_dump, prior_layout
+from rvkep.components import (
+    DYNAMICS,
+    LABELS,
+    MIN_INCLINATION,
+    YEAR,
+    Companion,
+    Elements,
+    Instrument,
+    _stretch,
+    decorrelation_columns,
+    default_companion,
+    default_instrument,
+    dynamics_parameters,
+)
 from rvkep.data import RVData
 from rvkep.defaults import DEFAULT_MAX_ECC
-from rvkep.kepler import rv_rows
 from rvkep.orbit import conjunction_mean_anomaly
 from rvkep.physics import StarProperties
-from rvkep.priors import Fixed, Prior, Uniform
-
-#: how the star's velocity follows from the companions' elements: a sum of Keplerians,
-#: or an N-body integration (rvkep.nbody)
-DYNAMICS = ("keplerian", "nbody", "nbody-inclined")
-#: the least inclination of the N-body default prior (degrees)
-MIN_INCLINATION = 10.0
+from rvkep.velocity import keplerian_velocity, orbit_velocity
 
 __all__ = [
     "Companion",
@@ -100,100 +107,16 @@ __all__ = [
     "SystemModel",
     "LABELS",
     "DEFAULT_MAX_ECC",
+    "DYNAMICS",
+    "MIN_INCLINATION",
+    "YEAR",
     "default_companion",
     "default_instrument",
+    "dynamics_parameters",
     "keplerian_velocity",
     "orbit_velocity",
     "Elements",
 ]
-
-LABELS = "bcdefghijklmnopqrstuvwxyz"
-YEAR = 365.25
-
-
-@dataclass(frozen=True)
-class Companion:
-    """One Keplerian companion: priors on P, tc, e, K and start values.
-
-    ``start`` holds any of ``period``, ``tc`` (data time system), ``ecc``, ``omega``
-    (radians) and ``K``; missing ones are filled by the best-fit search.
-    """
-
-    label: str
-    period: Prior
-    tc: Prior
-    K: Prior
-    ecc: Prior = field(default_factory=lambda: Uniform(0.0, DEFAULT_MAX_ECC))
-    start: dict = field(default_factory=dict)
-    steep: bool = False  # sampled in the steep-orbit coordinates (module text)
-
-    @property
-    def circular(self) -> bool:
-        return isinstance(self.ecc, Fixed)
-
-    def __post_init__(self) -> None:
-        if isinstance(self.ecc, Fixed) and self.ecc.value != 0.0:
-            raise ValueError(
-                f"companion {self.label}: eccentricity can only be fixed at 0 (circular)"
-            )
-        if self.steep and self.circular:
-            raise ValueError(f"companion {self.label}: a circular orbit has no steep coordinates")
-        object.__setattr__(self, "start", dict(self.start))  # our own copy
-
-    def canonical(self) -> dict:
-        """Everything that shapes the posterior and its sampled coordinates, as plain
-        JSON-able values."""
-        return {
-            "label": self.label,
-            **{k: getattr(self, k).to_dict() for k in ("period", "tc", "K", "ecc")},
-            **({"coordinates": "steep"} if self.steep else {}),
-        }
-
-
-@dataclass(frozen=True)
-class Elements:
-    """One companion's orbital elements for many parameter sets (arrays of one shape):
-    ``period`` (d), ``tc`` and ``tp`` (conjunction and periastron, in the data's time
-    system), ``ecc``, ``omega`` (the star's argument of periastron, radians) and ``K``
-    (m/s). The one typed record of a companion's elements; :meth:`columns` turns it
-    into named columns at the edges (tables, samples, fits)."""
-
-    label: str
-    period: np.ndarray
-    tc: np.ndarray
-    tp: np.ndarray
-    ecc: np.ndarray
-    omega: np.ndarray
-    K: np.ndarray
-
-    def columns(self, omega_unit: str = "rad") -> dict[str, np.ndarray]:
-        """``<label>.period``, ``.tc``, ``.tp``, ``.ecc``, ``.K`` and ``.omega`` (radians)
-        or, with ``omega_unit="deg"``, ``.omega_deg``."""
-        L = self.label
-        omega = ({f"{L}.omega": self.omega} if omega_unit == "rad"
-                 else {f"{L}.omega_deg": np.degrees(self.omega)})  # fmt: skip
-        return {f"{L}.period": self.period, f"{L}.tc": self.tc, f"{L}.tp": self.tp,
-                f"{L}.ecc": self.ecc, **omega, f"{L}.K": self.K}  # fmt: skip
-
-    @classmethod
-    def from_columns(cls, label: str, columns) -> Elements:
-        """From named columns (``.omega`` in radians or ``.omega_deg``)."""
-        c = {k.removeprefix(f"{label}."): np.asarray(v, float) for k, v in columns.items()
-             if k.startswith(f"{label}.")}  # fmt: skip
-        omega = c["omega"] if "omega" in c else np.radians(c["omega_deg"])
-        return cls(label, c["period"], c["tc"], c["tp"], c["ecc"], omega, c["K"])
-
-
-@dataclass(frozen=True)
-class Instrument:
-    """One instrument: its name and the prior on its jitter (m/s)."""
-
-    name: str
-    jitter: Prior
-    start_jitter: float = 1.0
-
-    def canonical(self) -> dict:
-        return {"name": self.name, "jitter": self.jitter.to_dict()}
 
 
 @dataclass
@@ -286,6 +209,13 @@ class SystemModel:
     # -- layout ---------------------------------------------------------------
 
     def _build(self) -> None:
+        self._build_design()
+        self._build_slots()
+        self._build_gathers()
+
+    def _build_design(self) -> None:
+        """The data as the likelihood sees them: times, shifted velocities, variances
+        and the design matrix of the linear parameters."""
         d = self.data
         self.t = d.t_rel.copy()
         self.inst_index = d.instrument_index
@@ -298,9 +228,12 @@ class SystemModel:
         self.err2 = d.err**2
         cols = [(self.inst_index == k).astype(float) for k in range(n_inst)]
         cols += [(self.t / YEAR) ** p for p in range(1, self.trend + 1)]
-        self._decorr = self._decorrelation_columns()
+        self._decorr = decorrelation_columns(d, self.instruments, self.decorrelate)
         cols += [c for _, _, c in self._decorr]
         self.design = np.column_stack(cols)
+
+    def _build_slots(self) -> None:
+        """The sampled vector's names and slots (kind, owner index, field)."""
         names: list[str] = []
         slots: list[tuple[str, int, str]] = []  # (kind, owner index, field)
         for ci, c in enumerate(self.companions):
@@ -329,6 +262,11 @@ class SystemModel:
         self.names = names
         self._slots = slots
         self._index = {(kind, i, f): j for j, (kind, i, f) in enumerate(slots)}
+
+    def _build_gathers(self) -> None:
+        """Gather tables from the sampled vector to the kernels' matrices, and the
+        caches the priors fill on first use."""
+        slots = self._slots
         # gather tables for orbit_arrays: fill values of fixed fields, and for each
         # field the theta columns and the companion columns they go to
         nc = len(self.companions)
@@ -385,37 +323,6 @@ class SystemModel:
     def _owned_parameter(self, kind: str, i: int):
         return (self.noise_parameters if kind == "noise" else self.dynamics_parameters)[i]
 
-    def _decorrelation_columns(self) -> list[tuple[str, str, np.ndarray]]:
-        """(indicator, instrument, design column) for each decorrelation coefficient:
-        the indicator minus its median over the instrument's points, zero elsewhere."""
-        d = self.data
-        out = []
-        for name in self.decorrelate:
-            if name not in d.extra:
-                have = ", ".join(d.extra) or "none"
-                raise ValueError(f"cannot decorrelate against {name!r}: no such column in "
-                                 f"the data (extra columns: {have})")  # fmt: skip
-            x = d.extra[name]
-            for k, inst in enumerate(self.instruments):
-                m = self.inst_index == k
-                finite = np.isfinite(x[m])
-                if not finite.any():
-                    continue  # this instrument does not measure it
-                if not finite.all():
-                    lack = int((~finite).sum())
-                    raise ValueError(f"cannot decorrelate against {name!r}: {lack} of "
-                                     f"{int(m.sum())} points of {inst.name} lack it")  # fmt: skip
-                if np.ptp(x[m]) == 0:
-                    raise ValueError(f"cannot decorrelate against {name!r}: it is constant over "
-                                     f"the points of {inst.name}")  # fmt: skip
-                col = np.zeros(self.t.size)
-                col[m] = x[m] - np.median(x[m])
-                out.append((name, inst.name, col))
-        if self.decorrelate and not out:
-            raise ValueError(f"cannot decorrelate against {', '.join(self.decorrelate)}: no "
-                             "instrument measures it")  # fmt: skip
-        return out
-
     def _owned(self, kind: str) -> tuple[np.ndarray, np.ndarray]:
         """(theta columns, owner indices) of the slots of one kind."""
         slots = self._slots
@@ -456,94 +363,24 @@ class SystemModel:
     def labels(self) -> list[str]:
         return [c.label for c in self.companions]
 
+
     def canonical(self) -> dict:
         """A canonical description of everything that shapes the posterior: every
         companion's priors (fixed values included), every instrument's jitter prior,
         the trend degree, the noise model and a digest of the data. Equal dumps mean
-        the same posterior; checkpoints are keyed on it."""
-        import hashlib
-
-        h = hashlib.sha256()
-        d = self.data
-        for arr in (d.time, d.rv, d.err):
-            h.update(np.ascontiguousarray(arr, dtype=float).tobytes())
-        h.update("\x1f".join(map(str, d.instrument)).encode())
-        h.update(repr(float(d.epoch)).encode())
-        return {
-            "companions": [c.canonical() for c in self.companions],
-            "instruments": [i.canonical() for i in self.instruments],
-            "trend": self.trend,
-            "noise": self.noise,
-            **({"decorrelate": list(self.decorrelate)} if self.decorrelate else {}),
-            **(
-                {"noise_parameters": [p.canonical() for p in self.noise_parameters]}
-                if self.noise_parameters
-                else {}
-            ),
-            **(
-                {"dynamics": self.dynamics,
-                 "dynamics_parameters": [p.canonical() for p in self.dynamics_parameters]}
-                if self.dynamics != "keplerian"
-                else {}
-            ),  # fmt: skip
-            "linear": "marginalized, flat",
-            "data_sha256": h.hexdigest(),
-        }
+        the same posterior; checkpoints are keyed on it (:func:`rvkep.model_dump.canonical`)."""
+        return model_dump.canonical(self)
 
     def to_dict(self) -> dict:
         """Everything but the data and the star, as plain JSON-able values (priors,
         start values, trend, noise model, decorrelation): :meth:`from_dict` rebuilds
         the same model on the same data."""
-
-        def start(values: dict) -> dict:
-            return {k: float(v) for k, v in values.items()}
-
-        return {
-            "companions": [{**c.canonical(), "start": start(c.start)} for c in self.companions],
-            "instruments": [
-                {**i.canonical(), "start_jitter": float(i.start_jitter)} for i in self.instruments
-            ],  # fmt: skip
-            "trend": self.trend,
-            "noise": self.noise,
-            "noise_parameters": [
-                {**p.canonical(), "start": float(p.start)} for p in self.noise_parameters
-            ],  # fmt: skip
-            "decorrelate": list(self.decorrelate),
-            "dynamics": self.dynamics,
-            "dynamics_parameters": [
-                {**p.canonical(), "start": float(p.start)} for p in self.dynamics_parameters
-            ],  # fmt: skip
-        }
+        return model_dump.to_dict(self)
 
     @classmethod
     def from_dict(cls, d: dict, data: RVData, star: StarProperties | None = None) -> SystemModel:
         """The model :meth:`to_dict` described, bound to ``data``."""
-        from rvkep.noise import get_noise_model
-        from rvkep.priors import prior_from_dict
-
-        def prior(spec: dict, where: str) -> Prior:  # JSON keeps infinite bounds as such
-            finite = {k: v for k, v in spec.items()
-                      if not (isinstance(v, float) and not math.isfinite(v))}  # fmt: skip
-            return prior_from_dict(finite, where)
-
-        comps = [Companion(c["label"], *(prior(c[k], f"{c['label']}.{k}")
-                                         for k in ("period", "tc", "K", "ecc")),
-                           start=dict(c["start"]), steep=c.get("coordinates") == "steep")
-                 for c in d["companions"]]  # fmt: skip
-        insts = [Instrument(i["name"], prior(i["jitter"], f"jitter.{i['name']}"),
-                            float(i["start_jitter"])) for i in d["instruments"]]  # fmt: skip
-        own = {p.name: p for p in get_noise_model(d["noise"]).parameters(data)}
-        noise = [replace(own[p["name"]], prior=prior(p["prior"], f"noise.{p['name']}"),
-                         start=float(p["start"])) for p in d["noise_parameters"]]  # fmt: skip
-        kind = d.get("dynamics", "keplerian")
-        mine = {p.name: p for p in dynamics_parameters(kind)}
-        dyn = [replace(mine[p["name"]], prior=prior(p["prior"], f"dynamics.{p['name']}"),
-                       start=float(p["start"]))
-               for p in d.get("dynamics_parameters", [])]  # fmt: skip
-        return cls(data, comps, insts, int(d["trend"]), star, noise=d["noise"],
-                   noise_parameters=noise, decorrelate=tuple(d["decorrelate"]),
-                   dynamics=kind,
-                   dynamics_parameters=dyn if kind != "keplerian" else None)  # fmt: skip
+        return model_dump.from_dict(cls, d, data, star)
 
     # -- coordinates <-> physical ---------------------------------------------
 
@@ -662,45 +499,6 @@ class SystemModel:
                 theta[:, j] = K * np.sqrt(1.0 - e * e) if c.steep else K
         return theta
 
-    def prior_transform(self, u: np.ndarray) -> np.ndarray:
-        """Sampled coordinates from points of the unit cube, through each prior's
-        inverse CDF (``ppf``): the map nested samplers draw the prior with.
-
-        ``u`` has shape (n_sets, ndim) or (ndim,). Period: P = ppf(u), coordinate ln P;
-        tc: ppf(u) minus the epoch; the pair (sqrt(e) cos omega, sqrt(e) sin omega) from
-        two cube coordinates, e = ppf of the eccentricity prior and omega = 2 pi u
-        (uniform, as in :meth:`log_prior`); K, jitter and the noise model's own
-        parameters: ppf(u). Uniform points give
-        draws of the prior that :meth:`log_prior` states.
-        """
-        u = np.asarray(u, dtype=float)
-        single = u.ndim == 1
-        u = np.atleast_2d(u)
-        if u.shape[1] != self.ndim:
-            raise ValueError(f"need {self.ndim} unit-cube coordinates, got {u.shape[1]}")
-        theta = np.empty_like(u)
-        for j, (kind, i, f) in enumerate(self._slots):
-            if kind == "instrument":
-                theta[:, j] = self.instruments[i].jitter.ppf(u[:, j])
-                continue
-            if kind in ("noise", "dynamics"):
-                theta[:, j] = self._owned_parameter(kind, i).prior.ppf(u[:, j])
-                continue
-            c = self.companions[i]
-            if f == "ln_period":
-                theta[:, j] = np.log(c.period.ppf(u[:, j]))
-            elif f == "tc":
-                theta[:, j] = c.tc.ppf(u[:, j]) - self.data.epoch
-            elif f == "h":  # the k slot follows it (see _build)
-                e = np.asarray(c.ecc.ppf(u[:, j]), float)
-                w = 2.0 * np.pi * u[:, j + 1]
-                radius = _stretch(e) if c.steep else np.sqrt(e)
-                theta[:, j] = radius * np.cos(w)
-                theta[:, j + 1] = radius * np.sin(w)
-            elif f == "K":  # after h and k: a steep companion's e is known
-                K = c.K.ppf(u[:, j])
-                theta[:, j] = K * np.sqrt(1.0 - e * e) if c.steep and not c.circular else K
-        return theta[0] if single else theta
 
     def start_physical(self) -> dict[str, float]:
         """Physical start values from each companion's ``start`` and the jitter starts."""
@@ -732,181 +530,33 @@ class SystemModel:
         """The start vector (ndim,)."""
         return self.from_physical(self.start_physical())[0]
 
-    # -- priors ---------------------------------------------------------------
+    # -- priors (rvkep.prior_layout) -------------------------------------------
 
-    def _prior_plan(self):
-        """Group the priors by kind so each kind is evaluated in one numpy pass.
-
-        Values are the columns of V = [period | tc (data time) | ecc | K | jitter |
-        noise] (companions, instruments, the noise model's parameters); returns
-        (kinds, jacobian columns) where kinds maps a kind to its column indices and
-        parameters.
-        """
-        nc = len(self.companions)
-        entries = []  # (column in V, prior)
-        for ci, c in enumerate(self.companions):
-            if not c.period.is_fixed:
-                entries.append((ci, c.period))
-            if not c.tc.is_fixed:
-                entries.append((nc + ci, c.tc))
-            if not c.circular:
-                entries.append((2 * nc + ci, c.ecc))
-            if not c.K.is_fixed:
-                entries.append((3 * nc + ci, c.K))
-        for ii, inst in enumerate(self.instruments):
-            if not inst.jitter.is_fixed:
-                entries.append((4 * nc + ii, inst.jitter))
-        ni = len(self.instruments)
-        for pi, par in enumerate(self.noise_parameters + self.dynamics_parameters):
-            if not par.prior.is_fixed:
-                entries.append((4 * nc + ni + pi, par.prior))
-        groups: dict[str, list] = {"uniform": [], "loguniform": [], "normal": [], "other": []}
-        for col, prior in entries:
-            kind = prior.kind if prior.kind in groups else "other"
-            groups[kind].append((col, prior))
-        plan = {}
-        if groups["uniform"]:
-            cols, pr = zip(*groups["uniform"], strict=True)
-            lo = np.array([p.low for p in pr])
-            hi = np.array([p.high for p in pr])
-            plan["uniform"] = (np.array(cols), lo, hi, float(-np.sum(np.log(hi - lo))))
-        if groups["loguniform"]:
-            cols, pr = zip(*groups["loguniform"], strict=True)
-            lo = np.array([p.low for p in pr])
-            hi = np.array([p.high for p in pr])
-            plan["loguniform"] = (np.array(cols), lo, hi, float(-np.sum(np.log(np.log(hi / lo)))))
-        if groups["normal"]:
-            cols, pr = zip(*groups["normal"], strict=True)
-            mu = np.array([p.mean for p in pr])
-            sd = np.array([p.sd for p in pr])
-            plan["normal"] = (
-                np.array(cols),
-                mu,
-                sd,
-                float(-np.sum(np.log(sd)) - len(pr) * 0.5 * math.log(2 * math.pi)),
-            )
-        plan["other"] = groups["other"]
-        jac = np.array(
-            [ci for ci, c in enumerate(self.companions) if not c.period.is_fixed], dtype=np.intp
-        )
-        return plan, jac
+    def prior_transform(self, u: np.ndarray) -> np.ndarray:
+        """Sampled coordinates from points of the unit cube, through each prior's
+        inverse CDF: the map nested samplers draw the prior with
+        (:func:`rvkep.prior_layout.prior_transform`)."""
+        return prior_layout.prior_transform(self, u)
 
     def log_prior(self, theta: np.ndarray, arrays: dict | None = None) -> np.ndarray:
-        """Log prior density in the sampled coordinates, (n_sets,); -inf when invalid.
-
-        Includes the Jacobian of ln P; the sqrt(e) coordinates have a constant
-        Jacobian (dropped); a steep companion's coordinates add ln(1 - e) (the
-        stretched pair) and -ln sqrt(1 - e^2) (K sqrt(1 - e^2)). Rows with e >= 1,
-        K < 0, a negative jitter or a noise parameter outside its domain are invalid
-        whatever the priors say. ``arrays`` (from :meth:`orbit_arrays`) saves
-        recomputing them.
-        """
-        arr = self.orbit_arrays(theta) if arrays is None else arrays
-        if self._plan is None:
-            self._plan = self._prior_plan()
-        plan, jac = self._plan
-        V = np.concatenate(
-            [
-                arr["period"],
-                arr["tc_rel"] + self.data.epoch,
-                arr["ecc"],
-                arr["K"],
-                arr["jitter"],
-                arr["noise"],
-                arr["dynamics"],
-            ],
-            axis=1,
-        )
-        n = V.shape[0]
-        ok = (
-            (arr["ecc"] < 1.0).all(axis=1)
-            & (arr["K"] >= 0).all(axis=1)
-            & (arr["jitter"] >= 0).all(axis=1)
-            & (
-                (arr["noise"] >= self._noise_domain[0]) & (arr["noise"] <= self._noise_domain[1])
-            ).all(axis=1)
-            & ((arr["dynamics"] >= self._dyn_domain[0])
-               & (arr["dynamics"] <= self._dyn_domain[1])).all(axis=1)
-        )
-        lp = np.zeros(n)
-        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-            if "uniform" in plan:
-                cols, lo, hi, const = plan["uniform"]
-                x = V[:, cols]
-                ok &= ((x >= lo) & (x <= hi)).all(axis=1)
-                lp += const
-            if "loguniform" in plan:
-                cols, lo, hi, const = plan["loguniform"]
-                x = V[:, cols]
-                ok &= ((x >= lo) & (x <= hi)).all(axis=1)
-                lp += const - np.log(np.where(x > 0, x, 1.0)).sum(axis=1)
-            if "normal" in plan:
-                cols, mu, sd, const = plan["normal"]
-                z = (V[:, cols] - mu) / sd
-                lp += const - 0.5 * (z * z).sum(axis=1)
-            for col, prior in plan["other"]:
-                lp += prior.logpdf(V[:, col])
-            if jac.size:
-                lp += np.log(np.where(ok[:, None], arr["period"][:, jac], 1.0)).sum(axis=1)
-            if self._steep.any():
-                lp += self.coordinate_log_jacobian(np.where(ok[:, None], arr["ecc"], 0.0))
-        lp[~ok | ~np.isfinite(lp)] = -np.inf
-        return lp
+        """Log prior density in the sampled coordinates, (n_sets,); -inf when invalid
+        (:func:`rvkep.prior_layout.log_prior`: Jacobians included)."""
+        return prior_layout.log_prior(self, theta, arrays)
 
     def compiled_plan(self) -> tuple | None:
-        """The coordinate and prior tables of the compiled log posterior
-        (:func:`rvkep._kepler_numba.white_noise_logpost`, arguments ``cols`` to
-        ``epoch``), or None when the model needs the general path: a prior other than
-        uniform, log-uniform or normal, or a noise model's own parameters."""
-        if self._compiled is not None:
-            return self._compiled or None
-        nc, ni = len(self.companions), len(self.instruments)
-        plan, jac = self._plan if self._plan is not None else self._prior_plan()
-        self._plan = (plan, jac)
-        if plan["other"] or self.noise_parameters or self.dynamics != "keplerian":
-            self._compiled = ()
-            return None
-        fields = ("ln_period", "tc_rel", "h", "k", "K")
-        cols = np.full((5, nc), -1, dtype=np.int64)
-        fill = np.zeros((5, nc))
-        for f, name in enumerate(fields):
-            fill[f] = np.nan_to_num(self._fill[name])
-            j, ci = self._gather[name]
-            cols[f, ci] = j
-        jit_cols = np.full(ni, -1, dtype=np.int64)
-        jit_cols[self._jit_gather[1]] = self._jit_gather[0]
-        nv = 4 * nc + ni
-        kind = np.zeros(nv, dtype=np.int64)
-        pa, pb, pc = np.zeros(nv), np.ones(nv), np.zeros(nv)
-        if "uniform" in plan:
-            cc, lo, hi, _ = plan["uniform"]
-            kind[cc], pa[cc], pb[cc], pc[cc] = 1, lo, hi, -np.log(hi - lo)
-        if "loguniform" in plan:
-            cc, lo, hi, _ = plan["loguniform"]
-            kind[cc], pa[cc], pb[cc], pc[cc] = 2, lo, hi, -np.log(np.log(hi / lo))
-        if "normal" in plan:
-            cc, mu, sd, _ = plan["normal"]
-            kind[cc], pa[cc], pb[cc] = 3, mu, sd
-            pc[cc] = -np.log(sd) - 0.5 * math.log(2 * math.pi)
-        period_jac = np.zeros(nc, dtype=bool)
-        period_jac[jac] = True
-        self._compiled = (cols, fill, self._circular, self._steep, self._steep_K, jit_cols,
-                          np.nan_to_num(self._jit_fill), kind, pa, pb, pc, period_jac,
-                          float(self.data.epoch))  # fmt: skip
-        return self._compiled
+        """The compiled log posterior's coordinate and prior tables, or None when the
+        model needs the general path (:func:`rvkep.prior_layout.compiled_plan`)."""
+        return prior_layout.compiled_plan(self)
+
+    def coordinate_bounds(self) -> list[tuple[float | None, float | None]]:
+        """(low, high) of each sampled coordinate, None where open
+        (:func:`rvkep.prior_layout.coordinate_bounds`)."""
+        return prior_layout.coordinate_bounds(self)
 
     def coordinate_log_jacobian(self, ecc: np.ndarray) -> np.ndarray:
-        """What the steep companions' coordinates add to the log prior, (n_sets,),
-        from the eccentricities ``ecc`` (n_sets, n_companions): ln(1 - e) for the
-        stretched pair (det d(h, k)/d(a, b) = 1 - e exactly) and -ln sqrt(1 - e^2) for
-        K sqrt(1 - e^2) (dK/d(K sqrt(1 - e^2)) at fixed e); zeros without steep
-        companions. The log posterior of the same point in another model's
-        coordinates differs by the difference of the two models' values."""
-        ecc = np.atleast_2d(np.asarray(ecc, float))
-        with np.errstate(invalid="ignore", divide="ignore"):
-            out = np.log1p(-ecc[:, self._steep]).sum(axis=1)
-            out -= 0.5 * np.log1p(-(ecc[:, self._steep_K] ** 2)).sum(axis=1)
-        return out
+        """What the steep companions' coordinates add to the log prior, (n_sets,)
+        (:func:`rvkep.prior_layout.coordinate_log_jacobian`)."""
+        return prior_layout.coordinate_log_jacobian(self, ecc)
 
     # -- building -------------------------------------------------------------
 
@@ -935,112 +585,4 @@ class SystemModel:
         return rows
 
 
-def keplerian_velocity(
-    model: SystemModel, phys: dict, rows: np.ndarray | None = None, t: np.ndarray | None = None
-) -> np.ndarray:
-    """Sum of the companions' Keplerian curves, (n_rows, n_times).
-
-    ``phys`` holds physical columns (:meth:`SystemModel.to_physical`); the curves are
-    evaluated at the data times by default, or at ``t`` (in the data's time system).
-    """
-    if rows is None:
-        rows = np.arange(next(iter(phys.values())).shape[0]) if phys else np.arange(1)
-    epoch = model.data.epoch
-    t_rel = model.t if t is None else np.asarray(t, float) - epoch
-    if not model.companions:
-        return np.zeros((rows.size, t_rel.size))
-    arr = {f: np.column_stack([np.asarray(phys[f"{c.label}.{f}"], float)[rows]
-                               for c in model.companions])
-           for f in ("period", "tp", "ecc", "omega", "K")}  # fmt: skip
-    arr["tp_rel"] = arr.pop("tp") - epoch
-    if model.dynamics != "keplerian":  # a column of phys, or the start value
-        start = model.start_physical()
-        n = arr["period"].shape[0]
-        arr["dynamics"] = np.column_stack([
-            np.asarray(phys[key], float)[rows] if key in phys else np.full(n, start[key])
-            for key in (f"dynamics.{p.name}" for p in model.dynamics_parameters)
-        ])  # fmt: skip
-    return orbit_velocity(model, arr, t_rel)
-
-
-def orbit_velocity(model: SystemModel, arr: dict, t_rel: np.ndarray | None = None) -> np.ndarray:
-    """Sum of the companions' Keplerian curves, (n_sets, n_times), from the matrices of
-    :meth:`SystemModel.orbit_arrays` (rows already chosen), at the times ``t_rel``
-    (minus the epoch; default the data's): the likelihood's path, free of any round
-    trip through absolute times."""
-    t = model.t if t_rel is None else np.asarray(t_rel, float)
-    if model.dynamics != "keplerian":
-        from rvkep.nbody import orientation, star_velocity_rows
-
-        columns = {f"dynamics.{p.name}": arr["dynamics"][:, k]
-                   for k, p in enumerate(model.dynamics_parameters)}  # fmt: skip
-        inc, node = orientation(columns, model.labels())
-        return star_velocity_rows(t, arr, model.star.mass, inc, node)
-    out = np.zeros((next(iter(arr.values())).shape[0], t.size))
-    for ci in range(len(model.companions)):
-        w = arr["omega"][:, ci]
-        out += rv_rows(t, arr["tp_rel"][:, ci], 2.0 * np.pi / arr["period"][:, ci],
-                       arr["ecc"][:, ci], np.cos(w), np.sin(w), arr["K"][:, ci])  # fmt: skip
-    return out
-
-
 _E_CAP = 1.0 - 1e-12  # e >= 1 rows are refused by the prior; keep their tp finite
-
-
-def _stretch(e: np.ndarray) -> np.ndarray:
-    """The steep coordinates' radius sqrt(-ln(1 - e)) (e = 1 - exp(-radius^2))."""
-    return np.sqrt(-np.log1p(-np.asarray(e, float)))
-
-
-def dynamics_parameters(kind: str, labels=()) -> list:
-    """The parameters a kind of dynamics adds to the sampled vector, with their default
-    priors and starts: none for ``"keplerian"``; for ``"nbody"`` ``cos_inc``, uniform
-    on [0, cos 10 deg] (orientations isotropic; common practice, no source), start 0.1
-    (nearly edge-on, where the N-body model is closest to the Keplerian one); for
-    ``"nbody-inclined"`` a ``cos_inc.<label>`` per companion (the same prior) and a
-    ``node.<label>`` (radians, uniform on [-pi, pi], start 0: coplanar) for each but
-    the first of ``labels``."""
-    from rvkep.noise.base import NoiseParameter
-
-    if kind == "keplerian":
-        return []
-    high = math.cos(math.radians(MIN_INCLINATION))
-    if kind == "nbody":
-        return [NoiseParameter("cos_inc", Uniform(0.0, high), 0.1, "",
-                               "cosine of the shared inclination", (0.0, 1.0))]  # fmt: skip
-    out = [NoiseParameter(f"cos_inc.{L}", Uniform(0.0, high), 0.1, "",
-                          f"cosine of {L}'s inclination", (0.0, 1.0)) for L in labels]  # fmt: skip
-    out += [NoiseParameter(f"node.{L}", Uniform(-math.pi, math.pi), 0.0, "rad",
-                           f"{L}'s longitude of the node from {labels[0]}'s",
-                           (-math.pi, math.pi)) for L in labels[1:]]  # fmt: skip
-    return out
-
-
-def default_instrument(data: RVData, name: str, jitter: Prior | None = None) -> Instrument:
-    """An instrument with ``jitter`` as its prior (default: :func:`defaults.jitter_prior`)
-    and a start jitter inside it."""
-    prior = jitter if jitter is not None else defaults.jitter_prior(data, name)
-    return Instrument(name, prior, start_jitter=defaults.start_jitter(data, name, prior))
-
-
-def default_companion(
-    data: RVData,
-    label: str,
-    period: float,
-    tc: float,
-    K: float,
-    ecc: float = 0.0,
-    omega: float = 0.5 * math.pi,
-    period_range: tuple[float, float] | None = None,
-    circular: bool = False,
-) -> Companion:
-    """A companion with the default priors (:mod:`rvkep.defaults`) around start values
-    (tc in data time)."""
-    return Companion(
-        label=label,
-        period=defaults.period_prior(data, period, period_range),
-        tc=defaults.tc_prior(tc, period),
-        K=defaults.K_prior(data, K),
-        ecc=defaults.ecc_prior(circular),
-        start={"period": period, "tc": tc, "K": K, "ecc": ecc, "omega": omega},
-    )

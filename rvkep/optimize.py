@@ -25,7 +25,7 @@ import numpy as np
 
 from rvkep import defaults
 from rvkep.data import RVData
-from rvkep.likelihood import LogPosterior
+from rvkep.likelihood import LogPosterior, curvature_scales
 from rvkep.model import LABELS, SystemModel, default_companion, orbit_velocity
 from rvkep.orbit import tp_to_tc
 
@@ -121,61 +121,6 @@ class FitResult:
     __str__ = summary
 
 
-def _bounds(model: SystemModel) -> list[tuple[float, float]]:
-    out = []
-    for kind, i, f in model._slots:
-        if kind == "instrument":
-            lo, hi = model.instruments[i].jitter.bounds
-            out.append((max(lo, 0.0), hi if np.isfinite(hi) else None))
-            continue
-        if kind in ("noise", "dynamics"):
-            lo, hi = model._owned_parameter(kind, i).prior.bounds
-            out.append((lo if np.isfinite(lo) else None, hi if np.isfinite(hi) else None))
-            continue
-        c = model.companions[i]
-        if f == "ln_period":
-            lo, hi = c.period.bounds
-            out.append(
-                (math.log(lo) if lo > 0 else None, math.log(hi) if np.isfinite(hi) else None)
-            )
-        elif f == "tc":
-            lo, hi = c.tc.bounds
-            ep = model.data.epoch
-            out.append((lo - ep if np.isfinite(lo) else None, hi - ep if np.isfinite(hi) else None))
-        elif f in ("h", "k") and c.steep:  # radius sqrt(-ln(1 - e)) up to the prior's e
-            e_hi = c.ecc.bounds[1]
-            r = math.sqrt(-math.log1p(-e_hi)) if e_hi < 1.0 else None
-            out.append((-r if r else None, r))
-        elif f in ("h", "k"):
-            out.append((-1.0, 1.0))
-        else:  # K, or for a steep companion K sqrt(1 - e^2), which is at most K
-            lo, hi = c.K.bounds
-            out.append((0.0 if c.steep else max(lo, 0.0), hi if np.isfinite(hi) else None))
-    return out
-
-
-def _curvature_scales(post: LogPosterior, x: np.ndarray, lo, hi) -> np.ndarray:
-    """Per-coordinate scales 1 / sqrt(d2f/dx2) from one vectorized call (the diagonal
-    of the Hessian by central differences), so the optimizer sees a well-conditioned
-    problem: a period known to 1e-5 and an offset known to 1 m/s become steps of one."""
-    ndim = x.size
-    h = 1e-5 * np.maximum(np.abs(x), 1.0)
-    pts = np.repeat(x[None, :], 2 * ndim + 1, axis=0)
-    for j in range(ndim):
-        pts[1 + 2 * j, j] = min(x[j] + h[j], hi[j])
-        pts[2 + 2 * j, j] = max(x[j] - h[j], lo[j])
-    f = -post(pts)
-    scales = np.ones(ndim)
-    for j in range(ndim):
-        hu, hd = pts[1 + 2 * j, j] - x[j], x[j] - pts[2 + 2 * j, j]
-        fu, fd = f[1 + 2 * j], f[2 + 2 * j]
-        if hu > 0 and hd > 0 and np.all(np.isfinite([fu, fd, f[0]])):
-            curv = 2.0 * (hd * fu + hu * fd - (hu + hd) * f[0]) / (hu * hd * (hu + hd))
-            if curv > 0:
-                scales[j] = 1.0 / math.sqrt(curv)
-    return np.clip(scales, 1e-9, 1e3)
-
-
 #: L-BFGS-B's relative tolerance on the objective for a final best fit (ln L to about
 #: 1e-9 on the demo star) and for the trial fits that only rank candidate starts
 #: (1e-9: ln L to about 1e-7, half the objective evaluations; the winner is then
@@ -201,7 +146,7 @@ def _minimize(
     x = theta0.copy()
     res = None
     for _ in range(2):
-        scale = _curvature_scales(post, x, lo, hi)
+        scale = curvature_scales(post, x, lo, hi)
         x0 = x.copy()
         ulo, uhi = (lo - x0) / scale, (hi - x0) / scale
         last = [np.zeros(ndim), float(-post(x0[None, :])[0])]
@@ -291,7 +236,7 @@ def fit(
     a candidate companion use :data:`SCREEN_FTOL`).
     """
     post = LogPosterior(model, linear="profile")
-    bounds = _bounds(model)
+    bounds = model.coordinate_bounds()
     starts = [model.start_theta()] if starts is None else starts
     best = None
     for theta0 in starts:

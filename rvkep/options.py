@@ -43,7 +43,7 @@ __all__ = [
 DEFAULT_MIN_PERIOD = 1.2
 #: the polynomial trend degrees rvkep fits; "auto" lets them compete by BIC
 TREND_DEGREES = (0, 1, 2)
-#: the search's periodograms (rvkep.search)
+#: the search's periodograms (rvkep.period_search)
 SEARCH_KINDS = ("auto", "sine", "keplerian")
 #: which figures a run draws
 FIGURE_SETS = ("all", "summary", "none")

@@ -98,7 +98,7 @@ def choose_companions(search_result, data, base, period_range, max_companions: i
     n_fap = len(search_result.significant)
     # one more than the search accepted, from the best remaining peaks, for the table
     if n_fap < max_companions:
-        from rvkep.search import candidate_periods
+        from rvkep.period_search import candidate_periods
 
         pg = search_result.periodograms[n_fap]
         peaks = candidate_periods(pg, data.time, period_range)
@@ -127,7 +127,7 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
     """
     from rvkep.choice import long_period_stage
     from rvkep.optimize import fit_companions
-    from rvkep.search import search
+    from rvkep.period_search import search
 
     try:
         search_result = search(
@@ -149,7 +149,7 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
                 f"model file: {len(spec.companions)} companion(s)", fits, [])  # fmt: skip
     if opts.companions is not None:
         fits = list(search_result.fits)
-        from rvkep.search import candidate_periods, residual_periodogram
+        from rvkep.period_search import candidate_periods, residual_periodogram
 
         while len(fits) <= opts.companions:  # the search stopped early: add the best peaks
             pg = residual_periodogram(fits[-1], search_result.frequency, "residuals")

@@ -35,7 +35,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from rvkep.predict import predict
+from rvkep.prediction import predict
 from rvkep.sky import SkyGrid
 
 __all__ = ["Plan", "Choice", "choose_epochs", "default_aim", "plan_epochs", "MAX_DRAWS"]
@@ -222,7 +222,7 @@ def plan_epochs(
     Parameters
     ----------
     columns : mapping of str to array
-        Posterior samples (as for :func:`rvkep.predict.predict`), with
+        Posterior samples (as for :func:`rvkep.prediction.predict`), with
         ``offset.<instrument>``.
     labels : list of str
         The companions.

@@ -91,7 +91,7 @@ def plot_periodograms(result, fig=None, activity: bool = True):
 
     Parameters
     ----------
-    result : rvkep.search.SearchResult
+    result : rvkep.period_search.SearchResult
     fig : matplotlib Figure, optional
         Drawn into instead of a new one.
     activity : bool

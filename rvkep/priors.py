@@ -10,6 +10,13 @@ Every prior has
 * ``bounds``: (low, high) of the support;
 * ``describe()``: a short readable statement, and ``to_dict()`` for the model file.
 
+Uniform, log-uniform and normal priors also have ``packed``: their kind
+(:class:`PriorCode`) and three numbers (a, b, c). A model's priors over its whole
+parameter vector form one :class:`PriorTable` of such rows, which the numpy log prior
+(:meth:`PriorTable.logpdf`) and the compiled log posterior
+(:mod:`rvkep._kepler_numba`) read alike. Each of these densities is written once, in
+:data:`PACKED_DENSITY`; the priors' own ``logpdf`` use the same functions.
+
 :class:`Fixed` is the degenerate case: the parameter leaves the sampled vector.
 
 References
@@ -20,11 +27,14 @@ References
 
 from __future__ import annotations
 
+import enum
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 from scipy import special
+
+from rvkep import _constants
 
 __all__ = [
     "Prior",
@@ -37,9 +47,54 @@ __all__ = [
     "KIPPING_ECC",
     "prior_from_dict",
     "PRIOR_KINDS",
+    "PriorCode",
+    "PriorTable",
+    "PACKED_DENSITY",
 ]
 
 _LOG_SQRT_2PI = 0.5 * math.log(2.0 * math.pi)
+
+
+class PriorCode(enum.IntEnum):
+    """The kind of a row of the packed prior table (values from :mod:`rvkep._constants`,
+    which the compiled kernels read)."""
+
+    GENERAL = _constants.PRIOR_GENERAL
+    UNIFORM = _constants.PRIOR_UNIFORM
+    LOGUNIFORM = _constants.PRIOR_LOGUNIFORM
+    NORMAL = _constants.PRIOR_NORMAL
+
+
+def _uniform_density(x, a, b, c):
+    return np.broadcast_to(c, np.shape(x)), (x >= a) & (x <= b)
+
+
+def _loguniform_density(x, a, b, c):
+    return c - np.log(np.where(x > 0, x, 1.0)), (x >= a) & (x <= b)
+
+
+def _normal_density(x, a, b, c):
+    z = (x - a) / b
+    out = c - 0.5 * z * z
+    return out, ~np.isnan(out)  # NaN is never a valid value
+
+
+#: the packed kinds' log densities: ``f(x, a, b, c) -> (log density, inside)``,
+#: broadcasting x (..., m) against rows a, b, c (m,); the compiled kernel
+#: ``_kepler_numba._row_elements`` is their loop twin
+PACKED_DENSITY = {
+    PriorCode.UNIFORM: _uniform_density,
+    PriorCode.LOGUNIFORM: _loguniform_density,
+    PriorCode.NORMAL: _normal_density,
+}
+
+
+def _packed_logpdf(prior, x):
+    code, a, b, c = prior.packed
+    x = np.asarray(x, float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        value, inside = PACKED_DENSITY[code](x, a, b, c)
+    return np.where(inside, value, -np.inf)
 
 
 class Prior:
@@ -71,6 +126,9 @@ class Prior:
     def is_fixed(self) -> bool:
         return False
 
+    #: (kind, a, b, c) for the packed table; None: evaluated by ``logpdf`` itself
+    packed: tuple | None = None
+
     def __repr__(self) -> str:
         return self.describe()
 
@@ -96,9 +154,12 @@ class Uniform(Prior):
     def bounds(self):
         return (self.low, self.high)
 
+    @property
+    def packed(self) -> tuple[PriorCode, float, float, float]:
+        return PriorCode.UNIFORM, self.low, self.high, -math.log(self.high - self.low)
+
     def logpdf(self, x):
-        x, ok = _inside(x, self.low, self.high)
-        return np.where(ok, -math.log(self.high - self.low), -np.inf)
+        return _packed_logpdf(self, x)
 
     def ppf(self, u):
         return self.low + np.asarray(u, float) * (self.high - self.low)
@@ -128,10 +189,13 @@ class LogUniform(Prior):
     def bounds(self):
         return (self.low, self.high)
 
+    @property
+    def packed(self) -> tuple[PriorCode, float, float, float]:
+        c = -math.log(math.log(self.high / self.low))
+        return PriorCode.LOGUNIFORM, self.low, self.high, c
+
     def logpdf(self, x):
-        x, ok = _inside(x, self.low, self.high)
-        norm = math.log(math.log(self.high / self.low))
-        return np.where(ok, -np.log(np.where(ok, x, 1.0)) - norm, -np.inf)
+        return _packed_logpdf(self, x)
 
     def ppf(self, u):
         return self.low * (self.high / self.low) ** np.asarray(u, float)
@@ -159,10 +223,12 @@ class Normal(Prior):
     def bounds(self):
         return (-np.inf, np.inf)
 
+    @property
+    def packed(self) -> tuple[PriorCode, float, float, float]:
+        return PriorCode.NORMAL, self.mean, self.sd, -math.log(self.sd) - _LOG_SQRT_2PI
+
     def logpdf(self, x):
-        z = (np.asarray(x, float) - self.mean) / self.sd
-        out = -0.5 * z * z - math.log(self.sd) - _LOG_SQRT_2PI
-        return np.where(np.isnan(out), -np.inf, out)  # NaN is never a valid value
+        return _packed_logpdf(self, x)
 
     def ppf(self, u):
         return self.mean + self.sd * special.ndtri(np.asarray(u, float))
@@ -350,3 +416,55 @@ def prior_from_dict(spec: dict, where: str = "prior") -> Prior:
         return cls(**kwargs)
     except ValueError as exc:
         raise ValueError(f"{where}: {exc}") from None
+
+
+@dataclass(frozen=True)
+class PriorTable:
+    """The priors of a parameter vector, packed: row j holds column j's kind
+    (:class:`PriorCode`) and numbers (a, b, c); ``general`` the (column, prior) pairs
+    without a packed form, evaluated by their own ``logpdf``. Columns without a prior
+    (held values) are ``GENERAL`` rows outside ``general``: they add nothing.
+
+    Build it with :meth:`pack`; :meth:`logpdf` is the numpy evaluation, and the
+    compiled log posterior reads ``code``, ``a``, ``b``, ``c`` directly.
+    """
+
+    code: np.ndarray
+    a: np.ndarray
+    b: np.ndarray
+    c: np.ndarray
+    general: tuple = ()
+    _groups: dict = field(default_factory=dict, repr=False, compare=False)
+
+    @classmethod
+    def pack(cls, entries, size: int) -> PriorTable:
+        """The table of ``size`` columns from (column, prior) pairs."""
+        code = np.full(size, int(PriorCode.GENERAL), dtype=np.int64)
+        a, b, c = np.zeros(size), np.ones(size), np.zeros(size)
+        general = []
+        for col, prior in entries:
+            if prior.packed is None:
+                general.append((col, prior))
+                continue
+            code[col], a[col], b[col], c[col] = prior.packed
+        table = cls(code, a, b, c, tuple(general))
+        for kind in PACKED_DENSITY:
+            cols = np.flatnonzero(code == int(kind))
+            if cols.size:
+                table._groups[kind] = (cols, a[cols], b[cols], c[cols])
+        return table
+
+    def logpdf(self, V: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(log density, inside) of the rows of ``V`` (n_sets, size): the sum over
+        the columns, and whether every packed value lies in its support."""
+        n = V.shape[0]
+        lp = np.zeros(n)
+        inside = np.ones(n, dtype=bool)
+        with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+            for kind, (cols, a, b, c) in self._groups.items():
+                value, ok = PACKED_DENSITY[kind](V[:, cols], a, b, c)
+                lp += value.sum(axis=1)
+                inside &= ok.all(axis=1)
+            for col, prior in self.general:
+                lp += prior.logpdf(V[:, col])
+        return lp, inside

@@ -233,14 +233,14 @@ class Results:
         typical_error: float | None = None,
         rng: np.random.Generator | int | None = 0,
     ):
-        """Posterior predictive curves at times ``t`` (see :mod:`rvkep.predict`).
+        """Posterior predictive curves at times ``t`` (see :mod:`rvkep.prediction`).
 
         Each companion's curve, their sum plus the trend (``total``) and, with
         ``instrument``, what that instrument should measure (``measured``: its offset,
         its jitter and ``typical_error`` folded in; default the median error of its
-        points). Returns a :class:`rvkep.predict.Prediction`.
+        points). Returns a :class:`rvkep.prediction.Prediction`.
         """
-        from rvkep.predict import predict
+        from rvkep.prediction import predict
 
         if instrument is not None and typical_error is None:
             own = self.data.err[self.data.instrument == instrument]

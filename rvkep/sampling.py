@@ -527,13 +527,13 @@ def initial_ball(
     noise amplitude of zero, starts its walkers on the inside), redrawn until every
     walker is inside the prior.
     """
-    from rvkep.optimize import _bounds, _curvature_scales
+    from rvkep.likelihood import curvature_scales
 
-    b = _bounds(post.model)
+    b = post.model.coordinate_bounds()
     lo = np.array([x[0] if x[0] is not None else -np.inf for x in b])
     hi = np.array([x[1] if x[1] is not None else np.inf for x in b])
     if scale is None:
-        scale = _curvature_scales(post, center, lo, hi)
+        scale = curvature_scales(post, center, lo, hi)
     if not np.isfinite(post(center[None, :])[0]):
         raise RvkepError("the sampler's starting point is outside the prior")
 

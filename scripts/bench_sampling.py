@@ -16,8 +16,8 @@ import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
 from rvkep.data import load_rv  # noqa: E402
+from rvkep.period_search import search  # noqa: E402
 from rvkep.sampling import MOVES, SamplerOptions, run_sampler  # noqa: E402
-from rvkep.search import search  # noqa: E402
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_data"
 

@@ -19,6 +19,23 @@ def test_import_rvkep_is_light():
     assert out.stdout.strip() == "[]"
 
 
+def test_public_names_are_not_shadowed_by_submodules():
+    # importing every submodule first must leave rvkep.search and rvkep.predict the
+    # functions: a submodule of the same name would replace them on the package
+    import pkgutil
+
+    names = {m.name for m in pkgutil.iter_modules(rvkep.__path__)}
+    assert not names & set(rvkep.__all__), names & set(rvkep.__all__)
+    code = (
+        "import importlib, pkgutil, rvkep\n"
+        "for m in pkgutil.iter_modules(rvkep.__path__):\n"
+        "    if m.name not in ('__main__',): importlib.import_module('rvkep.' + m.name)\n"
+        "print(rvkep.search.__module__, rvkep.predict.__module__)"
+    )
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.split() == ["rvkep.period_search", "rvkep.prediction"]
+
+
 def test_steps_chain_from_the_top_level():
     from rvkep.sampling import UnconvergedWarning
 

@@ -13,6 +13,7 @@ from test_sampling import one_planet
 
 from rvkep.model import SystemModel
 from rvkep.optimize import fit_companions
+from rvkep.period_search import search
 from rvkep.physics import StarProperties
 from rvkep.plots import (
     corner_figure,
@@ -22,7 +23,6 @@ from rvkep.plots import (
 )
 from rvkep.results import Results
 from rvkep.sampling import UnconvergedWarning
-from rvkep.search import search
 from rvkep.style import RESIDUAL_LABEL, companion_colour
 
 

@@ -9,8 +9,8 @@ from rvkep.data import RVData
 from rvkep.kepler import eccentric_anomaly
 from rvkep.keplerian_periodogram import keplerian_periodogram, phase_counts
 from rvkep.orbit import radial_velocity
+from rvkep.period_search import search
 from rvkep.periodogram import periodogram
-from rvkep.search import search
 
 
 def test_circular_row_is_astropy_lomb_scargle():

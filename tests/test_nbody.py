@@ -223,7 +223,7 @@ def test_model_file_dynamics_table_is_read_and_checked(tmp_path):
 def test_predictions_of_an_nbody_run_integrate_each_draw():
     # the prediction's total is the integration of each draw (rvkep.nbody, itself
     # checked against solve_ivp above), not the Keplerian sum of the osculating orbits
-    from rvkep.predict import predict
+    from rvkep.prediction import predict
 
     epoch = 2459500.0
     cols = {"dynamics.cos_inc": np.array([0.1, 0.6]), "star.mass_msun": np.array([0.37, 0.4])}

@@ -7,8 +7,8 @@ from astropy.timeseries import LombScargle
 from rvkep.cli import main
 from rvkep.data import RVData
 from rvkep.orbit import radial_velocity
+from rvkep.period_search import search
 from rvkep.periodogram import periodogram, spectral_window
-from rvkep.search import search
 
 SIDEREAL_DAY = 0.99726957  # days (common practice, no source)
 

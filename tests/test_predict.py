@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from test_orbit import slow_rv
 
-from rvkep.predict import QUANTILES, predict
+from rvkep.prediction import QUANTILES, predict
 
 
 def posterior(n=40, seed=3):

@@ -55,3 +55,34 @@ def test_prior_from_dict_and_errors():
         priors.prior_from_dict({"prior": "uniform", "min": 2, "max": 1}, "x")
     with pytest.raises(ValueError, match="must be a number"):
         priors.prior_from_dict({"prior": "uniform", "min": "a", "max": 1}, "x")
+
+
+def test_the_packed_table_is_the_sum_of_the_priors_against_scipy():
+    # one table over a vector of five columns: three packed kinds, one general prior
+    # (beta, evaluated by its own logpdf) and a column without a prior (held)
+    entries = [(0, CASES[1][0]), (1, CASES[0][0]), (2, CASES[4][0]), (4, CASES[2][0])]
+    table = priors.PriorTable.pack(entries, 5)
+    assert list(table.code) == [priors.PriorCode.LOGUNIFORM, priors.PriorCode.UNIFORM,
+                                priors.PriorCode.GENERAL, priors.PriorCode.GENERAL,
+                                priors.PriorCode.NORMAL]  # fmt: skip
+    assert [col for col, _ in table.general] == [2]
+    rng = np.random.default_rng(3)
+    V = np.column_stack([rng.uniform(0.3, 450, 200), rng.uniform(-3, 6, 200),
+                         rng.uniform(0.01, 0.99, 200), rng.normal(size=200),
+                         rng.normal(3.0, 0.3, 200)])  # fmt: skip
+    lp, inside = table.logpdf(V)
+    refs = {0: CASES[1][1], 1: CASES[0][1], 2: CASES[4][1], 4: CASES[2][1]}
+    want = sum(refs[c].logpdf(V[:, c]) for c in refs)
+    assert np.array_equal(inside, np.isfinite(want))
+    assert inside.sum() > 100 and (~inside).sum() > 10
+    assert np.allclose(lp[inside], want[inside], rtol=1e-12, atol=1e-10)
+
+
+def test_the_compiled_kernel_reads_the_same_kind_codes():
+    # the compiled log posterior compares the table's codes with rvkep._constants,
+    # the values PriorCode is made of (one enumeration)
+    from rvkep import _constants
+
+    assert {int(k) for k in priors.PACKED_DENSITY} == {
+        _constants.PRIOR_UNIFORM, _constants.PRIOR_LOGUNIFORM, _constants.PRIOR_NORMAL}
+    assert priors.PriorCode.GENERAL == _constants.PRIOR_GENERAL
