@@ -1,16 +1,10 @@
 """The whole job on one star: read, search, choose the number of companions, fit,
 sample, derive, write tables and figures.
 
-How many companions: the iterative search proposes signals while the highest residual
-peak has a Baluev false-alarm probability below the threshold (0.1% by default); a
-proposed companion is kept only if adding it also lowers the BIC of the joint best fit
-by more than 10 ("very strong" evidence on the scale of Kass & Raftery 1995). The BIC
-of every candidate number, including one more than chosen, is reported. A model file
-with companions, or ``companions=N``, fixes the number instead.
-
-References
-----------
-.. [1] Kass, R. E. & Raftery, A. E. (1995), JASA 90, 773.
+:func:`analyze` is the sequence of public stages: :func:`read_data`,
+:func:`star_properties`, :func:`choose_model` (stage 3, in :mod:`rvkep.model_choice`:
+how many companions, the trend degree, the dynamics, the evidence),
+:func:`sample_posterior`, :func:`test_eccentricities` and :func:`write_outputs`.
 """
 
 from __future__ import annotations
@@ -19,7 +13,7 @@ import inspect
 import math
 import time
 import warnings
-from dataclasses import dataclass, field, replace
+from dataclasses import field, replace
 from pathlib import Path
 
 import numpy as np
@@ -29,8 +23,18 @@ from rvkep.data import MIN_POINTS, DataWarning, RVData, check_size, load_rv
 from rvkep.errors import OptionError, RvkepError
 from rvkep.formatting import p_relation
 from rvkep.kepler import prepare_kernels
+from rvkep.model_choice import (
+    BIC_THRESHOLD,
+    ModelChoice,
+    _run_nested,
+    _say,
+    _seed,
+    check_dynamics,
+    choose_companions,
+    choose_model,
+    fit_dynamics,
+)
 from rvkep.names import name_problem
-from rvkep.options import TREND_DEGREES, parse_trend
 from rvkep.outputs import (
     check_output_folder,
     clean_temporaries,
@@ -40,9 +44,8 @@ from rvkep.outputs import (
 )
 from rvkep.physics import StarProperties
 
-__all__ = ["AnalyzeOptions", "analyze", "BIC_THRESHOLD", "write_figures", "choose_companions"]
-
-BIC_THRESHOLD = 10.0
+__all__ = ["AnalyzeOptions", "analyze", "BIC_THRESHOLD", "write_figures", "choose_companions",
+           "choose_model", "ModelChoice"]
 
 
 def _options_class():
@@ -76,270 +79,6 @@ def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
     note = (f"data averaged in {days:g}-day bins per instrument: {len(data):,} -> "
             f"{len(binned):,} points")  # fmt: skip
     return binned, note
-
-
-def _say(opts: AnalyzeOptions, text: str) -> None:
-    if not opts.quiet:
-        print(text, flush=True)
-
-
-def choose_companions(search_result, data, base, period_range, max_companions: int,
-                      notes: list | None = None):  # fmt: skip
-    """Fits with 0 .. N+1 companions and the chosen N (FAP and BIC, see module text),
-    each count also tried with an orbit longer than the data
-    (:func:`rvkep.choice.long_period_stage`, its notes appended to ``notes``).
-
-    Returns (fits, n_chosen, comparison rows).
-    """
-    from rvkep.choice import long_period_stage
-    from rvkep.optimize import fit_companions
-
-    fits = list(search_result.fits)
-    n_fap = len(search_result.significant)
-    # one more than the search accepted, from the best remaining peaks, for the table
-    if n_fap < max_companions:
-        from rvkep.period_search import candidate_periods
-
-        pg = search_result.periodograms[n_fap]
-        peaks = candidate_periods(pg, data.time, period_range)
-        try:
-            extra = fit_companions(
-                data, [peaks], base=base, period_range=period_range, previous=fits[n_fap]
-            )
-            fits = fits[: n_fap + 1] + [extra]
-        except (RvkepError, ValueError, np.linalg.LinAlgError):
-            fits = fits[: n_fap + 1]
-    fits, stage_notes = long_period_stage(fits, data, period_range)
-    if notes is not None:
-        notes.extend(stage_notes)
-    n = n_fap
-    while n > 0 and fits[n].bic > fits[n - 1].bic - BIC_THRESHOLD:
-        n -= 1
-    rows = _comparison_rows(fits, n, search_result)
-    return fits, n, rows
-
-
-def select_companions(data, base, opts: AnalyzeOptions, spec=None):
-    """Search and choose the companions for one trend degree (``base.trend``).
-
-    Returns (search result, chosen fit, companion-number comparison rows, message,
-    the fits by number of companions, notes).
-    """
-    from rvkep.choice import long_period_stage
-    from rvkep.optimize import fit_companions
-    from rvkep.period_search import search
-
-    try:
-        search_result = search(
-            data, opts.min_period, opts.max_period, opts.fap,
-            max_signals=opts.companions if opts.companions is not None else opts.max_companions,
-            trend=base.trend, base=base, kind=opts.search, rng=_seed(opts, spec),
-            n_bootstrap=opts.bootstrap,
-        )  # fmt: skip
-    except ValueError as exc:
-        raise OptionError(str(exc)) from None
-    period_range = (1.0 / search_result.frequency[-1], 1.0 / search_result.frequency[0])
-    if spec and spec.companions:
-        fit = fit_companions(data, [[c.start["period"]] for c in spec.companions], base=base,
-                             specs=spec.companions, period_range=period_range)  # fmt: skip
-        fits = [search_result.fits[0], fit]
-        comparison = _comparison_rows(fits, 1, search_result)
-        comparison[1]["n_companions"] = len(spec.companions)
-        return (search_result, fit, comparison,
-                f"model file: {len(spec.companions)} companion(s)", fits, [])  # fmt: skip
-    if opts.companions is not None:
-        fits = list(search_result.fits)
-        from rvkep.period_search import candidate_periods, residual_periodogram
-
-        while len(fits) <= opts.companions:  # the search stopped early: add the best peaks
-            pg = residual_periodogram(fits[-1], search_result.frequency, "residuals")
-            fits.append(fit_companions(data, [candidate_periods(pg, data.time, period_range)],
-                                       base=base, period_range=period_range,
-                                       previous=fits[-1]))  # fmt: skip
-        fits, notes = long_period_stage(fits[: opts.companions + 1], data, period_range)
-        comparison = _comparison_rows(fits, opts.companions, search_result)
-        return (search_result, fits[opts.companions], comparison,
-                f"{opts.companions} companion(s) fitted as asked (--companions)", fits,
-                notes)  # fmt: skip
-    notes: list[str] = []
-    fits, n, comparison = choose_companions(
-        search_result, data, base, period_range, opts.max_companions, notes
-    )
-    message = (f"search: {len(search_result.significant)} significant signal(s); "
-               f"{n} companion(s) kept after the BIC comparison")  # fmt: skip
-    return search_result, fits[n], comparison, message, fits, notes
-
-
-def choose_across(outcomes: list, data, fixed: bool, spec=None):
-    """The choice over every trend degree and companion count (:mod:`rvkep.choice`):
-    nested refits so that ln L never falls with the degree, Occam by parameter count
-    over all candidates, the harmonic check of the chosen companions and the
-    alternatives that fit nearly as well.
-
-    ``outcomes`` are :func:`select_companions`' results per degree; ``fixed``: the
-    number of companions is given (model file or ``--companions``). Returns (search
-    result, fit, companion-number rows, message, fits by count, model rows, notes, the
-    harmonic tests' records)."""
-    from rvkep import choice as rules
-
-    per_degree = [list(o[4]) for o in outcomes]
-    notes: list[str] = []
-    chosen_notes = [n for o in outcomes for n in (o[5] if len(o) > 5 else [])]
-    if len(outcomes) > 1:
-        per_degree, _ = rules.nested_refits(per_degree)
-    cands = []  # (degree index, companion count)
-    for d, (o, fits) in enumerate(zip(outcomes, per_degree, strict=True)):
-        if fixed:
-            cands.append((d, len(fits) - 1))
-        else:
-            n_sig = min(len(o[0].significant), len(fits) - 1)
-            cands.extend((d, k) for k in range(n_sig + 1))
-    chosen = cands[rules.occam_choice([per_degree[d][k] for d, k in cands])]
-    d, k = chosen
-    fit = per_degree[d][k]
-    span = float(data.time.max() - data.time.min())
-    harmonics: list[dict] = []  # every harmonic test, for results.json
-
-    def harmonic(f):
-        reduced, found, records = rules.harmonic_check(f, span)
-        harmonics.extend(records)
-        return reduced, found
-
-    checks = (harmonic, rules.support_check)
-    for check in checks if not fixed else ():
-        if not fit.model.companions:
-            break
-        reduced, check_notes = check(fit)
-        notes += check_notes
-        if reduced is not fit:  # a companion dropped: the better fit of that count stands
-            k = len(reduced.model.companions)
-            if reduced.bic < per_degree[d][k].bic:
-                per_degree[d][k] = reduced
-            fit = per_degree[d][k]
-    search_result = outcomes[d][0]
-    fits = per_degree[d]
-    comparison = _comparison_rows(fits, k, search_result)
-    if spec and spec.companions:
-        comparison[1]["n_companions"] = len(spec.companions)
-        message = f"model file: {len(spec.companions)} companion(s)"
-    elif fixed:
-        message = f"{k} companion(s) fitted as asked (--companions)"
-    else:
-        message = (f"search: {len(search_result.significant)} significant signal(s); {k} "
-                   "companion(s) kept after the BIC comparison")  # fmt: skip
-    best_bic = min(per_degree[a][b].bic for a, b in cands)
-    rows = []
-    for a, b in cands:
-        f = per_degree[a][b]
-        rows.append({
-            "degree": f.model.trend, "n_companions": len(f.model.companions),
-            "periods_d": rules.periods_of(f), "n_free": f.n_free,
-            "log_likelihood": f.log_likelihood, "bic": f.bic, "delta_bic": f.bic - best_bic,
-            "chosen": (a, b) == (d, k),
-        })  # fmt: skip
-    if not fixed:
-        notes += rules.alternatives([per_degree[a][b] for a, b in cands], fit)
-    prefix = f"{k} companion(s), degree {fit.model.trend}:"  # the chosen model's own stage
-    notes += [n for n in chosen_notes if n.startswith(prefix)]
-    return search_result, fit, comparison, message, fits, rows, notes, harmonics
-
-
-def _selection_notes(search_result, fit, comparison) -> list[str]:
-    """Warnings about the choice that must reach every output: ambiguous periods, and
-    a better-scoring model that the rule did not choose."""
-    notes = []
-    by_label = {}
-    if search_result is not None:
-        # a search candidate belongs to the companion fitted at its period (a model
-        # file's companions need not be the search's, nor in its order)
-        for c in fit.model.companions:
-            P = fit.params[f"{c.label}.period"]
-            for cand in search_result.significant:
-                if abs(cand.period / P - 1.0) < 0.01:
-                    by_label[c.label] = cand
-                    break
-    for label, cand in by_label.items():
-        if cand.ambiguous_with:
-            alts = ", ".join(f"{a['period_d']:.6g} d (ln L lower by {a['delta_ln_l']:.1f})"
-                             for a in cand.ambiguous_with)  # fmt: skip
-            notes.append(f"period of {label} is AMBIGUOUS: {cand.period:.6g} d fits best, "
-                         f"but {alts} fit(s) nearly as well")  # fmt: skip
-    for label, cand in by_label.items():
-        if cand.activity and fit.model.noise in ("white", "night") and not fit.model.decorrelate:
-            cols = ",".join(cand.activity)
-            notes.append(f"the period of {label} ({cand.period:.6g} d) also peaks in {cols}: it "
-                         f"may be stellar activity; --noise gp (a correlated-noise model) or "
-                         f"--decorrelate {cols} can tell")  # fmt: skip
-    chosen = next((r for r in comparison if r.get("chosen")), None)
-    if chosen is not None:
-        for r in comparison:
-            more = r["n_companions"] > chosen["n_companions"]
-            if more and r["bic"] < chosen["bic"] - BIC_THRESHOLD:
-                notes.append(
-                    f"a model with {r['n_companions']} companions has a BIC lower by "
-                    f"{chosen['bic'] - r['bic']:.1f} but was not chosen (its last periodogram "
-                    "peak was not significant)"
-                    + _near_rotation(fit, r["periods_d"])
-                    + "; inspect it before trusting the number"
-                )
-                break
-    return notes
-
-
-def _rotation_notes(fit, rotation: float) -> list[str]:
-    """Notes on companions whose period lies within 10% of the star's rotation period
-    or its half (where spots put their signal)."""
-    notes = []
-    remedy = "" if fit.model.noise == "gp" else "; --noise gp models the activity"
-    for c in fit.model.companions:
-        P = fit.params[f"{c.label}.period"]
-        near = _rotation_match(P, rotation)
-        if near is not None:
-            what, at = near
-            notes.append(f"the period of {c.label} ({P:.4g} d) lies near the star's {what} "
-                         f"({at:.4g} d): it may be activity{remedy}")  # fmt: skip
-    return notes
-
-
-def _rotation_match(period: float, rotation: float) -> tuple[str, float] | None:
-    """("rotation period" or "half rotation period", that period) when ``period`` lies
-    within 10% of the rotation period or of half of it (where spots put their signal)."""
-    for share, what in ((1.0, "rotation period"), (0.5, "half rotation period")):
-        if abs(period / (share * rotation) - 1.0) < 0.1:
-            return what, share * rotation
-    return None
-
-
-def _near_rotation(fit, periods) -> str:
-    """', and its period X d lies near the activity's rotation period' when a noise
-    model with a rotation period has one within 10% of a period (or of half of it)."""
-    p = fit.params.get("noise.rotation_period")
-    for P in periods if p is not None else ():
-        near = _rotation_match(P, p)
-        if near is not None:
-            return f", and its period {P:.4g} d lies near the activity's {near[0]} {near[1]:.4g} d"
-    return ""
-
-
-def _comparison_rows(fits, chosen: int, search_result) -> list[dict]:
-    """The companion-number comparison table (one row per number of companions)."""
-    best_bic = min(f.bic for f in fits)
-    rows = []
-    for k, f in enumerate(fits):
-        fap = None
-        if 0 < k <= len(search_result.candidates):
-            fap = search_result.candidates[k - 1].fap
-        rows.append({
-            "n_companions": k,
-            "log_likelihood": f.log_likelihood,
-            "bic": f.bic,
-            "delta_bic": f.bic - best_bic,
-            "aic": f.aic,
-            "periods_d": [f.params[f"{c.label}.period"] for c in f.model.companions],
-            "fap_of_last": fap,
-            "chosen": k == chosen,
-        })  # fmt: skip
-    return rows
 
 
 def validate_options(opts: AnalyzeOptions) -> dict:
@@ -429,34 +168,6 @@ analyze.__signature__ = options.signature("analyze", [
     inspect.Parameter("files", inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None),
     inspect.Parameter("opts", inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None),
 ])  # fmt: skip
-
-
-def star_rotation(opts: AnalyzeOptions, spec=None) -> tuple[float, float] | None:
-    """(period, sd) of the star's rotation: ``--star-rotation`` (with its error, default
-    10% of it) over the model file's ``[star] rotation``; None when neither gives it."""
-    period, err = opts.star_rotation, opts.star_rotation_err
-    if period is None and spec is not None and spec.star_rotation is not None:
-        period, err = spec.star_rotation
-    if period is None:
-        return None
-    return float(period), float(err) if err else 0.1 * float(period)
-
-
-def _rotation_prior(base, rotation: tuple[float, float], opts: AnalyzeOptions):
-    """The GP's rotation period with a normal prior at the given rotation (truncated
-    at 5 sd, and above 0.05 d), starting there; other noise models unchanged."""
-    from rvkep.priors import TruncatedNormal
-
-    P, sd = rotation
-    pars = list(base.noise_parameters)
-    names = [p.name for p in pars]
-    if "rotation_period" not in names:
-        return base
-    k = names.index("rotation_period")
-    prior = TruncatedNormal(P, sd, max(0.05, P - 5 * sd), P + 5 * sd)
-    pars[k] = replace(pars[k], prior=prior, start=P)
-    _say(opts, f"rotation period: normal prior {P:g} +- {sd:g} d on the activity signal")
-    return replace(base, noise_parameters=pars)
 
 
 def check_against_model_file(opts: AnalyzeOptions, spec) -> None:
@@ -582,220 +293,6 @@ def star_properties(opts: AnalyzeOptions, spec=None) -> StarProperties | None:
     return star
 
 
-@dataclass
-class ModelChoice:
-    """What :func:`choose_model` decided: the search, the chosen fit, the
-    companion-number and trend comparison tables, and the notes to report."""
-
-    search: object
-    fit: object
-    comparison: list[dict]
-    trend_rows: list[dict]
-    notes: list[str]
-    fits: list = field(default_factory=list)  # by number of companions, 0 .. N + 1
-    evidence: list[dict] = field(default_factory=list)  # ln Z per number of companions
-    nested: object = None  # the nested run of the chosen model, when there is one
-    extra_notes: list[str] = field(default_factory=list)  # from the evidence stage
-    dynamics_rows: list[dict] = field(default_factory=list)  # Keplerian against N-body
-    harmonic_checks: list[dict] = field(default_factory=list)  # rvkep.choice.harmonic_check
-    timings: dict = field(default_factory=dict)  # seconds: model_choice, evidence
-
-
-def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
-                 folder: Path | None = None) -> ModelChoice:  # fmt: skip
-    """Stage 3: the trend degree(s) to try, the search and the number of companions for
-    each, and the choice between them (see the module text); with evidences asked for,
-    their nested runs (checkpointed in ``folder`` when given)."""
-    from rvkep.model import SystemModel
-
-    columns = tuple(dict.fromkeys([*(spec.decorrelate if spec else ()), *opts.decorrelate]))
-    try:
-        if spec:
-            base = spec.base_model(data, opts.noise)
-        else:
-            from rvkep.noise import default_noise_model
-
-            base = SystemModel(data, [], noise=opts.noise or default_noise_model(data))
-        base = replace(base, decorrelate=columns)
-    except ValueError as exc:
-        raise OptionError(str(exc)) from None
-    if columns:
-        n_terms = len(base.linear_names) - len(base.instruments) - base.trend
-        _say(opts, f"decorrelating against {', '.join(columns)} ({n_terms} coefficient(s))")
-    rotation = star_rotation(opts, spec)
-    if rotation is not None:
-        base = _rotation_prior(base, rotation, opts)
-    base = base.noise_model.initial(base)  # start values of its own parameters
-    if base.noise_parameters:
-        _say(
-            opts, f"noise model: {base.noise} ({', '.join(p.name for p in base.noise_parameters)})"
-        )
-    try:
-        trend = parse_trend(opts.trend)
-    except ValueError as exc:
-        raise OptionError(f"--trend {exc}") from None
-    if spec is not None and spec.trend is not None:
-        degrees = [spec.trend]  # the model file fixes it
-    else:
-        degrees = list(TREND_DEGREES) if trend == "auto" else [trend]
-    t0 = time.perf_counter()
-    outcomes = [select_companions(data, replace(base, trend=d), opts, spec) for d in degrees]
-    fixed = bool(spec and spec.companions) or opts.companions is not None
-    (search_result, fit, comparison, message, fits, trend_rows, rule_notes,
-     harmonics) = choose_across(outcomes, data, fixed, spec)  # fmt: skip
-    _say(opts, message)
-    if len(outcomes) > 1:
-        _say(opts, f"trend: degree {fit.model.trend} chosen of 0, 1, 2 (BIC by parameter count, "
-                   "see trend_comparison)")  # fmt: skip
-    choice = ModelChoice(search_result, fit, comparison, trend_rows, [], fits)
-    choice.harmonic_checks = harmonics
-    choice.extra_notes = list(rule_notes)
-    t1 = time.perf_counter()
-    choice.timings["model_choice"] = t1 - t0  # the search and the best fits, every trend
-    if opts.evidence or opts.choose_by == "evidence" or opts.sampler == "nested":
-        compute_evidence(choice, opts, spec, folder)
-        choice.timings["evidence"] = time.perf_counter() - t1
-    choice.notes = choice.extra_notes + _selection_notes(search_result, choice.fit,
-                                                         choice.comparison)  # fmt: skip
-    if rotation is not None:
-        choice.notes += _rotation_notes(choice.fit, rotation[0])
-    for note in choice.notes:
-        _say(opts, f"note: {note}")
-    return choice
-
-
-#: a model with more companions is chosen by evidence only if ln Z rises by more than
-#: this: a Bayes factor above e^5 ~ 150, "very strong" on the scale of Kass & Raftery
-#: (1995, 2 ln B > 10), the same bar as the BIC rule (Delta BIC ~ -2 ln B)
-EVIDENCE_THRESHOLD = 5.0
-
-
-def dynamics_kind(opts: AnalyzeOptions, spec=None) -> str:
-    """``--dynamics`` over the model file's ``[dynamics] kind``, else keplerian."""
-    return opts.dynamics or (spec.dynamics if spec is not None else None) or "keplerian"
-
-
-def check_dynamics(opts: AnalyzeOptions, spec, star) -> None:
-    """Refuse an N-body run that cannot start, before any folder is made: REBOUND
-    missing, or no stellar mass (the masses, and so the interactions, scale with it)."""
-    if dynamics_kind(opts, spec) == "keplerian":
-        return
-    from rvkep.nbody import require_rebound
-
-    require_rebound()
-    if star is None:
-        raise OptionError("--dynamics nbody needs the star's mass: give --star-mass (or a "
-                          "model file's [star] mass)")  # fmt: skip
-
-
-#: inclinations (cosines) the N-body best fit starts from, beside the model's own start
-NBODY_STARTS = (0.1, 0.5, 0.8)
-
-
-def fit_dynamics(choice: ModelChoice, opts: AnalyzeOptions, spec=None, star=None) -> ModelChoice:
-    """Stage 3b, with ``--dynamics nbody``: the chosen Keplerian model refitted as an
-    N-body one (:mod:`rvkep.nbody`), from the Keplerian optimum at several
-    inclinations; the two are compared (ln L, BIC) in ``dynamics_rows`` and the
-    N-body fit becomes the chosen one. Without companions there is nothing to
-    integrate and the Keplerian model stays, with a note."""
-    from rvkep.optimize import fit as best_fit
-
-    kind = dynamics_kind(opts, spec)
-    if kind == "keplerian":
-        return choice
-    kep = choice.fit
-    if not kep.model.companions:
-        choice.notes.append("--dynamics nbody: no companion was adopted, so the model stays "
-                            "Keplerian")  # fmt: skip
-        return choice
-    own = spec.dynamics_parameters_for(kind) if spec is not None else None
-    model = replace(kep.model, dynamics=kind, dynamics_parameters=own, star=star)
-    start = {k: v for k, v in kep.params.items() if k in set(model.start_physical())}
-    own_start = model.start_physical()
-    cos_keys = [f"dynamics.{p.name}" for p in model.dynamics_parameters
-                if p.name.startswith("cos_inc")]  # fmt: skip
-    lo, hi = model.dynamics_parameters[0].prior.bounds
-    cos_starts = dict.fromkeys([own_start[cos_keys[0]], *NBODY_STARTS])
-    starts = [model.from_physical({**own_start, **start, **dict.fromkeys(cos_keys, c)})[0]
-              for c in cos_starts if lo <= c <= hi]  # fmt: skip
-    _say(opts, f"N-body fit (REBOUND) of {len(kep.model.companions)} companion(s) from the "
-               f"Keplerian solution, {len(starts)} inclination start(s)")  # fmt: skip
-    nb = best_fit(model, starts)
-    rows = []
-    for name, f in (("keplerian", kep), ("nbody", nb)):
-        rows.append({"dynamics": name, "n_free": f.n_free, "log_likelihood": f.log_likelihood,
-                     "bic": f.bic})  # fmt: skip
-    best_bic = min(r["bic"] for r in rows)
-    for r in rows:
-        r["delta_bic"] = r["bic"] - best_bic
-    gain = nb.log_likelihood - kep.log_likelihood
-    inc = ", ".join(f"{k.removeprefix('dynamics.cos_inc').lstrip('.') or 'shared'} "
-                    f"{math.degrees(math.acos(min(1.0, nb.params[k]))):.1f}" for k in cos_keys)
-    _say(opts, f"N-body: ln L {nb.log_likelihood:.2f} against {kep.log_likelihood:.2f} "
-               f"(Keplerian), delta BIC {rows[1]['bic'] - rows[0]['bic']:+.2f}; inclination "
-               f"(deg) {inc} at the best fit")  # fmt: skip
-    if gain < -1.0:  # a nested model (sin i -> 1, light masses) should not lose
-        choice.notes.append(f"the N-body best fit has ln L lower than the Keplerian one by "
-                            f"{-gain:.1f}: the optimizer may have stopped early")  # fmt: skip
-    choice.fit = nb
-    choice.dynamics_rows = rows
-    return choice
-
-
-def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
-                     folder: Path | None = None) -> None:  # fmt: skip
-    """ln Z by nested sampling (:mod:`rvkep.samplers.nested`) for N - 1, N and N + 1
-    companions (every number fitted, with ``choose_by="evidence"``), kept in
-    ``choice.evidence``; with ``choose_by="evidence"`` the number of companions is
-    chosen by it (a larger number must raise ln Z by more than EVIDENCE_THRESHOLD).
-    The nested run of the chosen model is kept for its posterior (``choice.nested``)."""
-
-    by_n = {len(f.model.companions): f for f in choice.fits}
-    n = len(choice.fit.model.companions)
-    wanted = sorted(by_n) if opts.choose_by == "evidence" else [k for k in (n - 1, n, n + 1)
-                                                                 if k in by_n]  # fmt: skip
-    if not (opts.evidence or opts.choose_by == "evidence"):
-        wanted = [n]  # only the posterior of the chosen model (--sampler nested)
-    runs = {}
-    for k in wanted:
-        model = by_n[k].model
-        if model.ndim == 0:
-            continue
-        saved = folder / f"nested_{k}.save" if folder else None
-        runs[k] = _run_nested(by_n[k], opts, _seed(opts, spec), saved, choice.extra_notes)
-        _say(opts, f"  ln Z = {runs[k].extra['ln_z']:.2f} +- {runs[k].extra['ln_z_err']:.2f} "
-                   f"({runs[k].info['likelihood_calls']:,} likelihood calls, "
-                   f"{runs[k].info['seconds']:.1f} s)")  # fmt: skip
-    if opts.evidence or opts.choose_by == "evidence":
-        choice.evidence = [{"n_companions": k, "ln_z": r.extra["ln_z"],
-                            "ln_z_err": r.extra["ln_z_err"], "reliable": not r.info["missed_mode"],
-                            "likelihood_calls": r.info["likelihood_calls"],
-                            "seconds": r.info["seconds"]} for k, r in runs.items()]  # fmt: skip
-    missed = [k for k, r in runs.items() if r.info["missed_mode"]]
-    for k in missed:
-        r = runs[k]
-        note = (f"the nested run for {k} companion(s) never reached the best fit's likelihood "
-                f"(best ln L met {r.info['max_ln_l']:.1f}, best fit {r.info['start_ln_l']:.1f}): "
-                "its ln Z is UNRELIABLE (a narrow mode missed; more live points help)")  # fmt: skip
-        _say(opts, f"WARNING: {note}")
-        choice.extra_notes.append(note)
-    if opts.choose_by == "evidence" and missed:
-        _say(opts, "evidence: not used to choose (an unreliable run); the BIC choice stands")
-    elif opts.choose_by == "evidence" and runs:
-        ks = sorted(runs)
-        best = ks[0]
-        for k in ks[1:]:
-            if runs[k].extra["ln_z"] - runs[best].extra["ln_z"] > EVIDENCE_THRESHOLD:
-                best = k
-        if best != n:
-            _say(opts, f"evidence: {best} companion(s) chosen (BIC chose {n})")
-        choice.fit = by_n[best]
-        for row in choice.comparison:
-            row["chosen"] = row["n_companions"] == best
-        n = best
-    choice.nested = runs.get(n)
-
-
 def test_eccentricities(results, chosen: ModelChoice, opts: AnalyzeOptions, spec, star,
                         seed: int, out: Path, notes: list[str]):  # fmt: skip
     """Stage 4b: the Lucy & Sweeney test and a circular refit for each eccentric
@@ -829,38 +326,6 @@ def test_eccentricities(results, chosen: ModelChoice, opts: AnalyzeOptions, spec
     again = _build_results(results.data, chosen, sampled, star, opts, seed, notes + more + [note])
     again.ecc_tests = {L: {**t, "refitted_circular": L in circular} for L, t in tests.items()}
     return again
-
-
-def _seed(opts: AnalyzeOptions, spec=None) -> int:
-    """The run's seed: the option, else the model file's ``[sampling]`` seed, else 0."""
-    if opts.seed is not None:
-        return opts.seed
-    return spec.sampling.get("seed", 0) if spec else 0
-
-
-def _run_nested(fit, opts: AnalyzeOptions, seed: int, checkpoint: Path | None, notes: list[str]):
-    """One nested run of ``fit.model`` (checked against the best fit ``fit.theta``); a
-    checkpoint it could not resume is said on the terminal and kept in ``notes``."""
-    from rvkep.likelihood import LogPosterior
-    from rvkep.samplers import get_sampler
-    from rvkep.samplers.nested import NestedOptions
-    from rvkep.sampling import CheckpointNotice
-
-    model = fit.model
-    nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
-                          dlogz=0.5 if opts.quick else 0.1, checkpoint=checkpoint)  # fmt: skip
-    _say(opts, f"nested sampling: {len(model.companions)} companion(s), {model.ndim} "
-               f"parameters, {nopts.n_live(model.ndim)} live points")  # fmt: skip
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", CheckpointNotice)
-        run = get_sampler("nested").run(LogPosterior(model), fit.theta, nopts)
-    for w in caught:
-        if issubclass(w.category, CheckpointNotice):
-            _say(opts, f"note: {w.message}")
-            notes.append(str(w.message))
-        else:  # anything else the library says goes on as it was
-            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
-    return run
 
 
 def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | None = None,

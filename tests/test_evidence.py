@@ -12,8 +12,9 @@ from test_sampling import one_planet, write_table
 
 from rvkep.data import RVData
 from rvkep.eccentricity import eccentricity_tests, lucy_sweeney
+from rvkep.model_choice import EVIDENCE_THRESHOLD, choose_model
 from rvkep.orbit import radial_velocity
-from rvkep.pipeline import EVIDENCE_THRESHOLD, AnalyzeOptions, choose_model
+from rvkep.pipeline import AnalyzeOptions
 
 
 def star(ecc, seed, n=40, K=12.0, err=2.0):

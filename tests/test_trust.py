@@ -279,7 +279,8 @@ def test_eccentric_orbit_found_at_its_period_not_its_harmonic():
 def test_daily_alias_loses_to_the_true_period_once_short_orbits_are_circular():
     from rvkep.cli import demo_folder
     from rvkep.data import load_rv
-    from rvkep.pipeline import AnalyzeOptions, _selection_notes, select_companions
+    from rvkep.model_choice import _selection_notes, select_companions
+    from rvkep.pipeline import AnalyzeOptions
 
     folder = demo_folder()
     data = load_rv([folder / "kestrel.txt", folder / "osprey.csv"])
@@ -318,7 +319,8 @@ def accelerating_star(seed=6):
 
 
 def test_acceleration_is_a_trend_not_a_second_companion():
-    from rvkep.pipeline import AnalyzeOptions, choose_model, select_companions
+    from rvkep.model_choice import choose_model, select_companions
+    from rvkep.pipeline import AnalyzeOptions
 
     data = accelerating_star()
     opts = AnalyzeOptions(quiet=True)
@@ -339,7 +341,7 @@ def test_ambiguity_notes_follow_the_companion_at_that_period():
     # the note must name the companion fitted at the ambiguous period
     from types import SimpleNamespace as NS
 
-    from rvkep.pipeline import _selection_notes
+    from rvkep.model_choice import _selection_notes
 
     fit = NS(model=NS(companions=[NS(label="b"), NS(label="c")], noise="white", decorrelate=()),
              params={"b.period": 11.87, "c.period": 143.4})  # fmt: skip
