@@ -23,7 +23,7 @@ __all__ = [
 
 # name -> (module, attribute)
 _LAZY = {
-    "load_rv": ("rvkep.data", "load_rv"),
+    "load_rv": ("rvkep.reading", "load_rv"),
     "search": ("rvkep.period_search", "search"),
     "fit": ("rvkep.optimize", "fit_orbits"),
     "sample": ("rvkep.sampling", "sample"),

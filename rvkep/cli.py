@@ -60,7 +60,8 @@ def _load(args: argparse.Namespace):
     """Read the data files, printing unit warnings as one line each."""
     import warnings
 
-    from rvkep.data import DataWarning, load_rv
+    from rvkep.data import DataWarning
+    from rvkep.reading import load_rv
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", DataWarning)

@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from rvkep import options
-from rvkep.data import MIN_POINTS, DataWarning, RVData, check_size, load_rv
+from rvkep.data import MIN_POINTS, DataWarning, RVData, check_size
 from rvkep.errors import OptionError, RvkepError
 from rvkep.formatting import p_relation
 from rvkep.kepler import prepare_kernels
@@ -43,6 +43,7 @@ from rvkep.outputs import (
     remove_if_empty,
 )
 from rvkep.physics import StarProperties
+from rvkep.reading import load_rv
 
 __all__ = ["AnalyzeOptions", "analyze", "BIC_THRESHOLD", "write_figures", "choose_companions",
            "choose_model", "ModelChoice"]

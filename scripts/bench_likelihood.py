@@ -17,9 +17,9 @@ from pathlib import Path  # noqa: E402
 
 import numpy as np  # noqa: E402
 
-from rvkep.data import load_rv  # noqa: E402
 from rvkep.likelihood import LogPosterior  # noqa: E402
 from rvkep.model import SystemModel, default_companion  # noqa: E402
+from rvkep.reading import load_rv  # noqa: E402
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_data"
 

@@ -42,7 +42,7 @@ def test_a_data_blind_period_prior_is_named(tmp_path, capsys):
 
 def test_a_period_cut_by_its_prior_is_named(tmp_path):
     f = _star(tmp_path)
-    from rvkep.data import load_rv
+    from rvkep.reading import load_rv
 
     data = load_rv([f])
     comp = default_companion(data, "b", 17.0, 2459005.0, 20.0, 0.05, 1.0)

@@ -13,8 +13,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from rvkep.cli import main
-from rvkep.data import UnitWarning, load_rv, read_rv_file
+from rvkep.data import UnitWarning
 from rvkep.errors import DataError
+from rvkep.reading import load_rv, read_rv_file
 
 ROWS = [
     (2459000.1 + 1.3 * i, round(10.0 * np.sin(i), 3), round(1.0 + 0.1 * i, 3)) for i in range(10)

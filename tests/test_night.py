@@ -10,11 +10,12 @@ from scipy.stats import multivariate_normal
 from stars import seven_night_hot_jupiter
 
 from rvkep.cli import demo_folder
-from rvkep.data import RVData, load_rv
+from rvkep.data import RVData
 from rvkep.model import SystemModel
 from rvkep.noise import default_noise_model
 from rvkep.noise.night import dense_instruments, nights
 from rvkep.pipeline import AnalyzeOptions, choose_model
+from rvkep.reading import load_rv
 
 
 def _two_instruments():

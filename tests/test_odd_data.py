@@ -8,8 +8,9 @@ import numpy as np
 import pytest
 
 from rvkep.cli import main
-from rvkep.data import DataWarning, UnitWarning, load_rv, read_rv_file
+from rvkep.data import DataWarning, UnitWarning
 from rvkep.errors import DataError
+from rvkep.reading import load_rv, read_rv_file
 
 
 def rows(n=30, seed=1, t0=2459000.0):

@@ -7,11 +7,12 @@ import sys
 import numpy as np
 import pytest
 
-import rvkep.data as data_module
+import rvkep.reading as reading_module
 from rvkep.cli import main
-from rvkep.data import MAX_POINTS, RVData, load_rv
+from rvkep.data import MAX_POINTS, RVData
 from rvkep.errors import DataError
 from rvkep.periodogram import spectral_window
+from rvkep.reading import load_rv
 
 
 def big_table(path, n, seed=0):
@@ -32,7 +33,7 @@ def test_reading_in_blocks_gives_the_same_table(tmp_path, monkeypatch):
     text.insert(2000, "")
     path.write_text("\n".join(text) + "\n")
     whole = load_rv(path)
-    monkeypatch.setattr(data_module, "_LINES_PER_BLOCK", 333)
+    monkeypatch.setattr(reading_module, "_LINES_PER_BLOCK", 333)
     blocks = load_rv(path)
     assert np.array_equal(whole.time, blocks.time) and np.array_equal(whole.rv, blocks.rv)
     bad = list(text)

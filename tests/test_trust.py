@@ -223,7 +223,7 @@ def test_usage_lines_show_optional_positionals_as_optional():
      "# BJD_TDB RV[m/s] sigma_mps", "# jd v_mps e_v_mps"],
 )  # fmt: skip
 def test_compound_and_short_header_names(tmp_path, header):
-    from rvkep.data import read_rv_file
+    from rvkep.reading import read_rv_file
 
     rows = "\n".join(f"{2459000 + 3.1 * i:.4f} {5.0 * np.sin(i):.3f} 1.5" for i in range(12))
     f = tmp_path / "north.txt"
@@ -235,7 +235,8 @@ def test_compound_and_short_header_names(tmp_path, header):
 
 
 def test_unrecognised_header_is_read_by_position_with_one_line(tmp_path):
-    from rvkep.data import LayoutWarning, read_rv_file
+    from rvkep.data import LayoutWarning
+    from rvkep.reading import read_rv_file
 
     rows = "\n".join(f"{2459000 + 3.1 * i:.4f} {5.0 * np.sin(i):.3f} 1.5 {i}" for i in range(12))
     f = tmp_path / "south.txt"
@@ -278,9 +279,9 @@ def test_eccentric_orbit_found_at_its_period_not_its_harmonic():
 
 def test_daily_alias_loses_to_the_true_period_once_short_orbits_are_circular():
     from rvkep.cli import demo_folder
-    from rvkep.data import load_rv
     from rvkep.model_choice import _selection_notes, select_companions
     from rvkep.pipeline import AnalyzeOptions
+    from rvkep.reading import load_rv
 
     folder = demo_folder()
     data = load_rv([folder / "kestrel.txt", folder / "osprey.csv"])
