@@ -13,18 +13,47 @@ namespace). rvkep's kernels are therefore cached in a folder of the user's:
    cached (the run is slower to start, never wrong).
 
 Inside the chosen folder each source file gets a subfolder named from its path's hash
-(numba's rule), and numba keys each entry on the source file's contents, the argument
-types and its own version, so a changed kernel or a second install never reads another's
-entry.
+(numba's rule), and numba keys each entry on the argument types, the function's own
+bytecode and its own version. Its index is dropped when the source changes: rvkep
+stamps it with a hash of the contents of every kernel module (:data:`KERNEL_MODULES`),
+not numba's time and size of one file, so a kernel that inlines a helper from another
+kernel module never runs a stale compilation, and a second install never reads
+another's entry.
 """
 
 from __future__ import annotations
 
+import functools
+import hashlib
+import importlib
 import os
 import tempfile
 from pathlib import Path
 
-__all__ = ["cache_folder", "jit", "missing", "prepare"]
+__all__ = ["cache_folder", "jit", "missing", "prepare", "KERNEL_MODULES"]
+
+#: the modules holding compiled kernels, each with its SIGNATURES table
+KERNEL_MODULES = ("rvkep._kepler_numba", "rvkep._power_numba")
+
+
+@functools.cache
+def _sources_stamp() -> str:
+    """A hash of every kernel module's source: the stamp of each cache index."""
+    h = hashlib.sha256()
+    here = Path(__file__).resolve().parent
+    for name in KERNEL_MODULES:
+        h.update((here / (name.rsplit(".", 1)[1] + ".py")).read_bytes())
+    return h.hexdigest()
+
+
+def kernel_modules() -> list:
+    """The kernel modules, imported."""
+    return [importlib.import_module(name) for name in KERNEL_MODULES]
+
+
+def _module_of(name: str):
+    """The kernel module defining kernel ``name``."""
+    return next(m for m in kernel_modules() if name in m.SIGNATURES)
 
 
 def _candidates() -> list[Path]:
@@ -79,6 +108,9 @@ def _function_cache_class():
         def get_cache_path(self):
             return self._cache_path
 
+        def get_source_stamp(self):
+            return _sources_stamp()
+
     class _Impl(caching.CompileResultCacheImpl):
         _locator_classes = [_Locator]
 
@@ -115,11 +147,13 @@ def jit(**options):
     return wrap
 
 
-def missing(module) -> list[tuple[str, str]]:
-    """The (kernel, signature) pairs of ``module.SIGNATURES`` that the cache lacks
-    (every pair when nothing is cached)."""
+def missing(module=None) -> list[tuple[str, str]]:
+    """The (kernel, signature) pairs of ``module.SIGNATURES`` (default: of every kernel
+    module) that the cache lacks (every pair when nothing is cached)."""
     from numba.core import sigutils
 
+    if module is None:
+        return [job for m in kernel_modules() for job in missing(m)]
     out = []
     for name, signatures in module.SIGNATURES.items():
         dispatcher = getattr(module, name)
@@ -139,13 +173,11 @@ def missing(module) -> list[tuple[str, str]]:
 def _compile_one(job: tuple[str, str]) -> str:
     from numba.core import sigutils
 
-    from rvkep import _kepler_numba
-
     name, sig = job
     # as a tuple of types: numba keys the cache on the signature as given, and a call
     # looks it up by the argument types
     args, _ = sigutils.normalize_signature(sig)
-    getattr(_kepler_numba, name).compile(args)  # numba writes the cache entry
+    getattr(_module_of(name), name).compile(args)  # numba writes the cache entry
     return name
 
 
@@ -174,9 +206,7 @@ def prepare(say=None, workers: int = 2) -> int:
     import subprocess
     import sys
 
-    from rvkep import _kepler_numba
-
-    jobs = sorted(missing(_kepler_numba), key=lambda j: -_COST.get(j[0], 0.5))
+    jobs = sorted(missing(), key=lambda j: -_COST.get(j[0], 0.5))
     if not jobs:
         return 0
     folder = cache_folder()
@@ -228,7 +258,7 @@ def prepare(say=None, workers: int = 2) -> int:
                     p.kill()
                 p.wait()
     # whatever the workers did not leave in the cache (or all, without workers)
-    rest = missing(_kepler_numba) if done else jobs
+    rest = missing() if done else jobs
     done = len(jobs) - len(rest)
     for job in rest:
         _compile_one(job)

@@ -167,7 +167,7 @@ SLICE = 1024
 def _drops(t, y, w, starts, D, G, frequency, ecc, nph):
     """The kernel over ``frequency`` in slices, SIGINT deferred within each (a Ctrl-C
     inside the parallel kernel crashed it: rvkep.signals)."""
-    from rvkep._kepler_numba import keplerian_power
+    from rvkep._power_numba import keplerian_power
     from rvkep.signals import sigint_deferred
 
     n_inst = starts.size - 1

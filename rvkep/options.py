@@ -20,21 +20,13 @@ below (search kinds, trend degrees). The module imports nothing heavy: ``rvkep
 
 from __future__ import annotations
 
-import argparse
-import difflib
 import inspect
-import math
-import re
-import sys
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import Any
 
-from rvkep.errors import OptionError
-
 __all__ = [
-    "Option", "OPTIONS", "options_of", "option", "add_arguments", "check", "check_value",
-    "from_text", "from_cell", "columns", "signature", "numpydoc", "as_flags", "Parser",
+    "Option", "OPTIONS", "options_of", "option", "columns", "signature", "numpydoc", "as_flags",
     "DEFAULT_MIN_PERIOD", "TREND_DEGREES", "SEARCH_KINDS", "FIGURE_SETS", "parse_trend",
     "MIN_STEPS", "MAX_STEPS", "MIN_BOOTSTRAP", "MAX_SEED", "ANALYSIS", "TARGET_REQUIRED",
 ]  # fmt: skip
@@ -87,6 +79,14 @@ def _samplers() -> tuple[str, ...]:
     return tuple(SAMPLERS)
 
 
+def number_text(value: float) -> str:
+    """A number as a message shows it: whole numbers in full up to 10 digits, others
+    with 6 significant digits (never a 300-digit line)."""
+    if float(value).is_integer() and abs(value) < 1e10:
+        return str(int(value))
+    return f"{value:.6g}"
+
+
 @dataclass(frozen=True)
 class Option:
     """One option: how it is spelled, parsed, checked, shown and where it applies.
@@ -130,12 +130,12 @@ class Option:
         """The allowed range in words: "from 0 to 1", "above 0 and below 1", "at least 10"."""
         lo, hi = self.low, self.high
         if lo is not None and hi is not None and not (self.open_low or self.open_high):
-            return f"from {_number_text(lo)} to {_number_text(hi)}"
+            return f"from {number_text(lo)} to {number_text(hi)}"
         parts = []
         if lo is not None:
-            parts.append(f"{'above' if self.open_low else 'at least'} {_number_text(lo)}")
+            parts.append(f"{'above' if self.open_low else 'at least'} {number_text(lo)}")
         if hi is not None:
-            parts.append(f"{'below' if self.open_high else 'at most'} {_number_text(hi)}")
+            parts.append(f"{'below' if self.open_high else 'at most'} {number_text(hi)}")
         return " and ".join(parts)
 
     def help_text(self) -> str:
@@ -419,250 +419,6 @@ def columns() -> list[Option]:
 
 
 # --- values
-
-
-def _number_text(value: float) -> str:
-    """A number as a message shows it: whole numbers in full up to 10 digits, others
-    with 6 significant digits (never a 300-digit line)."""
-    if float(value).is_integer() and abs(value) < 1e10:
-        return str(int(value))
-    return f"{value:.6g}"
-
-
-def check_value(opt: Option, value, where: str | None = None):
-    """``value`` checked against ``opt`` (and converted where a kind allows: an int
-    for a float option, a list for columns); OptionError naming ``where`` (default
-    the flag) otherwise."""
-    where = where or opt.spelled
-    if value is None:
-        if opt.required:
-            raise OptionError(f"{where} is required")
-        return None
-    k = opt.kind
-    if k in ("float", "int"):
-        if isinstance(value, bool) or not isinstance(value, (int, float)):
-            raise OptionError(f"{where} must be a number, got {value!r}")
-        if k == "int":
-            if isinstance(value, float):
-                if not (math.isfinite(value) and value == int(value)):
-                    raise OptionError(f"{where} must be a whole number, got {_number_text(value)}")
-                value = int(value)
-        elif not math.isfinite(value):
-            raise OptionError(f"{where} must be a finite number, got {value}")
-        _check_range(opt, float(value), where)
-        return float(value) if k == "float" else int(value)
-    if k == "range":
-        try:
-            lo, hi = (float(x) for x in value)
-        except (TypeError, ValueError):
-            raise OptionError(f"{where} must be MIN:MAX, got {value!r}") from None
-        for x in (lo, hi):
-            if not math.isfinite(x):
-                raise OptionError(f"{where} must be two finite numbers, got {value!r}")
-            _check_range(opt, x, where)
-        if not lo < hi:
-            raise OptionError(f"{where} needs MIN < MAX, got {lo:g}:{hi:g}")
-        return (lo, hi)
-    if k == "flag":
-        if not isinstance(value, bool):
-            raise OptionError(f"{where} must be true or false, got {value!r}")
-        return value
-    if k == "choice":
-        choices = opt.choice_list()
-        if value not in choices:
-            raise OptionError(f"{where} must be one of {', '.join(map(str, choices))}, "
-                              f"got {value!r}")  # fmt: skip
-        return value
-    if k == "trend":
-        try:
-            return parse_trend(value)
-        except ValueError as exc:
-            raise OptionError(f"{where} {exc}") from None
-    if k == "columns":
-        if isinstance(value, str):
-            value = (value,)
-        names = tuple(value)
-        if not all(isinstance(c, str) and c.strip() for c in names):
-            raise OptionError(f"{where} needs column names, got {value!r}")
-        return tuple(c.strip() for c in names)
-    if k == "path":
-        if not isinstance(value, (str, bytes)) and not hasattr(value, "__fspath__"):
-            raise OptionError(f"{where} must be a path, got {value!r}")
-        if not str(value):
-            raise OptionError(f"{where} must not be empty")
-        return value
-    if k == "text":
-        if not isinstance(value, str):
-            raise OptionError(f"{where} must be text, got {value!r}")
-        return value
-    raise AssertionError(f"unknown option kind {k!r}")  # pragma: no cover - a table error
-
-
-def _check_range(opt: Option, x: float, where: str) -> None:
-    unit = f" {opt.unit}" if opt.unit else ""
-    low_bad = opt.low is not None and (x <= opt.low if opt.open_low else x < opt.low)
-    high_bad = opt.high is not None and (x >= opt.high if opt.open_high else x > opt.high)
-    if low_bad or high_bad:
-        raise OptionError(f"{where} must be {opt.range_text()}{unit}, got {_number_text(x)}")
-
-
-def from_text(opt: Option, text: str, where: str | None = None):
-    """The value of ``opt`` written as ``text`` (command line, target-list cell),
-    checked; OptionError naming ``where`` otherwise."""
-    where = where or opt.spelled
-    s = text.strip()
-    k = opt.kind
-    if k in ("float", "int"):
-        try:
-            value = int(s) if k == "int" and s.lstrip("+-").isdigit() else float(s)
-        except ValueError:
-            kind = "a whole number" if k == "int" else "a number"
-            raise OptionError(f"{where} must be {kind}, got {text[:40]!r}") from None
-    elif k == "range":
-        parts = s.replace(",", ":").split(":")
-        try:
-            value = tuple(float(x) for x in parts)
-            if len(value) != 2:
-                raise ValueError
-        except ValueError:
-            raise OptionError(f"{where} must be MIN:MAX, got {text[:40]!r}") from None
-    elif k == "flag":
-        v = s.lower()
-        if v in ("", "0", "false", "no", "n"):
-            value = False
-        elif v in ("1", "true", "yes", "y"):
-            value = True
-        else:
-            raise OptionError(f"{where} must be true or false, got {text[:40]!r}")
-    elif k == "columns":
-        value = tuple(c.strip() for c in s.replace(";", ",").split(","))
-        if not all(value):
-            raise OptionError(f"{where} needs column names separated by commas, got {text!r}")
-    else:
-        value = s if k in ("choice", "trend", "text") else text
-    return check_value(opt, value, where)
-
-
-def from_cell(opt: Option, text: str):
-    """A target-list cell: empty means the default."""
-    if not text.strip():
-        return opt.default
-    return from_text(opt, text, opt.name)
-
-
-def check(values: dict, command: str) -> dict:
-    """Every value of ``values`` (names of ``command``'s options) checked, then the
-    rules between options; returns the checked values (the given dict untouched).
-    OptionError names the flag and the problem."""
-    known = {o.name: o for o in options_of(command)}
-    out = {}
-    for name, value in values.items():
-        if name not in known:
-            close = difflib.get_close_matches(name, list(known), n=1)
-            hint = f" (did you mean {close[0]}?)" if close else ""
-            raise OptionError(f"rvkep {command} has no option {name!r}{hint}")
-        out[name] = check_value(known[name], value)
-    _check_rules(out)
-    return out
-
-
-def _check_rules(v: dict) -> None:
-    """The rules between options (only those a command has are looked at)."""
-    for what in ("mass", "radius", "teff", "rotation"):
-        if v.get(f"star_{what}_err") and v.get(f"star_{what}") is None:
-            raise OptionError(f"--star-{what}-err needs --star-{what}")
-    mass, err = v.get("star_mass"), v.get("star_mass_err")
-    if mass and err and err > mass / 3:
-        # a normal draw of the mass with sd above a third of it falls below zero often
-        # enough that truncating it would bias every minimum mass
-        raise OptionError(f"--star-mass-err {err:g} is more than a third of --star-mass "
-                          f"{mass:g}: the mass draws would be cut at 0")  # fmt: skip
-    lo, hi = v.get("min_period"), v.get("max_period")
-    if hi is not None and not hi > (lo if lo is not None else DEFAULT_MIN_PERIOD):
-        shown = f"--min-period {lo:g}" if lo is not None else f"the default {DEFAULT_MIN_PERIOD}"
-        raise OptionError(f"--max-period {hi:g} must exceed the shortest period ({shown} d)")
-    if v.get("companions") is not None and v.get("max_companions", 4) != 4:
-        raise OptionError("give --companions or --max-companions, not both")
-    if v.get("choose_by") == "evidence" and v.get("companions") is not None:
-        raise OptionError("--choose-by evidence chooses the number of companions; "
-                          "--companions fixes it: give one")  # fmt: skip
-
-
-# --- the command line
-
-
-class Parser(argparse.ArgumentParser):
-    """argparse with one-line errors (``rvkep analyze: error: ...``), no abbreviated
-    options, and "did you mean" for an unknown option."""
-
-    def __init__(self, *args, **kwargs):
-        kwargs.setdefault("allow_abbrev", False)
-        super().__init__(*args, **kwargs)
-        self.subcommands: dict[str, Parser] = {}
-
-    def error(self, message: str):  # type: ignore[override]
-        # "argument --seed: must be ..." -> "--seed must be ..." (as the Python checks say)
-        message = re.sub(r"^argument (--[\w-]+)(?:/[^:]*)?: ", r"\1 ", message)
-        print(f"{self.prog}: error: {message}", file=sys.stderr)
-        raise SystemExit(2)
-
-    def unknown(self, extras: list[str]) -> str:
-        """The message for arguments this parser does not take."""
-        flags = [s for a in self._actions for s in a.option_strings
-                 if s.startswith("--") and s != "--help"]  # fmt: skip
-        first = extras[0]
-        if first.startswith("-"):
-            flag = first.split("=")[0]
-            command = self.prog.split()[-1]
-            elsewhere = sorted({c for o in OPTIONS if o.spelled == flag for c in o.commands
-                                if c != command})  # fmt: skip
-            if elsewhere:
-                verb = "takes" if len(elsewhere) == 1 else "take"
-                return (f"unknown option {first}: rvkep {command} has no {flag} (rvkep "
-                        f"{', rvkep '.join(elsewhere)} {verb} it)")  # fmt: skip
-            close = difflib.get_close_matches(flag, flags, n=1, cutoff=0.75)
-            if close:
-                return f"unknown option {first}; did you mean {close[0]}?"
-            return f"unknown option {first}"
-        return f"unexpected argument {first!r}"
-
-
-def _argparse_type(opt: Option) -> Callable[[str], Any]:
-    def parse(text: str):
-        try:
-            return from_text(opt, text, "value")
-        except OptionError as exc:
-            raise argparse.ArgumentTypeError(str(exc).removeprefix("value ")) from None
-
-    parse.__name__ = opt.kind
-    return parse
-
-
-def add_arguments(p: argparse.ArgumentParser, command: str,
-                  shown_defaults: dict[str, str] | None = None) -> None:  # fmt: skip
-    """Add ``command``'s options to ``p`` (help from the table; ``shown_defaults``
-    replaces how a default is described, e.g. the demo star's mass)."""
-    groups: dict[str, Any] = {}
-    for opt in options_of(command):
-        if shown_defaults and opt.name in shown_defaults:
-            opt = replace(opt, shown_default=shown_defaults[opt.name])
-        target = p
-        if opt.group:
-            if opt.group not in groups:
-                groups[opt.group] = p.add_mutually_exclusive_group()
-            target = groups[opt.group]
-        kw: dict[str, Any] = {"dest": opt.name, "help": opt.help_text(), "default": opt.default}
-        if opt.kind == "flag":
-            kw["action"] = "store_true"
-        else:
-            kw["type"] = _argparse_type(opt)
-            if opt.kind == "choice" and opt.metavar is None:  # the registry's names
-                kw["metavar"] = "|".join(opt.choice_list())
-            else:
-                kw["metavar"] = opt.metavar or ("X" if opt.kind == "float" else "N")
-            if opt.required:
-                kw["required"] = True
-        target.add_argument(opt.spelled, **kw)
 
 
 def as_flags(values: dict, command: str = "analyze") -> str:

@@ -18,7 +18,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rvkep import options
+from rvkep import option_checks, options
 from rvkep.data import MIN_POINTS, DataWarning, RVData, check_size
 from rvkep.errors import OptionError, RvkepError
 from rvkep.formatting import p_relation
@@ -84,9 +84,9 @@ def bin_data(data: RVData, days: float) -> tuple[RVData, str]:
 
 def validate_options(opts: AnalyzeOptions) -> dict:
     """Check every option value before any work (raises OptionError naming it); returns
-    the checked values by name (:func:`rvkep.options.check`)."""
+    the checked values by name (:func:`rvkep.option_checks.check`)."""
     values = {name: getattr(opts, name) for name in _OPTION_NAMES}
-    checked = options.check(values, "analyze")
+    checked = option_checks.check(values, "analyze")
     check_output_folder(opts.out)
     return checked
 

@@ -23,12 +23,12 @@ from pathlib import Path
 
 import numpy as np
 
-from rvkep import __version__
 from rvkep.errors import OptionError
 from rvkep.formatting import format_uncertain, latex_value, text_estimate
 from rvkep.physics import StarProperties, derive_companion, draw_positive
 from rvkep.posterior import PosteriorSamples, circular_percentiles, percentiles
-from rvkep.report.rows import PLANET_COLUMNS as _PLANET_COLUMNS
+from rvkep.run_folder import clean, data_csv, load_fit, read_data_csv
+from rvkep.stability import posterior_stability, stability_warning
 
 __all__ = ["Results", "format_uncertain", "latex_value"]
 
@@ -107,9 +107,9 @@ class Results:
         out.notes += [open_orbit_note(L, e, span) for L, e in out.open_orbits.items()]
         out.notes += jitter_notes(fit.model, posterior.columns)
         if len(fit.model.companions) > 1:
-            out.stability = _stability(fit.model, posterior)
+            out.stability = posterior_stability(fit.model, posterior)
             if not (out.stability["median_hill_stable"] and out.stability["median_amd_stable"]):
-                out.notes.append(_stability_warning(out.stability))
+                out.notes.append(stability_warning(out.stability))
         if assumed:
             out.notes.append("star mass not given: 1 M_sun assumed for masses and orbit sizes")
         return out
@@ -202,7 +202,7 @@ class Results:
                 raise DataError(f"{folder}: no {name} (written by rvkep 0.1.0 runs from now on)")
         try:
             posterior = PosteriorSamples.read_npz(folder / "samples.npz")
-            data = _read_data_csv(folder / "data.csv", float(saved["reference_epoch"]))
+            data = read_data_csv(folder / "data.csv", float(saved["reference_epoch"]))
         except (OSError, ValueError, KeyError) as exc:
             raise DataError(f"{folder}: damaged samples.npz or data.csv ({exc})") from None
         missing = [f"{p['label']}.period" for p in saved["planets"]
@@ -213,7 +213,7 @@ class Results:
         star = StarProperties(s["mass_msun"], s["mass_err_msun"], radius=s.get("radius_rsun"),
                               teff=s.get("teff_k"))  # fmt: skip
         kind = saved["run_kind"]
-        fit = _load_fit(folder, data, star, saved, posterior)
+        fit = load_fit(folder, data, star, saved, posterior)
         return cls(
             data, posterior, fit, star=star, star_assumed=bool(kind["star_mass_assumed"]),
             comparison=saved.get("model_comparison", []),
@@ -369,140 +369,12 @@ class Results:
         return percentiles(self.posterior[column])
 
     def to_dict(self) -> dict:
-        """The content of results.json."""
+        """The content of results.json (:func:`rvkep.results_document.document`)."""
+        from rvkep.results_document import document
+
         if self.saved is not None:
             return json.loads(json.dumps(self.saved))  # a copy
-        planets = []
-        for L in self.labels:
-            entry = {"label": L}
-            for key, col, _, _ in _PLANET_COLUMNS:
-                if f"{L}.{col}" in self.posterior:
-                    entry[key] = self.estimate(f"{L}.{col}")
-            if L in self.ecc_tests:
-                entry["ecc_test"] = dict(self.ecc_tests[L])
-            entry["orbit_closed"] = L not in self.open_orbits
-            if L in self.open_orbits:
-                entry["lower_limits"] = dict(self.open_orbits[L]["lower_limits"])
-            planets.append(entry)
-        instruments = []
-        model = self.fit.model
-        for k, inst in enumerate(model.instruments):
-            m = model.inst_index == k
-            instruments.append(
-                {
-                    "name": inst.name,
-                    "n_points": int(m.sum()),
-                    "offset_mps": self.estimate(f"offset.{inst.name}"),
-                    "jitter_mps": self.estimate(f"jitter.{inst.name}"),
-                    "rms_residual_mps": self.fit.rms[inst.name],
-                    "median_error_mps": float(np.median(self.data.err[m])),
-                }
-            )
-        trend = {"degree": model.trend}
-        if model.trend >= 1:
-            trend["slope_mps_per_yr"] = self.estimate("trend.slope")
-        else:
-            trend["slope_mps_per_yr"] = {"median": 0.0, "minus": 0.0, "plus": 0.0}
-            trend["note"] = "no trend fitted (degree 0)"
-        if model.trend >= 2:
-            trend["curvature_mps_per_yr2"] = self.estimate("trend.curvature")
-        search = []
-        if self.search is not None:
-            for c in self.search.candidates:
-                search.append(
-                    {
-                        "period_d": float(c.period),
-                        "power": float(c.power),
-                        "fap": float(c.fap),
-                        "significant": bool(c.significant),
-                        "K_mps": None if c.K is None else float(c.K),
-                        "aliases_flagged": [a.kind for a in c.aliases if a.flagged],
-                        "alias_periods_d": {a.kind: float(a.period) for a in c.aliases},
-                        "activity": list(c.activity),
-                        "periodogram": getattr(c, "periodogram", "sine"),
-                        "notes": list(getattr(c, "notes", [])),
-                    }
-                )
-        sampler = self.sampling.diagnostics() if self.sampling is not None else {}
-        sampler = {
-            "walkers": sampler.get("walkers", 0),
-            "steps": sampler.get("steps", 0),
-            "autocorr_steps": sampler.get("autocorr_steps", 0.0),
-            "converged": sampler.get("converged", False),
-            **{
-                k: v
-                for k, v in sampler.items()
-                if k not in ("walkers", "steps", "autocorr_steps", "converged")
-            },
-            "quick_mode": self.quick,
-        }
-        star = self.star
-        return {
-            "rvkep_version": __version__,
-            "run_kind": {
-                "label": self.run_label(),
-                "quick": bool(self.quick),
-                "converged": self.converged,
-                "star_mass_assumed": bool(self.star_assumed),
-            },
-            "n_planets": len(self.labels),
-            "planets": planets,
-            "instruments": instruments,
-            "trend": trend,
-            "decorrelation": [
-                {
-                    "indicator": ind,
-                    "instrument": inst,
-                    "coefficient": self.estimate(f"decorr.{ind}.{inst}"),
-                }
-                for ind, inst in self.decorrelation_terms
-            ],  # fmt: skip
-            "noise": {
-                "kind": model.noise,
-                **{name: self.estimate(f"noise.{name}") for name in self.noise_names},
-            },
-            "search": search,
-            "search_method": getattr(self.search, "kind", None),
-            **({"provenance": self.provenance} if self.provenance else {}),
-            "sampler": sampler,
-            "star": {
-                **({"name": self.star_name} if self.star_name else {}),
-                "mass_msun": star.mass,
-                "mass_err_msun": star.mass_err,
-                "radius_rsun": star.radius,
-                "teff_k": star.teff,
-                "assumed": self.star_assumed,
-            },
-            "best_fit": {
-                "log_likelihood": self.fit.log_likelihood,
-                "chi2": self.fit.chi2,
-                "bic": self.fit.bic,
-                "aic": self.fit.aic,
-                "n_points": self.fit.n_points,
-                "n_free_parameters": self.fit.n_free,
-                "parameters": self.fit.params,
-            },
-            "model_comparison": self.comparison,
-            "evidence": list(self.evidence),
-            "timings": {k: float(v) for k, v in self.timings.items()},
-            "trend_comparison": self.trend_comparison,
-            "harmonic_checks": [{k: (bool(v) if k == "kept" else v) for k, v in r.items()}
-                                for r in self.harmonic_checks],  # fmt: skip
-            **({"dynamics": {
-                "kind": model.dynamics,
-                **({"inclination_deg": self.estimate("dynamics.inclination_deg")}
-                   if "dynamics.inclination_deg" in self.posterior else {}),
-                "comparison": self.dynamics_comparison,
-                "integrator": "REBOUND: WHFast (step P_min/20), or IAS15 for e >= 0.5 or "
-                              "crossing orbits; coplanar, Jacobi elements at the epoch",
-            }} if model.dynamics != "keplerian" else {}),  # fmt: skip
-            **({"stability": self.stability} if self.stability else {}),
-            **({"trend_companion": self.trend_companion()} if model.trend else {}),
-            "priors": [{"parameter": p, "prior": d} for p, d in model.describe_priors()],
-            "reference_epoch": self.data.epoch,
-            "seed": self.seed,
-            "notes": list(self.notes),
-        }
+        return document(self)
 
     def parameter_rows(self):
         """The one list of table rows (:func:`rvkep.report.rows.parameter_rows`)."""
@@ -595,125 +467,20 @@ class Results:
             "csv": write_text(out / "parameters.csv", self.csv_table()),
             "samples_csv": self.posterior.to_csv(out / "samples.csv"),
             "samples_npz": self.posterior.to_npz(out / "samples.npz"),
-            "data": write_text(out / "data.csv", _data_csv(self.data)),
+            "data": write_text(out / "data.csv", data_csv(self.data)),
         }
         if self.fit is not None:
             model = {"model": self.fit.model.to_dict(),
                      "best_fit_theta": [float(x) for x in self.fit.theta],
                      "log_likelihood": float(self.fit.log_likelihood)}  # fmt: skip
-            paths["model"] = write_text(out / "model.json", json.dumps(_clean(model)) + "\n")
+            paths["model"] = write_text(out / "model.json", json.dumps(clean(model)) + "\n")
         if self.saved is None:  # a fresh run: the time its tables took
             self.timings["tables"] = time.perf_counter() - t_start
         paths["report"] = self.write_report(out)
         # results.json last: its presence marks a complete result folder
         paths["json"] = write_text(
-            out / "results.json", json.dumps(_clean(self.to_dict()), indent=2) + "\n"
+            out / "results.json", json.dumps(clean(self.to_dict()), indent=2) + "\n"
         )
         return paths
 
 
-def _load_fit(folder: Path, data, star, saved: dict, posterior: PosteriorSamples):
-    """The best fit of a saved run rebuilt from ``model.json`` on its data (None when
-    the folder has no model.json); the posterior's sampler coordinates restored."""
-    from rvkep.errors import DataError
-    from rvkep.model import Elements, SystemModel
-    from rvkep.optimize import _result
-
-    path = folder / "model.json"
-    if not path.exists():
-        return None
-    try:
-        stored = json.loads(path.read_text(encoding="utf-8"))
-        model = SystemModel.from_dict(stored["model"], data, star)
-        fit = _result(model, np.array(stored["best_fit_theta"], float))
-    except (OSError, ValueError, KeyError, TypeError) as exc:
-        raise DataError(f"{path}: damaged ({exc})") from None
-    want = float(saved["best_fit"]["log_likelihood"])
-    if not abs(fit.log_likelihood - want) <= 1e-6 * max(1.0, abs(want)):
-        raise DataError(f"{folder}: model.json and results.json disagree (best-fit ln L "
-                        f"{fit.log_likelihood:.6f}, saved {want:.6f})")  # fmt: skip
-    cols = {k: v for k, v in posterior.columns.items()
-            if k.startswith(("jitter.", "noise.", "dynamics."))}  # fmt: skip
-    for c in model.companions:
-        cols.update(Elements.from_columns(c.label, posterior.columns).columns())
-    posterior.theta = model.from_physical(cols)
-    posterior.model = model
-    return fit
-
-
-def _data_csv(data) -> str:
-    """The data a run used, exactly (shortest round-trip reprs), for Results.load."""
-    import csv
-    import io
-
-    extra = list(data.extra)
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["time", "rv", "err", "instrument", *extra])
-    for i in range(len(data)):
-        w.writerow([repr(float(data.time[i])), repr(float(data.rv[i])), repr(float(data.err[i])),
-                    str(data.instrument[i]), *(repr(float(data.extra[k][i])) for k in extra)])  # fmt: skip
-    return buf.getvalue()
-
-
-def _read_data_csv(path: Path, epoch: float):
-    """The RVData written by :func:`_data_csv` (extras may hold NaN where a file had
-    no such column)."""
-    import csv
-
-    from rvkep.data import RVData
-
-    with open(path, newline="", encoding="utf-8") as fh:
-        rows = list(csv.reader(fh))
-    header, body = rows[0], rows[1:]
-    cols = list(zip(*body, strict=True)) if body else [[] for _ in header]
-    num = {name: np.array(cols[j], float) for j, name in enumerate(header) if name != "instrument"}
-    extra = {k: v for k, v in num.items() if k not in ("time", "rv", "err")}
-    return RVData(num["time"], num["rv"], num["err"], np.array(cols[header.index("instrument")]),
-                  extra, [str(path)], epoch)  # fmt: skip
-
-
-def _clean(x):
-    """JSON-safe copy: numpy scalars to floats, NaN/inf to None."""
-    if isinstance(x, dict):
-        return {str(k): _clean(v) for k, v in x.items()}
-    if isinstance(x, (list, tuple)):
-        return [_clean(v) for v in x]
-    if isinstance(x, (np.floating, float)):
-        return float(x) if np.isfinite(x) else None
-    if isinstance(x, np.integer):
-        return int(x)
-    if isinstance(x, np.bool_):
-        return bool(x)
-    return x
-
-
-def _stability(model, posterior) -> dict:
-    """Hill and AMD stability per posterior draw (:mod:`rvkep.stability`): masses are
-    the true masses of an N-body run, else m sin i (coplanar, edge-on: the least
-    masses, so the most favourable case)."""
-    from rvkep.physics import M_JUP, M_SUN
-    from rvkep.stability import stability_summary
-
-    labels = [c.label for c in model.companions]
-    mass_key = "mass_mjup" if model.dynamics == "nbody" else "msini_mjup"
-    draws = {"star_mass": np.asarray(posterior["star.mass_msun"], float)}
-    for L in labels:
-        draws[f"{L}.a"] = np.asarray(posterior[f"{L}.a_au"], float)
-        draws[f"{L}.ecc"] = np.asarray(posterior[f"{L}.ecc"], float)
-        draws[f"{L}.mass"] = np.asarray(posterior[f"{L}.{mass_key}"], float) * (M_JUP / M_SUN)
-    median = {k: float(np.median(v)) for k, v in draws.items()}
-    out = stability_summary(draws, labels, median)
-    out["masses"] = "true masses (N-body inclination)" if mass_key == "mass_mjup" else (
-        "minimum masses m sin i, coplanar")  # fmt: skip
-    return out
-
-
-def _stability_warning(stab: dict) -> str:
-    """The note for a median solution that fails a criterion."""
-    failed = [name for name, ok in (("Hill (Gladman 1993)", stab["median_hill_stable"]),
-                                    ("AMD (Laskar & Petit 2017)", stab["median_amd_stable"]))
-              if not ok]  # fmt: skip
-    return (f"WARNING: the median solution is not {' or '.join(failed)} stable; stable draws: "
-            f"Hill {stab['hill_stable_fraction']:.0%}, AMD {stab['amd_stable_fraction']:.0%} "
-            "(a resonance can protect such a pair: check with rvkep stability)")

@@ -183,3 +183,35 @@ def _hill_radius_separation(a1, a2, m1, m2, star_mass) -> float:
     """(a2 - a1) in mutual Hill radii ((m1 + m2) / 3M)^(1/3) (a1 + a2) / 2 (for notes)."""
     rh = ((m1 + m2) / (3.0 * star_mass)) ** (1.0 / 3.0) * 0.5 * (a1 + a2)
     return (a2 - a1) / rh if rh > 0 else math.inf
+
+
+def posterior_stability(model, posterior) -> dict:
+    """Hill and AMD stability per posterior draw (:mod:`rvkep.stability`): masses are
+    the true masses of an N-body run, else m sin i (coplanar, edge-on: the least
+    masses, so the most favourable case)."""
+    import numpy as np
+
+    from rvkep.physics import M_JUP, M_SUN
+
+    labels = [c.label for c in model.companions]
+    mass_key = "mass_mjup" if model.dynamics == "nbody" else "msini_mjup"
+    draws = {"star_mass": np.asarray(posterior["star.mass_msun"], float)}
+    for L in labels:
+        draws[f"{L}.a"] = np.asarray(posterior[f"{L}.a_au"], float)
+        draws[f"{L}.ecc"] = np.asarray(posterior[f"{L}.ecc"], float)
+        draws[f"{L}.mass"] = np.asarray(posterior[f"{L}.{mass_key}"], float) * (M_JUP / M_SUN)
+    median = {k: float(np.median(v)) for k, v in draws.items()}
+    out = stability_summary(draws, labels, median)
+    out["masses"] = "true masses (N-body inclination)" if mass_key == "mass_mjup" else (
+        "minimum masses m sin i, coplanar")  # fmt: skip
+    return out
+
+
+def stability_warning(stab: dict) -> str:
+    """The note for a median solution that fails a criterion."""
+    failed = [name for name, ok in (("Hill (Gladman 1993)", stab["median_hill_stable"]),
+                                    ("AMD (Laskar & Petit 2017)", stab["median_amd_stable"]))
+              if not ok]  # fmt: skip
+    return (f"WARNING: the median solution is not {' or '.join(failed)} stable; stable draws: "
+            f"Hill {stab['hill_stable_fraction']:.0%}, AMD {stab['amd_stable_fraction']:.0%} "
+            "(a resonance can protect such a pair: check with rvkep stability)")

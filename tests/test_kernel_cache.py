@@ -68,7 +68,7 @@ import json, sys, warnings
 warnings.simplefilter("ignore")
 from numba.core import sigutils
 import rvkep
-from rvkep import _kepler_numba as nb, _kernel_cache as kc
+from rvkep import _kernel_cache as kc
 from rvkep.kepler import prepare_kernels
 steps = []
 first = kc.prepare(lambda text, done, total: steps.append([text, done, total]))
@@ -78,13 +78,14 @@ files = [str(p) for p in sorted(rvkep.cli.demo_folder().glob("*.[tc][xs][tv]"))
 rvkep.analyze(files, star_mass=0.92, star_mass_err=0.04, quick=True, figures="none",
               quiet=True, out=sys.argv[1])
 extra = {}
-for name, sigs in nb.SIGNATURES.items():
-    declared = {sigutils.normalize_signature(s)[0] for s in sigs}
-    used = set(getattr(nb, name).signatures)
-    if used - declared:
-        extra[name] = [str(s) for s in used - declared]
+for module in kc.kernel_modules():
+    for name, sigs in module.SIGNATURES.items():
+        declared = {sigutils.normalize_signature(s)[0] for s in sigs}
+        used = set(getattr(module, name).signatures)
+        if used - declared:
+            extra[name] = [str(s) for s in used - declared]
 print(json.dumps({"first": first, "second": second, "steps": steps, "extra": extra,
-                  "missing": kc.missing(nb)}))
+                  "missing": kc.missing()}))
 """
 
 
@@ -97,9 +98,10 @@ def test_first_run_compiles_every_kernel_up_front_and_a_fit_needs_no_other(tmp_p
                          capture_output=True, text=True, timeout=600)  # fmt: skip
     assert out.returncode == 0, out.stderr[-2000:]
     got = json.loads(out.stdout.strip().splitlines()[-1])
-    from rvkep import _kepler_numba as nb
+    from rvkep import _kernel_cache as kc
 
-    n = sum(len(s) for s in nb.SIGNATURES.values())
+    # every kernel module's (reference: rvkep._kernel_cache.KERNEL_MODULES)
+    n = sum(len(s) for m in kc.kernel_modules() for s in m.SIGNATURES.values())
     assert got["first"] == n and got["second"] == 0
     assert [s[1] for s in got["steps"]] == list(range(n + 1))  # progress 0, 1, ..., n
     assert "compiling rvkep's kernels once" in got["steps"][0][0]
@@ -107,3 +109,22 @@ def test_first_run_compiles_every_kernel_up_front_and_a_fit_needs_no_other(tmp_p
     # every kernel the fit called was called with a declared signature: the up-front
     # compile covered what the run needed
     assert got["extra"] == {}
+
+
+def test_every_kernel_index_is_stamped_with_all_kernel_sources():
+    # a kernel inlining a helper of another module must not outlive a change there:
+    # each cache index carries one stamp over every kernel module's source
+    # (common practice, no source: numba's own stamp is one file's time and size)
+    import hashlib
+    from pathlib import Path
+
+    from rvkep import _kepler_numba, _power_numba
+    from rvkep import _kernel_cache as kc
+
+    if kc.cache_folder() is None:
+        pytest.skip("no writable cache folder")
+    want = hashlib.sha256(b"".join(Path(m.__file__).read_bytes()
+                                   for m in (_kepler_numba, _power_numba))).hexdigest()  # fmt: skip
+    kernels = (_kepler_numba.white_noise_logpost, _power_numba.keplerian_power)
+    stamps = {f.__name__: f._cache._impl.locator.get_source_stamp() for f in kernels}
+    assert set(stamps.values()) == {want}
