@@ -282,10 +282,40 @@ def _check_domain(key: str, prior, start, where: str) -> None:
 
 
 def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
-    """Validate a parsed TOML document and turn it into a :class:`ModelSpec`."""
+    """Validate a parsed TOML document and turn it into a :class:`ModelSpec`.
+
+    Parameters
+    ----------
+    doc : dict
+        The TOML document as :mod:`tomllib` reads it.
+    path : str
+        The file's name, for the messages and as the base of relative data files.
+
+    Returns
+    -------
+    ModelSpec
+        The star, data, trend, instruments, companions, noise, dynamics and sampling.
+
+    Raises
+    ------
+    ModelFileError
+        Naming the file, the table and the key at fault.
+    """
     _check_keys(doc, _TOP, path)
     spec = ModelSpec(path=path)
-    star = doc.get("star", {})
+    _read_star(doc.get("star", {}), spec, path)
+    _read_data(doc.get("data", {}), spec, path)
+    _read_trend(doc.get("trend", {}), spec, path)
+    _read_instruments(doc.get("instruments", {}), spec, path)
+    _read_companions(doc.get("companions", {}), spec, path)
+    _read_noise(doc.get("noise", {}), spec, path)
+    _read_dynamics(doc.get("dynamics", {}), spec, path)
+    _read_sampling(doc.get("sampling", {}), spec, path)
+    return spec
+
+
+def _read_star(star, spec: ModelSpec, path: str) -> None:
+    """The ``[star]`` table: mass (required), radius, Teff, rotation, name."""
     _check_keys(star, _STAR, _where(path, "star"))
     if star:
         if "mass" not in star:
@@ -304,7 +334,10 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
             teff=vals.get("teff"), teff_err=vals.get("teff_err", 0.0),
         )  # fmt: skip
         spec.star_name = str(star.get("name", ""))
-    data = doc.get("data", {})
+
+
+def _read_data(data, spec: ModelSpec, path: str) -> None:
+    """The ``[data]`` table: files (relative to the model file), kms, decorrelate."""
     _check_keys(data, _DATA, _where(path, "data"))
     files = data.get("files", [])
     if not isinstance(files, list) or not all(isinstance(f, str) for f in files):
@@ -320,7 +353,10 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
         raise ModelFileError(f"{_where(path, 'data', 'decorrelate')}: must be a list of "
                              "column names")  # fmt: skip
     spec.decorrelate = tuple(decorr)
-    trend = doc.get("trend", {})
+
+
+def _read_trend(trend, spec: ModelSpec, path: str) -> None:
+    """The ``[trend]`` table: its degree."""
     _check_keys(trend, _TREND, _where(path, "trend"))
     if "degree" in trend:
         degree = trend["degree"]
@@ -329,7 +365,10 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
                 f"{_where(path, 'trend', 'degree')}: must be 0, 1 or 2, got {degree!r}"
             )
         spec.trend = int(degree)
-    instruments = doc.get("instruments", {})
+
+
+def _read_instruments(instruments, spec: ModelSpec, path: str) -> None:
+    """The ``[instruments.NAME]`` tables: a jitter prior or value each."""
     _check_keys(
         instruments,
         set(instruments) if isinstance(instruments, dict) else set(),
@@ -345,7 +384,10 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
                 prior = Fixed(start) if start is not None else None
             if prior is not None:
                 spec.jitter[name] = prior
-    companions = doc.get("companions", {})
+
+
+def _read_companions(companions, spec: ModelSpec, path: str) -> None:
+    """The ``[companions.LABEL]`` tables, each read and checked."""
     if not isinstance(companions, dict):
         raise ModelFileError(f"{_where(path, 'companions')}: must be a table of tables")
     for label, table in companions.items():
@@ -354,55 +396,68 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
         if problem:
             raise ModelFileError(f"{_where(path, 'companions')}: {problem}")
         _check_keys(table, _COMPANION, where)
-        c = CompanionSpec(label=label)
-        for key in ("period", "tc", "K", "ecc"):
-            if key in table:
-                prior, start = _parameter(table[key], f"{where}.{key}")
-                if key in _DOMAIN:
-                    _check_domain(key, prior, start, f"{where}.{key}")
-                setattr(c, key, prior)
-                if start is not None:
-                    c.start[key] = start
-        if "omega_deg" in table:
-            prior, start = _parameter(table["omega_deg"], f"{where}.omega_deg")
-            if prior is not None:
-                raise ModelFileError(
-                    f"{where}.omega_deg: takes a start value only (its prior is uniform)"
-                )
-            c.start["omega"] = math.radians(start)
-        circular = table.get("circular", False)
-        if not isinstance(circular, bool):
-            raise ModelFileError(f"{where}.circular: must be true or false")
-        if circular:
-            c.ecc = Fixed(0.0)
-            c.start["ecc"] = 0.0
-        elif isinstance(c.ecc, Fixed) and c.ecc.value != 0.0:
-            raise ModelFileError(f"{where}.ecc: can only be fixed at 0 (write circular = true)")
-        if "period" in c.start and not 1e-3 <= c.start["period"] <= 1e7:
-            raise ModelFileError(
-                f"{where}.period: must lie between 0.001 and 1e7 days, got {c.start['period']:g}"
-            )
-        if c.period is not None:
-            # all but a negligible part (1e-9) of the prior must lie at positive periods
-            lo = c.period.value if c.period.is_fixed else float(c.period.ppf(1e-9))
-            if not lo > 0:
-                raise ModelFileError(
-                    f"{where}.period: the prior {c.period.describe()} allows periods <= 0"
-                )
-        if c.K is not None and c.K.is_fixed and c.K.value < 0:
-            raise ModelFileError(f"{where}.K: must not be negative, got {c.K.value:g}")
-        if "period" not in c.start:
-            if c.period is not None and not c.period.is_fixed:
-                lo, hi = c.period.bounds
-                c.start["period"] = math.sqrt(lo * hi) if lo > 0 and math.isfinite(hi) else None
-            if c.start.get("period") is None:
-                raise ModelFileError(f"{where}.period: needs a start value")
-        if "ecc" in c.start and not 0 <= c.start["ecc"] < 1:
-            raise ModelFileError(f"{where}.ecc: start must be in [0, 1), got {c.start['ecc']:g}")
+        c = _read_companion(label, table, where)
+        _check_companion(c, where)
         spec.companions.append(c)
-    _read_noise(doc.get("noise", {}), spec, path)
-    _read_dynamics(doc.get("dynamics", {}), spec, path)
-    sampling = doc.get("sampling", {})
+
+
+def _read_companion(label: str, table: dict, where: str) -> CompanionSpec:
+    """One companion's priors and start values (circular = true fixes e at 0)."""
+    c = CompanionSpec(label=label)
+    for key in ("period", "tc", "K", "ecc"):
+        if key in table:
+            prior, start = _parameter(table[key], f"{where}.{key}")
+            if key in _DOMAIN:
+                _check_domain(key, prior, start, f"{where}.{key}")
+            setattr(c, key, prior)
+            if start is not None:
+                c.start[key] = start
+    if "omega_deg" in table:
+        prior, start = _parameter(table["omega_deg"], f"{where}.omega_deg")
+        if prior is not None:
+            raise ModelFileError(
+                f"{where}.omega_deg: takes a start value only (its prior is uniform)"
+            )
+        c.start["omega"] = math.radians(start)
+    circular = table.get("circular", False)
+    if not isinstance(circular, bool):
+        raise ModelFileError(f"{where}.circular: must be true or false")
+    if circular:
+        c.ecc = Fixed(0.0)
+        c.start["ecc"] = 0.0
+    elif isinstance(c.ecc, Fixed) and c.ecc.value != 0.0:
+        raise ModelFileError(f"{where}.ecc: can only be fixed at 0 (write circular = true)")
+    return c
+
+
+def _check_companion(c: CompanionSpec, where: str) -> None:
+    """A companion's period, K and e within their ranges; a period start when its
+    prior gives none (the geometric middle of its bounds)."""
+    if "period" in c.start and not 1e-3 <= c.start["period"] <= 1e7:
+        raise ModelFileError(
+            f"{where}.period: must lie between 0.001 and 1e7 days, got {c.start['period']:g}"
+        )
+    if c.period is not None:
+        # all but a negligible part (1e-9) of the prior must lie at positive periods
+        lo = c.period.value if c.period.is_fixed else float(c.period.ppf(1e-9))
+        if not lo > 0:
+            raise ModelFileError(
+                f"{where}.period: the prior {c.period.describe()} allows periods <= 0"
+            )
+    if c.K is not None and c.K.is_fixed and c.K.value < 0:
+        raise ModelFileError(f"{where}.K: must not be negative, got {c.K.value:g}")
+    if "period" not in c.start:
+        if c.period is not None and not c.period.is_fixed:
+            lo, hi = c.period.bounds
+            c.start["period"] = math.sqrt(lo * hi) if lo > 0 and math.isfinite(hi) else None
+        if c.start.get("period") is None:
+            raise ModelFileError(f"{where}.period: needs a start value")
+    if "ecc" in c.start and not 0 <= c.start["ecc"] < 1:
+        raise ModelFileError(f"{where}.ecc: start must be in [0, 1), got {c.start['ecc']:g}")
+
+
+def _read_sampling(sampling, spec: ModelSpec, path: str) -> None:
+    """The ``[sampling]`` table: walkers, steps, seed within their ranges."""
     _check_keys(sampling, _SAMPLING, _where(path, "sampling"))
     for key, value in sampling.items():
         v = _number(value, _where(path, "sampling", key), positive=key != "seed")
@@ -416,7 +471,6 @@ def parse_model(doc: dict, path: str = "<model>") -> ModelSpec:
                 f"{_where(path, 'sampling', key)}: must lie between {lo} and {hi:,}, got {v:,}"
             )
         spec.sampling[key] = v
-    return spec
 
 
 def _read_noise(table, spec: ModelSpec, path: str) -> None:

@@ -21,10 +21,36 @@ _NOISE_WORDS = {
 
 
 def render(results) -> str:
+    """summary.md of a run.
+
+    Parameters
+    ----------
+    results : rvkep.results.Results
+        A fresh or reloaded run.
+
+    Returns
+    -------
+    str
+        The Markdown text, section after section.
+    """
     d = results.to_dict()
+    lines: list[str] = []
+    for section in _SECTIONS:
+        lines += section(results, d)
+    lines += _trend_companion_lines(d)
+    lines += _dynamics_lines(d)
+    lines += _sampler_lines(results, d)
+    lines += _limits_lines(results, d)
+    lines += _how_it_was_run(d.get("provenance"))
+    return "\n".join(lines) + "\n"
+
+
+def _header_lines(results, d: dict) -> list[str]:
+    """The title, the run's kind, warnings, notes and the star."""
     s = d["sampler"]
+    lines: list[str] = []
     name = results.star_name or d["star"].get("name")
-    lines = [f"# rvkep results{f' for {name}' if name else ''}: {d['n_planets']} companion(s)", "",
+    lines += [f"# rvkep results{f' for {name}' if name else ''}: {d['n_planets']} companion(s)", "",
              f"Kind of run: **{results.run_label()}**.", ""]
     if results.quick:
         lines += ["**Quick mode: short chains for a preview; not for publication.**", ""]
@@ -44,6 +70,12 @@ def render(results) -> str:
                  + (" (assumed)" if star["assumed"] else "") + f"; {len(results.data)} velocities"
                  f" from {len(d['instruments'])} instrument(s); reference epoch {results.data.epoch:.1f}.")  # fmt: skip
     lines.append("")
+    return lines
+
+
+def _companion_lines(results, d: dict) -> list[str]:
+    """The companions' table, eccentricity tests, derived quantities."""
+    lines: list[str] = []
     if d["planets"]:
         lines += ["## Companions", "",
                   "| | P [d] | K [m/s] | e | omega [deg] | tc | m sin i [M_Jup] | m sin i [M_Earth] | a [au] |",
@@ -78,6 +110,12 @@ def render(results) -> str:
             lines.append("")
     else:
         lines += ["No significant companion.", ""]
+    return lines
+
+
+def _instrument_lines(results, d: dict) -> list[str]:
+    """The instruments' table, trend and decorrelation terms."""
+    lines: list[str] = []
     lines += [
         "## Instruments",
         "",
@@ -95,6 +133,12 @@ def render(results) -> str:
         lines += [f"| {c['indicator']} | {c['instrument']} | {text_estimate(c['coefficient'])} |"
                   for c in d["decorrelation"]]  # fmt: skip
         lines.append("")
+    return lines
+
+
+def _noise_lines(results, d: dict) -> list[str]:
+    """The noise model and its parameters; the trend's slope."""
+    lines: list[str] = []
     noise = d.get("noise", {"kind": "white"})
     if noise["kind"] == "white":
         lines += ["Noise: white (each point's error and its instrument's jitter, independent).",
@@ -107,6 +151,12 @@ def render(results) -> str:
         lines.append("")
     if d["trend"]["degree"]:
         lines += [f"Trend: {text_estimate(d['trend']['slope_mps_per_yr'])} m/s/yr", ""]
+    return lines
+
+
+def _search_lines(results, d: dict) -> list[str]:
+    """The signal search's table and its notes."""
+    lines: list[str] = []
     if d["search"]:
         lines += [
             "## Signal search",
@@ -124,6 +174,12 @@ def render(results) -> str:
                 lines.append(f"Signal {k} was found by the Keplerian periodogram.")
             lines += [f"Signal {k}: {note}" for note in c.get("notes", [])]
         lines.append("")
+    return lines
+
+
+def _count_lines(results, d: dict) -> list[str]:
+    """The comparison of companion counts and the evidence."""
+    lines: list[str] = []
     if d["model_comparison"]:
         lines += [
             "## Number of companions",
@@ -152,6 +208,12 @@ def render(results) -> str:
                   f"{e.get('likelihood_calls', 0):,} | {e.get('seconds', 0):.1f} |"
                   for e in d["evidence"]]  # fmt: skip
         lines.append("")
+    return lines
+
+
+def _trend_lines(results, d: dict) -> list[str]:
+    """The comparison of trend degrees and the harmonic checks."""
+    lines: list[str] = []
     if d["trend_comparison"]:
         lines += [
             "## Trend",
@@ -180,8 +242,13 @@ def render(results) -> str:
                   f"{r['delta_bic']:.1f} | {r['ecc_without']:.3f} | "
                   f"{'yes' if r['kept'] else 'no'} |" for r in d["harmonic_checks"]]  # fmt: skip
         lines.append("")
-    lines += _trend_companion_lines(d)
-    lines += _dynamics_lines(d)
+    return lines
+
+
+def _sampler_lines(results, d: dict) -> list[str]:
+    """The sampler's diagnostics and the priors."""
+    s = d["sampler"]
+    lines: list[str] = []
     lines += [
         "## Sampler", "",
         (f"{s['walkers']} walkers, {s['steps']} steps, autocorrelation time {s['autocorr_steps']:.1f} steps, "
@@ -195,6 +262,12 @@ def render(results) -> str:
         "## Priors", "", "| parameter | prior |", "|---|---|",
     ]  # fmt: skip
     lines += [f"| {p['parameter']} | {p['prior']} |" for p in d["priors"]]
+    return lines
+
+
+def _limits_lines(results, d: dict) -> list[str]:
+    """The detection limits, when the run has them."""
+    lines: list[str] = []
     if d.get("limits"):
         lim = d["limits"]
         lines += ["", "## Detection limits", "", f"Injection and recovery: {lim['method']}.", "",
@@ -206,8 +279,12 @@ def render(results) -> str:
 
         lines += [f"| {c['period_d']:.3g} | {cell(c['msini50_mearth'])} | {cell(c['k50_mps'])} | "
                   f"{cell(c['msini95_mearth'])} | {cell(c['k95_mps'])} |" for c in lim["curves"]]  # fmt: skip
-    lines += _how_it_was_run(d.get("provenance"))
-    return "\n".join(lines) + "\n"
+    return lines
+
+
+#: the sections before the comparisons' appendices, in order
+_SECTIONS = (_header_lines, _companion_lines, _instrument_lines, _noise_lines, _search_lines,
+             _count_lines, _trend_lines)  # fmt: skip
 
 
 def _how_it_was_run(prov: dict | None) -> list[str]:
