@@ -2,9 +2,14 @@
 
 A fresh ``rvkep demo --quick --seed 1`` is compared with the golden results written by
 ``scripts/make_golden.py`` (the same run, kept in ``tests/data/demo_quick_seed1.json``).
-This is a regression check of rvkep against itself, not a check of correctness: the
-demo's recovery of its invented truth is tested in ``test_analyze.py``. A change meant to
-alter the numbers rewrites the golden file and says why in its commit.
+On the kind of machine that wrote the golden file (its ``_machine``) every number must
+agree to 1e-9. On another processor the rounding of the compiled kernels moves the best
+fit by about 1e-7 and the chains then part ways, so there the choices, counts and strings
+must agree exactly, the best fit and the search to 1e-4, and each posterior summary within
+a third of its error bar. This is a regression check of rvkep against itself, not a
+check of correctness: the demo's recovery of its invented truth is tested in
+``test_analyze.py``. A change meant to alter the numbers rewrites the golden file and
+says why in its commit.
 """
 
 import importlib.util
@@ -18,12 +23,57 @@ ROOT = Path(__file__).resolve().parents[2]
 GOLDEN = ROOT / "tests" / "data" / "demo_quick_seed1.json"
 
 
-def _scrub():
+def _script():
     script = ROOT / "scripts" / "make_golden.py"
     spec = importlib.util.spec_from_file_location("make_golden", script)
     module = importlib.util.module_from_spec(spec)
     spec.loader.exec_module(module)
-    return module.scrub
+    return module
+
+
+def _scrub():
+    return _script().scrub
+
+
+# Parts of results.json drawn from the chains: on another machine they agree in law only.
+POSTERIOR = (".planets", ".instruments", ".sampler", ".stability", ".evidence", ".trend.")
+
+
+def _summary_differs(new, old, path):
+    """A posterior summary {median, minus, plus} that moved by more than a third of its error."""
+    width = 0.5 * (abs(old["minus"]) + abs(old["plus"]))
+    found = []
+    if abs(new["median"] - old["median"]) > max(width / 3, 1e-12):
+        found.append(f"{path}.median: {new['median']!r}, golden {old['median']!r} +- {width:.3g}")
+    for side in ("minus", "plus"):
+        if not math.isclose(new[side], old[side], rel_tol=0.3, abs_tol=1e-12):
+            found.append(f"{path}.{side}: {new[side]!r}, golden {old[side]!r}")
+    return found
+
+
+def loose_differences(new, old, path=""):
+    """Differences that matter between two machines (see the module docstring)."""
+    summary = {"median", "minus", "plus"}
+    if isinstance(old, dict) and isinstance(new, dict):
+        numbers = all(isinstance(old.get(k), (int, float)) for k in summary)
+        if path.startswith(POSTERIOR) and summary <= set(old) and summary <= set(new) and numbers:
+            rest = {k: v for k, v in old.items() if k not in summary}
+            return _summary_differs(new, old, path) + loose_differences(
+                {k: v for k, v in new.items() if k not in summary}, rest, path
+            )
+        found = [f"{path}.{k}: only in one" for k in sorted(set(old) ^ set(new))]
+        for key in sorted(set(old) & set(new)):
+            found += loose_differences(new[key], old[key], f"{path}.{key}")
+        return found
+    if isinstance(old, list) and isinstance(new, list):
+        if len(old) != len(new):
+            return [f"{path}: {len(new)} items, golden {len(old)}"]
+        pairs = enumerate(zip(new, old, strict=True))
+        return [d for i, (a, b) in pairs for d in loose_differences(a, b, f"{path}[{i}]")]
+    floats = isinstance(old, float) and isinstance(new, (int, float))
+    if floats and path.startswith(POSTERIOR):
+        return differences(new, old, path, rtol=0.3) if abs(old) > 1e-6 else []
+    return differences(new, old, path, rtol=1e-4 if floats else 1e-9)
 
 
 def differences(new, old, path="", rtol=1e-9):
@@ -52,10 +102,20 @@ def test_differences_sees_a_change():
     assert differences({"a": 1, "b": "x"}, {"a": 1}) == [".b: only in one"]
 
 
+def test_loose_differences_see_a_moved_posterior():
+    old = {"planets": [{"K": {"median": 10.0, "minus": 0.3, "plus": 0.3}}], "n_planets": 1}
+    near = {"planets": [{"K": {"median": 10.05, "minus": 0.31, "plus": 0.29}}], "n_planets": 1}
+    far = {"planets": [{"K": {"median": 10.2, "minus": 0.3, "plus": 0.3}}], "n_planets": 1}
+    assert loose_differences(near, old) == []
+    assert loose_differences(far, old)[0].startswith(".planets[0].K.median")
+    assert loose_differences(near | {"n_planets": 2}, old) == [".n_planets: 2, golden 1"]
+
+
 def test_demo_results_equal_the_golden_file(tmp_path):
     out = tmp_path / "demo"
     assert main(["demo", "--quick", "--quiet", "--seed", "1", "--out", str(out)]) == 0
     new = _scrub()(json.loads((out / "results.json").read_text()))
     old = json.loads(GOLDEN.read_text())
-    found = differences(new, old)
+    same_machine = old.pop("_machine", None) == _script().machine()
+    found = differences(new, old) if same_machine else loose_differences(new, old)
     assert not found, f"{len(found)} differences, first: " + "; ".join(found[:5])
