@@ -18,6 +18,16 @@ Each candidate carries its period, power, FAP, the fitted semi-amplitude, its al
 candidates (+- one sidereal day, +- one year, flagged where the spectral window allows
 them and the periodogram shows a competing peak), and whether an activity indicator
 (an extra data column) has a significant peak at the same period.
+
+Three searches (``kind``): ``sine``, the generalized Lomb-Scargle periodogram with Baluev
+false alarms; ``keplerian``, the Keplerian periodogram at every step, its false alarms
+calibrated by redraws (:mod:`rvkep.keplerian_periodogram`); ``auto``, the sine search
+checked by one Keplerian periodogram pass (no redraws) at two points: when a companion's
+fitted orbit comes out eccentric (e >= :data:`AUTO_ECC`), the Keplerian peak's period is
+put to the joint fit too and the better likelihood wins; and when the sine search stops,
+a Keplerian peak whose false-alarm bound (:func:`bounded_fap`) is below the threshold is
+taken as the next signal. The Keplerian checks weigh white noise only (a correlated-noise
+model searches with the sine periodogram through its covariance).
 """
 
 from __future__ import annotations
@@ -232,8 +242,6 @@ KEPLERIAN_MIN_PERIOD = CIRCULAR_BELOW
 def _long_enough(freq: np.ndarray) -> np.ndarray:
     """The part of a frequency grid the ``auto`` Keplerian checks cover."""
     return freq[freq <= 1.0 / KEPLERIAN_MIN_PERIOD]
-#: The searches: the sine periodogram, the Keplerian one, or the sine one checked by
-#: the Keplerian one (see :func:`search`).
 
 
 def keplerian_residual_periodogram(fit_result: FitResult, frequency: np.ndarray, label: str,
@@ -261,32 +269,25 @@ def bounded_fap(pg, power: float) -> tuple[float, int]:
     return min(1.0, trials * float(pg.single_trial(power))), trials
 
 
-def search(
-    data: RVData,
-    min_period: float | None = None,
-    max_period: float | None = None,
-    fap_threshold: float = 1e-3,
-    max_signals: int = 5,
-    oversampling: float = 10.0,
-    trend: int = 0,
-    base: SystemModel | None = None,
-    n_peaks: int = 3,
-    kind: str = "sine",
-    n_bootstrap: int | None = None,
-    rng: int = 0,
-) -> SearchResult:
+def search(data: RVData, min_period: float | None = None, max_period: float | None = None,
+           fap_threshold: float = 1e-3, max_signals: int = 5, oversampling: float = 10.0,
+           trend: int = 0, base: SystemModel | None = None, n_peaks: int = 3,
+           kind: str = "sine", n_bootstrap: int | None = None, rng: int = 0,
+           ) -> SearchResult:  # fmt: skip
     """Find signals one at a time (see the module text).
 
     Parameters
     ----------
     data : RVData
+        The velocities.
     min_period, max_period : float, optional
-        Search range in days (default 0.2 d, the Roche limit of a rocky planet, to
-        the baseline).
+        Search range in days (default 0.2 d, a rocky planet's Roche limit, to the span).
     fap_threshold : float
         Stop at the first peak with a larger false-alarm probability.
     max_signals : int
         Most companions to look for.
+    oversampling : float
+        Frequency grid points per 1 / baseline.
     trend : int
         Trend degree fitted throughout.
     base : SystemModel, optional
@@ -294,104 +295,139 @@ def search(
     n_peaks : int
         Highest periodogram peaks tried as each new companion's period.
     kind : {"sine", "keplerian", "auto"}
-        ``sine``: the generalized Lomb-Scargle periodogram with Baluev false alarms.
-        ``keplerian``: the Keplerian periodogram at every step, its false alarms
-        calibrated by ``n_bootstrap`` redraws (:mod:`rvkep.keplerian_periodogram`).
-        ``auto``: the sine search, checked by one Keplerian periodogram pass (no
-        redraws) at two points: when a companion's fitted orbit comes out eccentric
-        (e >= :data:`AUTO_ECC`), the Keplerian peak's period is put to the joint fit
-        too and the better likelihood wins; and when the sine search stops, a
-        Keplerian peak whose false-alarm bound (:func:`bounded_fap`) is below the
-        threshold is taken as the next signal. White noise only (a correlated-noise
-        model searches with the sine periodogram through its covariance).
-    n_bootstrap : int, optional
-        Redraws of the ``keplerian`` search (default
-        :data:`rvkep.keplerian_periodogram.N_BOOTSTRAP`).
-    rng : int
-        Seed of the redraws.
+        The periodogram of each step (see the module text).
+    n_bootstrap, rng : int, optional
+        Redraws of the ``keplerian`` search, their seed (default: ``N_BOOTSTRAP`` of
+        :mod:`rvkep.keplerian_periodogram`).
+
+    Returns
+    -------
+    SearchResult
+        Every candidate, the periodograms, the window and the fit of each step.
     """
     from rvkep.keplerian_periodogram import N_BOOTSTRAP
 
-    if kind not in SEARCH_KINDS:
-        raise ValueError(f"unknown search {kind!r}; choose one of {', '.join(SEARCH_KINDS)}")
+    base, check = _search_base(data, kind, trend, base)
     n_bootstrap = N_BOOTSTRAP if n_bootstrap is None else int(n_bootstrap)
     freq = frequency_grid(data.time, min_period, max_period, oversampling)
     period_range = (1.0 / freq[-1], 1.0 / freq[0])
+    current = fit(base.noise_model.initial(base.with_companions([])))
+    fits, candidates, periodograms, activity = [current], [], [], _activity_periodograms(data, freq)
+    for _ in range(max_signals + 1):
+        label = "velocities" if not candidates else f"residuals after {len(candidates)} signal(s)"
+        pg, cand = _strongest_peak(current, freq, label, kind, check, len(fits) <= max_signals,
+                                   fap_threshold, n_bootstrap, rng)  # fmt: skip
+        periodograms.append(pg)
+        _describe(cand, pg, data, activity)
+        candidates.append(cand)
+        if not cand.significant:
+            break
+        current = _adopt(current, cand, pg, freq, label, data, base, period_range, n_peaks,
+                         check)  # fmt: skip
+        fits.append(current)
+    _as_finally_fitted(candidates, fits[-1])
     window = spectral_window(data.time, freq)
+    return SearchResult(candidates, periodograms, window, freq, activity, fits, fap_threshold,
+                        kind)  # fmt: skip
+
+
+def _search_base(data: RVData, kind: str, trend: int, base: SystemModel | None):
+    """The model the search adds companions to, after checking ``kind`` against it, and
+    whether the ``auto`` search's Keplerian checks apply (white noise only)."""
+    if kind not in SEARCH_KINDS:
+        raise ValueError(f"unknown search {kind!r}; choose one of {', '.join(SEARCH_KINDS)}")
     base = base if base is not None else SystemModel(data, [], trend=trend)
-    white = base.noise == "white"
-    if kind == "keplerian" and not white:
+    if kind == "keplerian" and base.noise != "white":
         raise ValueError("the Keplerian periodogram weighs white noise only; search a "
                          f"{base.noise} noise model with the sine periodogram")  # fmt: skip
-    check = kind == "auto" and white
-    current = fit(base.noise_model.initial(base.with_companions([])))
-    fits = [current]
-    candidates: list[Candidate] = []
-    periodograms: list[Periodogram] = []
-    activity = {
+    return base, kind == "auto" and base.noise == "white"
+
+
+def _adopt(current, cand, pg, freq, label, data, base, period_range, n_peaks, check):
+    """The joint fit with one more companion, its period tried at the candidate's peaks,
+    aliases and harmonics (with ``check``, an eccentric result is checked by the
+    Keplerian periodogram: :func:`_check_eccentric`); the candidate takes the fitted
+    period, K, the periods tried and the close alternatives."""
+    tries = candidate_periods(
+        pg, data.time, period_range, n_peaks, known_aliases=(cand.period, cand.aliases)
+    )
+    fitted = fit_companions(data, [tries], base=base, period_range=period_range,
+                            previous=current)  # fmt: skip
+    new = fitted.model.companions[-1].label
+    if check and cand.periodogram == "sine" and fitted.params[f"{new}.ecc"] >= AUTO_ECC:
+        fitted = _check_eccentric(fitted, current, cand, tries, freq, label, data, base,
+                                  period_range, n_peaks)  # fmt: skip
+    cand.period = fitted.params[f"{new}.period"]
+    cand.K = fitted.params[f"{new}.K"]
+    cand.tried = tries
+    cand.ambiguous_with = list(fitted.extra.get("ambiguous_with", []))
+    return fitted
+
+
+def _activity_periodograms(data: RVData, freq: np.ndarray) -> dict[str, Periodogram]:
+    """The periodogram of each activity indicator that varies and has no gaps."""
+    return {
         name: periodogram(data.time, col, None, data.instrument, freq, label=name)
         for name, col in data.extra.items()
         if np.all(np.isfinite(col)) and np.ptp(col) > 0
     }
-    for _ in range(max_signals + 1):
-        label = "velocities" if not candidates else f"residuals after {len(candidates)} signal(s)"
-        if kind == "keplerian":
-            pg = keplerian_residual_periodogram(current, freq, label, n_bootstrap, rng)
-        else:
-            pg = residual_periodogram(current, freq, label)
-        period, power, fap = pg.best()
-        significant = fap < fap_threshold and len(candidates) < max_signals
-        cand = Candidate(period, power, fap, None, significant,
-                         periodogram="keplerian" if kind == "keplerian" else "sine")  # fmt: skip
-        if check and not significant and len(candidates) < max_signals and _long_enough(freq).size:
-            kp = keplerian_residual_periodogram(current, _long_enough(freq), label)
-            k_period, k_power, _ = kp.best()
-            bound, trials = bounded_fap(kp, k_power)
-            if bound < fap_threshold:
-                cand = Candidate(k_period, k_power, bound, None, True, periodogram="keplerian")
-                cand.notes.append(
-                    f"the sine periodogram's highest peak ({period:.5g} d, FAP {fap:.2g}) is "
-                    f"not significant; the Keplerian periodogram's ({k_period:.5g} d, best "
-                    f"e {kp.ecc[np.argmax(kp.power)]:.2g}) is: FAP <= {bound:.2g} (Bonferroni "
-                    f"bound over {trials:,} trials)"
-                )  # fmt: skip
-                kp.fap_levels = {f: 1.0 - (f / trials) ** (1.0 / kp.dof) for f in FAP_LEVELS}
-                pg, significant = kp, True
-        periodograms.append(pg)
-        cand.aliases = alias_candidates(pg, cand.period, data.time)
-        for name, apg in activity.items():
-            p_here = apg.power_at(cand.period)
-            if float(apg.fap(p_here)) < 0.01:
-                cand.activity.append(name)
-        candidates.append(cand)
-        if not significant:
-            break
-        tries = candidate_periods(
-            pg, data.time, period_range, n_peaks, known_aliases=(cand.period, cand.aliases)
-        )
-        previous = current
-        current = fit_companions(
-            data, [tries], base=base, period_range=period_range, previous=previous
-        )
-        new = current.model.companions[-1].label
-        if check and cand.periodogram == "sine" and current.params[f"{new}.ecc"] >= AUTO_ECC:
-            current = _check_eccentric(current, previous, cand, tries, freq, label, data, base,
-                                       period_range, n_peaks)  # fmt: skip
-        fits.append(current)
-        cand.period = current.params[f"{new}.period"]
-        cand.K = current.params[f"{new}.K"]
-        cand.tried = tries
-        cand.ambiguous_with = list(current.extra.get("ambiguous_with", []))
-    # report every accepted signal as the final joint fit has it (the periods of the
-    # companion-number comparison), not as it stood when first found
-    final = fits[-1]
-    for cand, comp in zip(
-        [c for c in candidates if c.significant], final.model.companions, strict=False
-    ):
+
+
+def _strongest_peak(current, freq, label, kind, check, room, fap_threshold, n_bootstrap, rng):
+    """The periodogram of ``current``'s residuals and its highest peak as a candidate
+    (significant when its false-alarm probability is below the threshold and there is
+    ``room`` for one more signal); with ``check``, a Keplerian peak replaces a sine one
+    that is not significant (:func:`_keplerian_fallback`)."""
+    if kind == "keplerian":
+        pg = keplerian_residual_periodogram(current, freq, label, n_bootstrap, rng)
+    else:
+        pg = residual_periodogram(current, freq, label)
+    period, power, fap = pg.best()
+    cand = Candidate(period, power, fap, None, fap < fap_threshold and room,
+                     periodogram="keplerian" if kind == "keplerian" else "sine")  # fmt: skip
+    if check and room and not cand.significant and _long_enough(freq).size:
+        pg, cand = _keplerian_fallback(current, freq, label, pg, cand, fap_threshold)
+    return pg, cand
+
+
+def _keplerian_fallback(current, freq, label, pg, cand, fap_threshold):
+    """The ``auto`` search's last look when the sine peak is not significant: the
+    Keplerian periodogram of the same residuals (from :data:`KEPLERIAN_MIN_PERIOD` up)
+    with its Bonferroni bound. Returns the periodogram and candidate to keep: the
+    Keplerian ones when the bound is below the threshold, else those given."""
+    period, _, fap = pg.best()
+    kp = keplerian_residual_periodogram(current, _long_enough(freq), label)
+    k_period, k_power, _ = kp.best()
+    bound, trials = bounded_fap(kp, k_power)
+    if bound >= fap_threshold:
+        return pg, cand
+    found = Candidate(k_period, k_power, bound, None, True, periodogram="keplerian")
+    found.notes.append(
+        f"the sine periodogram's highest peak ({period:.5g} d, FAP {fap:.2g}) is "
+        f"not significant; the Keplerian periodogram's ({k_period:.5g} d, best "
+        f"e {kp.ecc[np.argmax(kp.power)]:.2g}) is: FAP <= {bound:.2g} (Bonferroni "
+        f"bound over {trials:,} trials)"
+    )  # fmt: skip
+    kp.fap_levels = {f: 1.0 - (f / trials) ** (1.0 / kp.dof) for f in FAP_LEVELS}
+    return kp, found
+
+
+def _describe(cand: Candidate, pg: Periodogram, data: RVData, activity: dict) -> None:
+    """A candidate's aliases in ``pg`` and the activity indicators with power at its
+    period (false-alarm probability below 1%)."""
+    cand.aliases = alias_candidates(pg, cand.period, data.time)
+    for name, apg in activity.items():
+        if float(apg.fap(apg.power_at(cand.period))) < 0.01:
+            cand.activity.append(name)
+
+
+def _as_finally_fitted(candidates: list[Candidate], final: FitResult) -> None:
+    """Every accepted signal's period and K as the final joint fit has them (the periods
+    of the companion-number comparison), not as they stood when first found."""
+    accepted = [c for c in candidates if c.significant]
+    for cand, comp in zip(accepted, final.model.companions, strict=False):
         cand.period = final.params[f"{comp.label}.period"]
         cand.K = final.params[f"{comp.label}.K"]
-    return SearchResult(candidates, periodograms, window, freq, activity, fits, fap_threshold,
-                        kind)  # fmt: skip
 
 
 def _check_eccentric(current, previous, cand, tries, freq, label, data, base, period_range,
