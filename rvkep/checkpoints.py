@@ -80,6 +80,63 @@ def _unpack_commit(rec: np.ndarray, nwalkers: int):
     return iteration, accepted, ("MT19937", keys, int(pos), int(has_gauss), float(cached))
 
 
+def _read_commit(backend):
+    """(iteration, accepted counts, random state) as the commit record of ``backend``'s
+    file has them."""
+    with backend.open() as f:
+        g = f[backend.name]
+        if "rvkep_commit" in g.attrs:
+            return _unpack_commit(g.attrs["rvkep_commit"], int(g.attrs["nwalkers"]))
+        # a file written before commit records: emcee's own fields
+        state = [v for k, v in sorted(g.attrs.items()) if k.startswith("random_state_")]
+        return int(g.attrs["iteration"]), g["accepted"][...], tuple(state) or None
+
+
+def _append_steps(backend, steps: list) -> None:
+    """Append buffered steps (coordinates, log-probabilities, accepted flags, random
+    state) to ``backend``'s file, then rewrite its commit record to name them (so a kill
+    in between leaves the previous commit in force); raise
+    :class:`CheckpointWriteError` if they cannot be written."""
+    coords = np.stack([b[0] for b in steps])
+    logp = np.stack([b[1] for b in steps])
+    acc = np.sum([b[2] for b in steps], axis=0)
+    rstate = steps[-1][3]
+    it, accepted, _ = _read_commit(backend)
+    _reserve_space(Path(backend.filename), coords.nbytes + logp.nbytes, it)
+    n = coords.shape[0]
+    try:
+        with backend.open("a") as f:
+            g = f[backend.name]
+            g["chain"].resize(it + n, axis=0)
+            g["log_prob"].resize(it + n, axis=0)
+            g["chain"][it:] = coords
+            g["log_prob"][it:] = logp
+            f.flush()  # the new steps are on disk before the commit names them
+            record = _pack_commit(it + n, accepted + acc, rstate)
+            g.attrs.modify("rvkep_commit", record)  # same shape: in place
+            f.flush()
+            g["accepted"][:] = accepted + acc  # emcee's copies of the commit
+            for i, v in enumerate(rstate):
+                g.attrs.modify(f"random_state_{i}", v)
+            g.attrs.modify("iteration", it + n)
+    except OSError as exc:
+        raise CheckpointWriteError(
+            f"{backend.filename}: cannot write the checkpoint ({_short(exc)}); it keeps "
+            f"the {it} steps written before, and the same command resumes from them"
+        ) from None
+
+
+def _read_steps(backend, name: str, flat: bool, thin: int, discard: int) -> np.ndarray:
+    """The committed steps of one field (``chain`` or ``log_prob``) of ``backend``'s
+    file, as emcee's ``get_value`` returns them."""
+    it = backend.iteration
+    if it <= 0:
+        raise AttributeError("the checkpoint holds no steps yet")
+    with backend.open() as f:
+        v = f[backend.name][name][discard + thin - 1 : it : thin]
+    return v.reshape(-1, *v.shape[2:]) if flat else v
+
+
 def _make_backend_class():
     from emcee.backends import HDFBackend
 
@@ -93,25 +150,16 @@ def _make_backend_class():
             super().__init__(str(filename), name=name)
             self._buffer = []
 
-        def _committed(self):
-            with self.open() as f:
-                g = f[self.name]
-                if "rvkep_commit" in g.attrs:
-                    return _unpack_commit(g.attrs["rvkep_commit"], int(g.attrs["nwalkers"]))
-                # a file written before commit records: emcee's own fields
-                state = [v for k, v in sorted(g.attrs.items()) if k.startswith("random_state_")]
-                return int(g.attrs["iteration"]), g["accepted"][...], tuple(state) or None
-
         def reset(self, nwalkers, ndim):
             super().reset(nwalkers, ndim)
             with self.open("a") as f:  # created now, so later commits overwrite in place
-                zero = ("MT19937", np.zeros(624), 0, 0, 0.0)
-                f[self.name].attrs["rvkep_commit"] = _pack_commit(0, np.zeros(nwalkers), zero)
+                zero = _pack_commit(0, np.zeros(nwalkers), ("MT19937", np.zeros(624), 0, 0, 0.0))
+                f[self.name].attrs["rvkep_commit"] = zero
             self._buffer = []
 
         @property
         def iteration(self):
-            base = self._committed()[0] if self.initialized else 0
+            base = _read_commit(self)[0] if self.initialized else 0
             return base + len(self._buffer)
 
         def grow(self, ngrow, blobs):
@@ -119,56 +167,21 @@ def _make_backend_class():
                 raise ValueError("blobs are not stored by rvkep's buffered backend")
 
         def save_step(self, state, accepted):
-            self._buffer.append(
-                (state.coords.copy(), state.log_prob.copy(), accepted.copy(), state.random_state)
-            )
+            step = (state.coords.copy(), state.log_prob.copy(), accepted.copy())
+            self._buffer.append((*step, state.random_state))
 
         def flush(self):
             """Append the buffered steps; raise :class:`CheckpointWriteError` (the file
             keeps every step of the previous flush) if they cannot be written."""
-            if not self._buffer:
-                return
-            coords = np.stack([b[0] for b in self._buffer])
-            logp = np.stack([b[1] for b in self._buffer])
-            acc = np.sum([b[2] for b in self._buffer], axis=0)
-            rstate = self._buffer[-1][3]
-            it, accepted, _ = self._committed()
-            _reserve_space(Path(self.filename), coords.nbytes + logp.nbytes, it)
-            n = coords.shape[0]
-            try:
-                with self.open("a") as f:
-                    g = f[self.name]
-                    g["chain"].resize(it + n, axis=0)
-                    g["log_prob"].resize(it + n, axis=0)
-                    g["chain"][it:] = coords
-                    g["log_prob"][it:] = logp
-                    f.flush()  # the new steps are on disk before the commit names them
-                    record = _pack_commit(it + n, accepted + acc, rstate)
-                    g.attrs.modify("rvkep_commit", record)  # same shape: in place
-                    f.flush()
-                    g["accepted"][:] = accepted + acc  # emcee's copies of the commit
-                    for i, v in enumerate(rstate):
-                        g.attrs.modify(f"random_state_{i}", v)
-                    g.attrs.modify("iteration", it + n)
-            except OSError as exc:
-                raise CheckpointWriteError(
-                    f"{self.filename}: cannot write the checkpoint ({_short(exc)}); it keeps "
-                    f"the {it} steps written before, and the same command resumes from them"
-                ) from None
-            self._buffer = []
+            if self._buffer:
+                _append_steps(self, self._buffer)
+                self._buffer = []
 
         def get_value(self, name, flat=False, thin=1, discard=0):
             if name == "blobs":
                 return None  # never stored (see grow)
             self.flush()
-            it = self.iteration
-            if it <= 0:
-                raise AttributeError("the checkpoint holds no steps yet")
-            with self.open() as f:
-                v = f[self.name][name][discard + thin - 1 : it : thin]
-            if flat:
-                return v.reshape(-1, *v.shape[2:])
-            return v
+            return _read_steps(self, name, flat, thin, discard)
 
         def get_last_sample(self):
             self.flush()
@@ -177,13 +190,11 @@ def _make_backend_class():
         @property
         def accepted(self):
             self.flush()
-            return self._committed()[1]
+            return _read_commit(self)[1]
 
         @property
         def random_state(self):
-            if self._buffer:
-                return self._buffer[-1][3]
-            return self._committed()[2]
+            return self._buffer[-1][3] if self._buffer else _read_commit(self)[2]
 
     return _Buffered
 
