@@ -154,25 +154,10 @@ class _Layout:
 
 
 def _find_layout(path: Path, lines: list[str]) -> _Layout:
-    candidates: list[tuple[int, str]] = []  # (index, text) of comment/header lines
-    first_data = None
-    for i, line in enumerate(lines):
-        if _is_comment(line):
-            s = line.strip().lstrip("#!% ").strip()
-            if s:
-                candidates.append((i, s))
-            continue
-        tokens = line.replace(",", " ").replace(";", " ").split()
-        if tokens and _looks_numeric(tokens[0]):
-            first_data = i
-            break
-        candidates.append((i, line.strip()))  # a header row (not commented)
-        if len(candidates) > 200:
-            break
-    if first_data is None:
-        if any(not _is_comment(ln) for ln in lines):
-            raise DataError(f"{path}: only a header, no data rows")
-        raise DataError(f"{path}: empty file (no data rows)")
+    """The table's layout: its first data line, delimiter, columns and their roles,
+    from the header (the last line before the data naming as many columns) or, without
+    one, by position (time, rv, err, then extra columns)."""
+    first_data, candidates = _first_data_line(path, lines)
     first = lines[first_data]
     delimiter: str | None = None
     if "," in first.split("#", 1)[0]:
@@ -182,51 +167,73 @@ def _find_layout(path: Path, lines: list[str]) -> _Layout:
     cells = _split(first, delimiter)
     ncol = len(cells)
     # a header is the last candidate line with as many names as there are columns
-    header = None
     for idx, text in reversed(candidates):
         names = _split(text, delimiter if delimiter and delimiter in text else None)
         if len(names) == ncol and not all(_looks_numeric(n) for n in names):
-            header = (idx, names)
-            break
+            return _header_layout(path, first_data, delimiter, cells, idx, names)
         if idx == first_data - 1 and not lines[idx].lstrip().startswith(_COMMENT_CHARS):
             break
-    kms = False
-    if header is not None:
-        idx, names = header
-        roles = []
-        for raw in names:
-            norm = _normalise_name(raw)
-            role = _column_role(norm)
-            if role is None or role in roles:
-                role = f"extra:{norm or 'column'}"
-            if role in ("rv", "err") and "km" in raw.lower():
-                kms = True
-            roles.append(role)
-        missing = [r for r in ("time", "rv", "err") if r not in roles]
-        recognised = [r for r in roles if not r.startswith("extra:")]
-        if not recognised and ncol >= 3:
-            # a header naming nothing we know: read time, rv, err by position, say so
-            roles = _positional_roles(cells, [_normalise_name(n) for n in names])
-            warnings.warn(
-                f"{path}, line {idx + 1}: no column name recognised ({', '.join(names)}); "
-                "read as time, rv, err by position",
-                LayoutWarning,
-                stacklevel=4,
-            )
-            return _Layout(first_data, delimiter, ncol, roles, idx + 1, False)
-        if missing:
-            known = ", ".join(COLUMN_NAMES[missing[0]][:6])
-            raise DataError(
-                f"{path}, line {idx + 1}: header has no {missing[0]} column "
-                f"(found {', '.join(names)}; expected a name such as {known})"
-            )
-        return _Layout(first_data, delimiter, ncol, roles, idx + 1, kms)
     if ncol < 3:
         raise DataError(
             f"{path}, line {first_data + 1}: {ncol} column(s) without a header; "
             "need at least time, rv and err"
         )
     return _Layout(first_data, delimiter, ncol, _positional_roles(cells), None, False)
+
+
+def _first_data_line(path: Path, lines: list[str]) -> tuple[int, list[tuple[int, str]]]:
+    """The index of the first line starting with a number, and the (index, text) of the
+    comment and header lines before it that could name the columns."""
+    candidates: list[tuple[int, str]] = []
+    for i, line in enumerate(lines):
+        if _is_comment(line):
+            s = line.strip().lstrip("#!% ").strip()
+            if s:
+                candidates.append((i, s))
+            continue
+        tokens = line.replace(",", " ").replace(";", " ").split()
+        if tokens and _looks_numeric(tokens[0]):
+            return i, candidates
+        candidates.append((i, line.strip()))  # a header row (not commented)
+        if len(candidates) > 200:
+            break
+    if any(not _is_comment(ln) for ln in lines):
+        raise DataError(f"{path}: only a header, no data rows")
+    raise DataError(f"{path}: empty file (no data rows)")
+
+
+def _header_layout(path, first_data, delimiter, cells, idx, names) -> _Layout:
+    """The layout a header at line ``idx`` (0-based) names; a header naming no column
+    rvkep knows is read by position with a :class:`LayoutWarning`."""
+    ncol = len(cells)
+    roles, kms = [], False
+    for raw in names:
+        norm = _normalise_name(raw)
+        role = _column_role(norm)
+        if role is None or role in roles:
+            role = f"extra:{norm or 'column'}"
+        if role in ("rv", "err") and "km" in raw.lower():
+            kms = True
+        roles.append(role)
+    missing = [r for r in ("time", "rv", "err") if r not in roles]
+    recognised = [r for r in roles if not r.startswith("extra:")]
+    if not recognised and ncol >= 3:
+        # a header naming nothing we know: read time, rv, err by position, say so
+        roles = _positional_roles(cells, [_normalise_name(n) for n in names])
+        warnings.warn(
+            f"{path}, line {idx + 1}: no column name recognised ({', '.join(names)}); "
+            "read as time, rv, err by position",
+            LayoutWarning,
+            stacklevel=5,
+        )
+        return _Layout(first_data, delimiter, ncol, roles, idx + 1, False)
+    if missing:
+        known = ", ".join(COLUMN_NAMES[missing[0]][:6])
+        raise DataError(
+            f"{path}, line {idx + 1}: header has no {missing[0]} column "
+            f"(found {', '.join(names)}; expected a name such as {known})"
+        )
+    return _Layout(first_data, delimiter, ncol, roles, idx + 1, kms)
 
 
 def _positional_roles(cells: list[str], names: list[str] | None = None) -> list[str]:
@@ -353,66 +360,19 @@ def read_rv_file(path: str | Path, *, kms: bool = False, instrument: str | None 
         With the file, the line and the problem.
     """
     path = Path(path)
-    text = _decode(path)
-    if "\r" in text:  # Windows or old Mac line ends
-        text = text.replace("\r\n", "\n").replace("\r", "\n")
-    lines = text.split("\n")
-    del text
+    lines = _text_lines(path)
     layout = _find_layout(path, lines)
-    body = lines[layout.first_data :]
-    widths = _fields_per_line(body, layout.delimiter)
-    data_rows = np.flatnonzero(widths > 0)
-    line_numbers = data_rows + layout.first_data + 1  # 1-based line of each data row
-    ragged = widths[data_rows] != layout.n_columns
-    if np.any(ragged):
-        k = int(np.argmax(ragged))
-        raise DataError(
-            f"{path}, line {line_numbers[k]}: {widths[data_rows][k]} columns where the "
-            f"table has {layout.n_columns}"
-        )
+    rows, line_numbers = _data_rows(path, lines, layout)
     numeric_cols = [j for j, r in enumerate(layout.roles) if r != "instrument"]
-    rows = [body[i] for i in data_rows]  # comment and blank lines left out
-    read = {"delimiter": layout.delimiter, "comments": "#", "ndmin": 2, "quotechar": '"'}
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")  # numpy's note on blank lines and max_rows
-        try:
-            table = np.loadtxt(rows, usecols=numeric_cols, dtype=float, **read)
-        except ValueError:
-            try:  # old Fortran tables write exponents with D (1.5D0)
-                table = np.loadtxt([_fortran_to_e(r, layout, numeric_cols) for r in rows],
-                                   usecols=numeric_cols, dtype=float, **read)  # fmt: skip
-            except ValueError:
-                lines = [_fortran_to_e(ln, layout, numeric_cols) for ln in lines]
-                raise DataError(_locate_bad_row(path, lines, layout)) from None
-        names = None
-        if "instrument" in layout.roles:
-            col = layout.roles.index("instrument")
-            try:
-                names = np.loadtxt(rows, usecols=[col], dtype=str, **read)[:, 0]
-            except ValueError:  # e.g. an empty quoted name "" that numpy drops
-                names = np.array([_split(r, layout.delimiter)[col] for r in rows], dtype=str)
-            names = np.char.strip(names, "\"' ")
-    n_rows = table.shape[0]
+    table, names = _parse_rows(path, lines, rows, layout, numeric_cols)
     col = {
         r: table[:, numeric_cols.index(j)] for j, r in enumerate(layout.roles) if j in numeric_cols
     }
     time, rv, err = col["time"], col["rv"], col["err"]
     extra = {r.removeprefix("extra:"): v for r, v in col.items() if r.startswith("extra:")}
-    for label, arr in col.items():
-        bad = ~np.isfinite(arr)
-        if np.any(bad):
-            name = label.removeprefix("extra:")
-            raise DataError(
-                f"{path}, line {line_numbers[np.argmax(bad)]}: {name} is not a finite number"
-            )
-    bad = err <= 0
-    if np.any(bad):
-        raise DataError(
-            f"{path}, line {line_numbers[np.argmax(bad)]}: error must be positive, "
-            f"got {err[bad][0]:g}"
-        )
+    _check_numbers(path, line_numbers, col)
     if instrument is not None or names is None:
-        names = np.full(n_rows, instrument or path.stem)
+        names = np.full(table.shape[0], instrument or path.stem)
     if np.any(names == ""):
         raise DataError(
             f"{path}, line {line_numbers[np.argmax(names == '')]}: empty instrument name"
@@ -426,6 +386,76 @@ def read_rv_file(path: str | Path, *, kms: bool = False, instrument: str | None 
     return RVData(
         time, rv * scale, err * scale, names, {k: v.copy() for k, v in extra.items()}, [str(path)]
     )
+
+
+def _text_lines(path: Path) -> list[str]:
+    """The file's lines, whatever its encoding and line ends (see :func:`_decode`)."""
+    text = _decode(path)
+    if "\r" in text:  # Windows or old Mac line ends
+        text = text.replace("\r\n", "\n").replace("\r", "\n")
+    return text.split("\n")
+
+
+def _data_rows(path: Path, lines: list[str], layout: _Layout) -> tuple[list[str], np.ndarray]:
+    """The data rows (comment and blank lines left out) and their 1-based line numbers;
+    a row with another number of fields than the table is a :class:`DataError`."""
+    body = lines[layout.first_data :]
+    widths = _fields_per_line(body, layout.delimiter)
+    data_rows = np.flatnonzero(widths > 0)
+    line_numbers = data_rows + layout.first_data + 1
+    ragged = widths[data_rows] != layout.n_columns
+    if np.any(ragged):
+        k = int(np.argmax(ragged))
+        raise DataError(
+            f"{path}, line {line_numbers[k]}: {widths[data_rows][k]} columns where the "
+            f"table has {layout.n_columns}"
+        )
+    return [body[i] for i in data_rows], line_numbers
+
+
+def _parse_rows(path, lines, rows, layout, numeric_cols):
+    """The numeric columns as one float table (Fortran ``D`` exponents accepted) and
+    the instrument names (None without that column); a row that is not numbers is a
+    :class:`DataError` naming its line."""
+    read = {"delimiter": layout.delimiter, "comments": "#", "ndmin": 2, "quotechar": '"'}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # numpy's note on blank lines and max_rows
+        try:
+            table = np.loadtxt(rows, usecols=numeric_cols, dtype=float, **read)
+        except ValueError:
+            try:  # old Fortran tables write exponents with D (1.5D0)
+                table = np.loadtxt([_fortran_to_e(r, layout, numeric_cols) for r in rows],
+                                   usecols=numeric_cols, dtype=float, **read)  # fmt: skip
+            except ValueError:
+                lines = [_fortran_to_e(ln, layout, numeric_cols) for ln in lines]
+                raise DataError(_locate_bad_row(path, lines, layout)) from None
+        if "instrument" not in layout.roles:
+            return table, None
+        col = layout.roles.index("instrument")
+        try:
+            names = np.loadtxt(rows, usecols=[col], dtype=str, **read)[:, 0]
+        except ValueError:  # e.g. an empty quoted name "" that numpy drops
+            names = np.array([_split(r, layout.delimiter)[col] for r in rows], dtype=str)
+    return table, np.char.strip(names, "\"' ")
+
+
+def _check_numbers(path: Path, line_numbers: np.ndarray, col: dict[str, np.ndarray]) -> None:
+    """Every value finite and every error positive, or a :class:`DataError` naming the
+    first line that is not."""
+    for label, arr in col.items():
+        bad = ~np.isfinite(arr)
+        if np.any(bad):
+            name = label.removeprefix("extra:")
+            raise DataError(
+                f"{path}, line {line_numbers[np.argmax(bad)]}: {name} is not a finite number"
+            )
+    err = col["err"]
+    bad = err <= 0
+    if np.any(bad):
+        raise DataError(
+            f"{path}, line {line_numbers[np.argmax(bad)]}: error must be positive, "
+            f"got {err[bad][0]:g}"
+        )
 
 
 def _fortran_to_e(line: str, layout: _Layout, numeric_cols: list[int]) -> str:
@@ -460,6 +490,11 @@ def load_rv(
     min_points : int
         Fewest points accepted in total.
 
+    Returns
+    -------
+    RVData
+        All files' points, sorted by time.
+
     Raises
     ------
     DataError
@@ -476,15 +511,27 @@ def load_rv(
     parts = [
         read_rv_file(p, kms=k, instrument=n) for p, k, n in zip(paths, flags, names, strict=True)
     ]
+    _check_one_time_system(parts)
+    data = _joined(parts, paths)
+    _check_joined(data, paths, len(parts), min_points)
+    return data
+
+
+def _check_one_time_system(parts: list[RVData]) -> None:
+    """All files in one time system (BJD, MJD, ... :func:`time_system`)."""
     systems = {str(d.files[0]): time_system(d.time) for d in parts}
     if len(set(systems.values())) > 1:
         detail = "; ".join(f"{f}: {s}" for f, s in systems.items())
         raise DataError(f"files use different time systems ({detail}); give them in one system")
+
+
+def _joined(parts: list[RVData], paths: list[Path]) -> RVData:
+    """The files' data as one set (an extra column missing from a file is NaN there)."""
     keys = sorted({k for d in parts for k in d.extra})
     extra = {
         k: np.concatenate([d.extra.get(k, np.full(len(d), np.nan)) for d in parts]) for k in keys
     }
-    data = RVData(
+    return RVData(
         np.concatenate([d.time for d in parts]),
         np.concatenate([d.rv for d in parts]),
         np.concatenate([d.err for d in parts]),
@@ -492,24 +539,23 @@ def load_rv(
         extra,
         [str(p) for p in paths],
     )
-    if len(parts) > 1:
+
+
+def _check_joined(data: RVData, paths: list[Path], n_files: int, min_points: int) -> None:
+    """No time of one instrument in two files, enough points, more than one night."""
+    files = ", ".join(map(str, paths))
+    if n_files > 1:
         pair = first_duplicate(data.time, data.instrument)
         if pair is not None:
             t, inst = float(data.time[pair[0]]), str(data.instrument[pair[0]])
             raise DataError(
-                f"{', '.join(map(str, paths))}: time {t!r} of instrument {inst!r} appears in "
-                "more than one file"
+                f"{files}: time {t!r} of instrument {inst!r} appears in more than one file"
             )
     if len(data) < min_points:
-        raise DataError(
-            f"{', '.join(map(str, paths))}: {len(data)} points, fewer than the "
-            f"{min_points} a fit needs"
-        )
+        raise DataError(f"{files}: {len(data)} points, fewer than the {min_points} a fit needs")
     span = float(data.time[-1] - data.time[0])
     if span < MIN_SPAN_DAYS:
         raise DataError(
-            f"{', '.join(map(str, paths))}: all {len(data)} points lie within "
-            f"{span * 24:.1f} hours (a single night); an orbit needs observations on "
-            "more than one night"
+            f"{files}: all {len(data)} points lie within {span * 24:.1f} hours (a single "
+            "night); an orbit needs observations on more than one night"
         )
-    return data
