@@ -87,17 +87,60 @@ class Prediction:
         return rows
 
 
-def predict(
-    columns: Mapping[str, np.ndarray],
-    labels: list[str],
-    t,
-    *,
-    epoch: float,
-    instrument: str | None = None,
-    typical_error: float = 0.0,
-    draws: int | None = None,
-    rng: np.random.Generator | int | None = 0,
-) -> Prediction:
+def _companion_curves(columns, labels, idx, dt, epoch) -> dict[str, np.ndarray]:
+    """Each companion's Keplerian velocity curve, one row per draw ``idx``."""
+    curves: dict[str, np.ndarray] = {}
+    for L in labels:
+        col = {k: np.asarray(columns[f"{L}.{k}"], float)[idx, None]
+               for k in ("period", "K", "ecc", "omega_deg", "tp")}  # fmt: skip
+        curves[L] = radial_velocity(dt, col["period"], col["tp"] - epoch, col["ecc"],
+                                    np.radians(col["omega_deg"]), col["K"])  # fmt: skip
+    return curves
+
+
+def _nbody_total(columns, labels, idx, dt, epoch) -> np.ndarray:
+    """The star's velocity from the N-body integration of each draw (an N-body run's
+    companions interact, so their sum is not the sum of Keplerian curves)."""
+    from rvkep.nbody import orientation, star_velocity_rows
+
+    def stack(key):
+        return np.column_stack([np.asarray(columns[f"{L}.{key}"], float)[idx] for L in labels])
+
+    arr = {"period": stack("period"), "tp_rel": stack("tp") - epoch, "ecc": stack("ecc"),
+           "omega": np.radians(stack("omega_deg")), "K": stack("K")}  # fmt: skip
+    inc, node = orientation(columns, labels, idx)
+    return star_velocity_rows(dt, arr, np.asarray(columns["star.mass_msun"], float)[idx],
+                              inc, node)  # fmt: skip
+
+
+def _draw_indices(n_all: int, draws: int | None, rng: np.random.Generator) -> np.ndarray:
+    """All draws, or ``draws`` of them chosen at random without replacement, in order."""
+    if draws is None:
+        return np.arange(n_all)
+    if draws < 1:
+        raise ValueError(f"draws must be at least 1, got {draws}")
+    return np.sort(rng.choice(n_all, size=min(draws, n_all), replace=False))
+
+
+def _measured_noise(columns, instrument, idx, typical_error, shape, rng):
+    """The instrument's offset and a draw of its noise (jitter, the typical error and a
+    correlated-noise model's amplitude, which is not predicted) for each draw."""
+    if f"offset.{instrument}" not in columns:
+        known = sorted(k.removeprefix("offset.") for k in columns if k.startswith("offset."))
+        raise ValueError(f"unknown instrument {instrument!r}; known: {', '.join(known)}")
+    n_all = len(next(iter(columns.values())))
+    offset = np.asarray(columns[f"offset.{instrument}"], float)[idx, None]
+    jitter = np.asarray(columns.get(f"jitter.{instrument}", np.zeros(n_all)), float)[idx, None]
+    var = jitter**2 + float(typical_error) ** 2
+    if "noise.amplitude" in columns:
+        var = var + np.asarray(columns["noise.amplitude"], float)[idx, None] ** 2
+    return offset, np.sqrt(var) * rng.standard_normal(shape)
+
+
+def predict(columns: Mapping[str, np.ndarray], labels: list[str], t, *, epoch: float,
+            instrument: str | None = None, typical_error: float = 0.0,
+            draws: int | None = None, rng: np.random.Generator | int | None = 0,
+            ) -> Prediction:  # fmt: skip
     """Posterior predictive curves at times ``t`` (see the module text).
 
     Parameters
@@ -133,47 +176,19 @@ def predict(
         raise ValueError("times must be a 1-d array of finite numbers")
     if not labels and instrument is None and "trend.slope" not in columns:
         raise ValueError("nothing to predict: no companion, trend or instrument")
-    n_all = len(next(iter(columns.values())))
-    idx = np.arange(n_all)
-    if draws is not None:
-        if draws < 1:
-            raise ValueError(f"draws must be at least 1, got {draws}")
-        idx = np.sort(rng.choice(n_all, size=min(draws, n_all), replace=False))
+    idx = _draw_indices(len(next(iter(columns.values()))), draws, rng)
     dt = t - epoch  # phases are computed relative to the epoch, as in the model
-    curves: dict[str, np.ndarray] = {}
-    total = np.zeros((idx.size, t.size))
-    for L in labels:
-        col = {k: np.asarray(columns[f"{L}.{k}"], float)[idx, None]
-               for k in ("period", "K", "ecc", "omega_deg", "tp")}  # fmt: skip
-        v = radial_velocity(dt, col["period"], col["tp"] - epoch, col["ecc"],
-                            np.radians(col["omega_deg"]), col["K"])  # fmt: skip
-        curves[L] = v
-        total = total + v
+    curves = _companion_curves(columns, labels, idx, dt, epoch)
+    total = sum(curves.values(), np.zeros((idx.size, t.size)))
     if labels and any(k.startswith("dynamics.cos_inc") for k in columns):  # N-body run
-        from rvkep.nbody import orientation, star_velocity_rows
-
-        def stack(key):
-            return np.column_stack([np.asarray(columns[f"{L}.{key}"], float)[idx] for L in labels])
-
-        arr = {"period": stack("period"), "tp_rel": stack("tp") - epoch, "ecc": stack("ecc"),
-               "omega": np.radians(stack("omega_deg")), "K": stack("K")}  # fmt: skip
-        inc, node = orientation(columns, labels, idx)
-        total = star_velocity_rows(dt, arr, np.asarray(columns["star.mass_msun"], float)[idx],
-                                   inc, node)  # fmt: skip
+        total = _nbody_total(columns, labels, idx, dt, epoch)
     years = dt / 365.25
     for name, power in (("trend.slope", 1), ("trend.curvature", 2)):
         if name in columns:
             total = total + np.asarray(columns[name], float)[idx, None] * years**power
     curves["total"] = total
     if instrument is not None:
-        if f"offset.{instrument}" not in columns:
-            known = sorted(k.removeprefix("offset.") for k in columns if k.startswith("offset."))
-            raise ValueError(f"unknown instrument {instrument!r}; known: {', '.join(known)}")
-        offset = np.asarray(columns[f"offset.{instrument}"], float)[idx, None]
-        jitter = np.asarray(columns.get(f"jitter.{instrument}", np.zeros(n_all)), float)[idx, None]
-        var = jitter**2 + float(typical_error) ** 2
-        if "noise.amplitude" in columns:  # a correlated-noise model's signal, unpredicted
-            var = var + np.asarray(columns["noise.amplitude"], float)[idx, None] ** 2
-        sd = np.sqrt(var)
-        curves["measured"] = total + offset + sd * rng.standard_normal(total.shape)
+        offset, noise = _measured_noise(columns, instrument, idx, typical_error, total.shape,
+                                        rng)  # fmt: skip
+        curves["measured"] = total + offset + noise
     return Prediction(t, curves, instrument)
