@@ -334,13 +334,8 @@ def _progress(total: int, initial: int, enabled: bool | None):
     return tqdm(total=total, initial=initial, desc="sampling", unit="step", leave=False)
 
 
-def run_sampler(
-    model: SystemModel,
-    start: np.ndarray,
-    options: SamplerOptions | None = None,
-    *,
-    posterior: LogPosterior | None = None,
-) -> SamplingResult:
+def run_sampler(model: SystemModel, start: np.ndarray, options: SamplerOptions | None = None,
+                *, posterior: LogPosterior | None = None) -> SamplingResult:  # fmt: skip
     """Sample the posterior of ``model`` from a best-fit vector ``start``.
 
     With ``options.checkpoint`` set, steps go to that HDF5 file; if the file holds a
@@ -349,8 +344,24 @@ def run_sampler(
     ``options.resume`` is true, the run continues from it; any other chain there is
     replaced by a new one (a :class:`CheckpointNotice` says so).
     KeyboardInterrupt flushes the completed steps to the file and is re-raised.
-    ``posterior`` is the log-posterior of ``model`` when the caller built it already
-    (the samplers' interface, :mod:`rvkep.samplers`).
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model to sample.
+    start : ndarray
+        A best-fit parameter vector of ``model`` (the walkers start in a ball about it).
+    options : SamplerOptions, optional
+        Walkers, steps, stopping rule, seed, moves, checkpoint (default: the defaults).
+    posterior : LogPosterior, optional
+        The log-posterior of ``model`` when the caller built it already (the samplers'
+        interface, :mod:`rvkep.samplers`).
+
+    Returns
+    -------
+    SamplingResult
+        The chain in ``model``'s coordinates, its autocorrelation times, acceptance,
+        burn-in, thinning and whether it converged.
     """
     import time
 
@@ -367,38 +378,27 @@ def run_sampler(
         raise RvkepError("nothing to sample: every parameter is fixed")
     nwalkers = opts.n_walkers(ndim)
     rng = np.random.default_rng(opts.seed)
-    backend = stored = None
-    if opts.checkpoint is not None:
-        path = Path(opts.checkpoint)
-        path.parent.mkdir(parents=True, exist_ok=True)
-        if path.exists() and not opts.resume:
-            path.unlink()
-        key, key_text = checkpoint_key(model, opts, nwalkers)
-        backend, stored = open_checkpoint(path, key, post, nwalkers, ndim)
-        if not backend.initialized:
-            backend.reset(nwalkers, ndim)
-            store_key(backend, key, key_text)
+    backend, stored = _checkpoint(model, post, opts, nwalkers)
     sampler = emcee.EnsembleSampler(
         nwalkers, ndim, post, vectorize=True, moves=_moves(opts.moves), backend=backend
     )
-    if stored is None:
-        state = initial_ball(post, start, nwalkers, rng)
-        sampler.random_state = np.random.RandomState(rng.integers(2**31)).get_state()
-        chains, logps = [], []
-    else:  # the file's steps, last state and random state, read once while checked
-        chain, logp, state = stored
-        chains, logps = [chain], [logp]
+    state, chains, logps = _start(sampler, post, start, nwalkers, rng, stored)
     steps = chains[0].shape[0] if chains else 0
-    tau_prev = None
-    history = []
-    converged = False
+    history: list = []
     bar = _progress(opts.max_steps, steps, opts.progress)
     t0 = time.perf_counter()
     with _interrupt_between_steps() as interrupted:
         state, steps, converged = _steps(
-            sampler, state, steps, converged, tau_prev, chains, logps, history, backend,
+            sampler, state, steps, False, None, chains, logps, history, backend,
             bar, opts, nwalkers, ndim, interrupted,
         )  # fmt: skip
+    return _result(caller, model, sampler, backend, chains, logps, converged, opts,
+                   time.perf_counter() - t0, history)  # fmt: skip
+
+
+def _result(caller, model, sampler, backend, chains, logps, converged, opts, seconds, history):
+    """The sampling result from the chain's pieces, in the caller's coordinates, with the
+    burn-in and thinning from the autocorrelation times; warns when not converged."""
     chain = np.concatenate(chains)
     log_prob = np.concatenate(logps)
     tau = _autocorr(chain)
@@ -409,20 +409,53 @@ def run_sampler(
     burn = min(int(math.ceil(opts.burn_factor * np.max(tau))), chain.shape[0] // 2)
     thin = max(1, int(0.5 * np.min(tau)))
     if not converged:
-        warnings.warn(
-            f"the chain did NOT converge in {chain.shape[0]} steps: it needs more than "
-            f"{opts.tau_factor:g} x tau = {opts.tau_factor * np.max(tau):.0f} steps with a "
-            "stable tau. Treat the results as preliminary; raise max_steps.",
-            UnconvergedWarning,
-            stacklevel=2,
-        )
+        _warn_unconverged(chain.shape[0], opts.tau_factor * np.max(tau), opts.tau_factor)
     if model is not caller:  # back to the caller's coordinates, density and all
         chain, log_prob = _recoordinate(model, caller, chain, log_prob)
-    result = SamplingResult(
+    return SamplingResult(
         caller, chain, log_prob, tau, np.asarray(acceptance, float), converged, burn, thin,
-        time.perf_counter() - t0, opts.moves, history, sampled_model=model,
+        seconds, opts.moves, history, sampled_model=model,
     )  # fmt: skip
-    return result
+
+
+def _start(sampler, post, start, nwalkers, rng, stored):
+    """The walkers' first state and the steps so far: a ball about ``start`` (and the
+    sampler's random state from ``rng``), or the checkpoint's steps, last state and
+    random state, read once while checked."""
+    if stored is None:
+        state = initial_ball(post, start, nwalkers, rng)
+        sampler.random_state = np.random.RandomState(rng.integers(2**31)).get_state()
+        return state, [], []
+    chain, logp, state = stored
+    return state, [chain], [logp]
+
+
+def _checkpoint(model: SystemModel, post: LogPosterior, opts: SamplerOptions, nwalkers: int):
+    """The buffered HDF5 backend of ``opts.checkpoint`` and the chain it already holds
+    (None without a checkpoint, or when it holds none of this run: see
+    :func:`rvkep.checkpoints.open_checkpoint`)."""
+    if opts.checkpoint is None:
+        return None, None
+    path = Path(opts.checkpoint)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if path.exists() and not opts.resume:
+        path.unlink()
+    key, key_text = checkpoint_key(model, opts, nwalkers)
+    backend, stored = open_checkpoint(path, key, post, nwalkers, model.ndim)
+    if not backend.initialized:
+        backend.reset(nwalkers, model.ndim)
+        store_key(backend, key, key_text)
+    return backend, stored
+
+
+def _warn_unconverged(steps: int, needed: float, tau_factor: float) -> None:
+    warnings.warn(
+        f"the chain did NOT converge in {steps} steps: it needs more than "
+        f"{tau_factor:g} x tau = {needed:.0f} steps with a "
+        "stable tau. Treat the results as preliminary; raise max_steps.",
+        UnconvergedWarning,
+        stacklevel=4,
+    )
 
 
 def _recoordinate(src: SystemModel, dst: SystemModel, chain, log_prob):
