@@ -46,6 +46,7 @@ References
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from functools import partial
 
 import numpy as np
 
@@ -182,22 +183,41 @@ def _drops(t, y, w, starts, D, G, frequency, ecc, nph):
     return tuple(np.concatenate([p[i] for p in parts]) for i in range(3))
 
 
-def keplerian_periodogram(
-    t: np.ndarray,
-    y: np.ndarray,
-    dy: np.ndarray,
-    instrument: np.ndarray | None = None,
-    frequency: np.ndarray | None = None,
-    *,
-    trend: int = 0,
-    ecc=KEPLER_ECC,
-    n_bootstrap: int = N_BOOTSTRAP,
-    rng: np.random.Generator | int | None = 0,
-    label: str = "velocities",
-    min_period: float | None = None,
-    max_period: float | None = None,
-    oversampling: float = 10.0,
-) -> KeplerianPeriodogram:
+def _project(D: np.ndarray, G: np.ndarray, w: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """``v`` less its weighted least-squares fit by the columns of ``D`` (offsets, trend);
+    ``G`` is the inverse of D^T W D."""
+    return v - D @ (G @ (D.T @ (w * v)))
+
+
+def _calibrate(pg: KeplerianPeriodogram, maxima: np.ndarray) -> None:
+    """Calibrate ``pg``'s false-alarm probabilities on the highest powers of redrawn
+    residuals: the effective number of independent trials, and the levels."""
+    pg.extent = float(maxima.size / np.sum(pg.tail(maxima)))
+    pg.bootstrap_max = maxima
+    pg.fap_levels = {f: pg.level(f) for f in FAP_LEVELS}
+
+
+def _checked(t, y, dy, ecc):
+    """The inputs as float arrays, or a ValueError: one length, positive errors,
+    eccentricities in [0, 1)."""
+    t, y, dy = (np.asarray(v, float) for v in (t, y, dy))
+    if not (t.shape == y.shape == dy.shape) or t.ndim != 1:
+        raise ValueError("t, y and dy must be 1-d arrays of one length")
+    if not np.all(dy > 0):
+        raise ValueError("errors must be positive")
+    ecc = np.asarray(ecc, float)
+    if np.any((ecc < 0) | (ecc >= 1)):
+        raise ValueError("eccentricities must lie in [0, 1)")
+    return t, y, dy, ecc
+
+
+def keplerian_periodogram(t: np.ndarray, y: np.ndarray, dy: np.ndarray,
+                          instrument: np.ndarray | None = None,
+                          frequency: np.ndarray | None = None, *, trend: int = 0,
+                          ecc=KEPLER_ECC, n_bootstrap: int = N_BOOTSTRAP,
+                          rng: np.random.Generator | int | None = 0, label: str = "velocities",
+                          min_period: float | None = None, max_period: float | None = None,
+                          oversampling: float = 10.0) -> KeplerianPeriodogram:  # fmt: skip
     """The Keplerian periodogram of ``y`` (see the module text).
 
     Parameters
@@ -216,19 +236,23 @@ def keplerian_periodogram(
         Redraws calibrating the false-alarm probability (0: none; ``fap`` is then NaN).
     rng : Generator or int
         For the redraws.
+    label : str
+        What the periodogram is of (shown in figures and reports).
+    min_period, max_period, oversampling : float, optional
+        The default frequency grid's range (days) and oversampling.
+
+    Returns
+    -------
+    KeplerianPeriodogram
+        The power (fraction of chi-square removed) at each frequency, the best
+        eccentricity and phase there, and the redraws' calibration.
     """
     import time
 
     from rvkep.periodogram import frequency_grid
 
     start = time.perf_counter()
-    t = np.asarray(t, float)
-    y = np.asarray(y, float)
-    dy = np.asarray(dy, float)
-    if not (t.shape == y.shape == dy.shape) or t.ndim != 1:
-        raise ValueError("t, y and dy must be 1-d arrays of one length")
-    if not np.all(dy > 0):
-        raise ValueError("errors must be positive")
+    t, y, dy, ecc = _checked(t, y, dy, ecc)
     instrument = np.zeros(t.size, int) if instrument is None else np.asarray(instrument)
     if frequency is None:
         frequency = frequency_grid(t, min_period, max_period, oversampling)
@@ -237,33 +261,22 @@ def keplerian_periodogram(
     t0 = (t - np.round(np.mean(t)))[order]
     w = 1.0 / dy[order] ** 2
     G = np.linalg.inv(D.T @ (w[:, None] * D))
-
-    def project(v):
-        return v - D @ (G @ (D.T @ (w * v)))
-
+    project = partial(_project, D, G, w)
     yt = project(y[order])
-    chi2_0 = float(np.sum(w * yt**2))
-    ecc = np.asarray(ecc, float)
-    if np.any((ecc < 0) | (ecc >= 1)):
-        raise ValueError("eccentricities must lie in [0, 1)")
     nph = phase_counts(ecc)
     drop, be, bp = _drops(t0, yt, w, starts, D, G, frequency, ecc, nph)
-    power = drop / chi2_0
-    dof = 0.5 * (t.size - D.shape[1] - 2)
-    back = np.empty_like(order)
-    back[order] = np.arange(order.size)  # the caller's order of points
-    pg = KeplerianPeriodogram(frequency, power, t0[back], yt[back], dy, label, ecc=ecc[be],
-                              phase=bp, dof=dof)  # fmt: skip
+    back = np.argsort(order)  # the caller's order of points
+    pg = KeplerianPeriodogram(frequency, drop / float(np.sum(w * yt**2)), t0[back], yt[back], dy,
+                              label, ecc=ecc[be], phase=bp,
+                              dof=0.5 * (t.size - D.shape[1] - 2))  # fmt: skip
     if n_bootstrap > 0:
         gen = np.random.default_rng(rng)
         z = yt * np.sqrt(w)  # normalized residuals, redrawn and rescaled to each point
         maxima = np.empty(n_bootstrap)
         for b in range(n_bootstrap):
             yb = project(gen.choice(z, size=z.size, replace=True) / np.sqrt(w))
-            d, _, _ = _drops(t0, yb, w, starts, D, G, frequency, ecc, nph)
-            maxima[b] = d.max() / float(np.sum(w * yb**2))
-        pg.extent = float(n_bootstrap / np.sum(pg.tail(maxima)))
-        pg.bootstrap_max = maxima
-        pg.fap_levels = {f: pg.level(f) for f in FAP_LEVELS}
+            maxima[b] = _drops(t0, yb, w, starts, D, G, frequency, ecc, nph)[0].max() / float(
+                np.sum(w * yb**2))  # fmt: skip
+        _calibrate(pg, maxima)
     pg.seconds = time.perf_counter() - start
     return pg
