@@ -57,17 +57,20 @@ class Choice:
     variance_before: float
 
 
-def choose_epochs(
-    cov_vv: np.ndarray,
-    noise_var: float,
-    night: np.ndarray,
-    *,
-    cov_tv: np.ndarray | None = None,
-    var_theta: float | None = None,
-    per_night: int = 1,
-    count: int | None = None,
-    allowed: np.ndarray | None = None,
-) -> Choice:
+def _scores(cov: np.ndarray, noise_var: float, ctv: np.ndarray | None, vt: float):
+    """Each candidate's score: the fraction of the aimed parameter's variance one more
+    velocity there removes (with ``ctv``), else the information it adds about the
+    whole orbit, 0.5 ln(1 + var / s^2)."""
+    var = np.clip(np.diag(cov), 0.0, None)
+    if ctv is not None:
+        return ctv**2 / (var + noise_var) / vt if vt > 0 else np.zeros(cov.shape[0])
+    return 0.5 * np.log1p(var / noise_var)
+
+
+def choose_epochs(cov_vv: np.ndarray, noise_var: float, night: np.ndarray, *,
+                  cov_tv: np.ndarray | None = None, var_theta: float | None = None,
+                  per_night: int = 1, count: int | None = None,
+                  allowed: np.ndarray | None = None) -> Choice:  # fmt: skip
     """Greedy sequential design on Gaussian moments (see the module text).
 
     Parameters
@@ -105,17 +108,10 @@ def choose_epochs(
     if count is None:
         count = per_night * len(np.unique(night[ok]))
     used = {k: 0 for k in np.unique(night)}
-
-    def score():
-        var = np.clip(np.diag(cov), 0.0, None)
-        if aimed:
-            return ctv**2 / (var + noise_var) / vt if vt > 0 else np.zeros(n)
-        return 0.5 * np.log1p(var / noise_var)
-
-    first = np.where(ok, score(), np.nan)
+    first = np.where(ok, _scores(cov, noise_var, ctv, vt), np.nan)
     order, scores, after = [], [], []
     while len(order) < count and ok.any():
-        s = np.where(ok, score(), -np.inf)
+        s = np.where(ok, _scores(cov, noise_var, ctv, vt), -np.inf)
         j = int(np.argmax(s))
         k = cov[:, j].copy()
         denom = k[j] + noise_var
@@ -201,21 +197,48 @@ class Plan:
         return sorted(rows, key=lambda r: r["time"])
 
 
-def plan_epochs(
-    columns: Mapping[str, np.ndarray],
-    labels: list[str],
-    grid: SkyGrid,
-    *,
-    epoch: float,
-    time_offset: float,
-    instrument: str,
-    noise_var: float,
-    aim: str | None = None,
-    per_night: int = 1,
-    count: int | None = None,
-    draws: int = MAX_DRAWS,
-    rng: np.random.Generator | int | None = 0,
-) -> Plan:
+def _checked_aim(columns, labels, grid, instrument, aim) -> str:
+    """The aim (:func:`default_aim` when None), after checking it, the instrument and
+    that the star is observable at all."""
+    if aim is None:
+        aim = default_aim(columns, labels)
+    if aim != "all" and aim not in columns:
+        raise ValueError(f"unknown parameter {aim!r} to aim at")
+    if f"offset.{instrument}" not in columns:
+        raise ValueError(f"unknown instrument {instrument!r}")
+    if not grid.observable.any():
+        raise ValueError("the star is never observable in the window (night and airmass)")
+    return aim
+
+
+def _covariances(sub, labels, t, epoch, instrument, aim) -> tuple[np.ndarray, dict]:
+    """The posterior covariance of the velocities the instrument would measure at ``t``
+    and, unless the aim is ``all``, their covariances with the aimed parameter and its
+    variance (the keywords of :func:`choose_epochs`)."""
+    v = predict(sub, labels, t, epoch=epoch).curves["total"]
+    v = v + np.asarray(sub[f"offset.{instrument}"], float)[:, None]
+    vc = v - v.mean(axis=0)
+    m = vc.shape[0]
+    cov_vv = vc.T @ vc / (m - 1)
+    if aim == "all":
+        return cov_vv, {}
+    theta = np.asarray(sub[aim], float)
+    tc = theta - theta.mean()
+    return cov_vv, {"cov_tv": vc.T @ tc / (m - 1), "var_theta": float(tc @ tc / (m - 1))}
+
+
+def _on_grid(values: np.ndarray, cand: np.ndarray, n: int) -> np.ndarray:
+    """Values at the candidate times spread onto the whole grid (NaN elsewhere)."""
+    out = np.full(n, np.nan)
+    out[cand] = values
+    return out
+
+
+def plan_epochs(columns: Mapping[str, np.ndarray], labels: list[str], grid: SkyGrid, *,
+                epoch: float, time_offset: float, instrument: str, noise_var: float,
+                aim: str | None = None, per_night: int = 1, count: int | None = None,
+                draws: int = MAX_DRAWS, rng: np.random.Generator | int | None = 0,
+                ) -> Plan:  # fmt: skip
     """Choose observing epochs on ``grid`` from posterior samples ``columns`` (see the
     module text).
 
@@ -245,39 +268,25 @@ def plan_epochs(
         Posterior draws used (a seeded random subset).
     rng : Generator or int
         Chooses the draws.
+
+    Returns
+    -------
+    Plan
+        The chosen times in order, each one's score and the aimed variance after it.
     """
-    if aim is None:
-        aim = default_aim(columns, labels)
-    if aim != "all" and aim not in columns:
-        raise ValueError(f"unknown parameter {aim!r} to aim at")
-    if f"offset.{instrument}" not in columns:
-        raise ValueError(f"unknown instrument {instrument!r}")
-    if not grid.observable.any():
-        raise ValueError("the star is never observable in the window (night and airmass)")
+    aim = _checked_aim(columns, labels, grid, instrument, aim)
     rng = np.random.default_rng(rng)
     n_all = len(next(iter(columns.values())))
     idx = np.sort(rng.choice(n_all, size=min(draws, n_all), replace=False))
     sub = {k: np.asarray(v)[idx] for k, v in columns.items()}
     cand = np.flatnonzero(grid.observable)
     t = grid.bjd_tdb[cand] - time_offset
-    v = predict(sub, labels, t, epoch=epoch).curves["total"]
-    v = v + np.asarray(sub[f"offset.{instrument}"], float)[:, None]
-    vc = v - v.mean(axis=0)
-    m = vc.shape[0]
-    cov_vv = vc.T @ vc / (m - 1)
-    kw = {}
-    if aim != "all":
-        theta = np.asarray(sub[aim], float)
-        tc = theta - theta.mean()
-        kw = {"cov_tv": vc.T @ tc / (m - 1), "var_theta": float(tc @ tc / (m - 1))}
+    cov_vv, kw = _covariances(sub, labels, t, epoch, instrument, aim)
     choice = choose_epochs(cov_vv, noise_var, grid.night[cand], per_night=per_night,
                            count=count, **kw)  # fmt: skip
-    first = np.full(grid.utc_jd.size, np.nan)
-    first[cand] = choice.first_scores
-    vsd = np.full(grid.utc_jd.size, np.nan)
-    vsd[cand] = np.sqrt(np.diag(cov_vv))
-    time = np.full(grid.utc_jd.size, np.nan)
-    time[cand] = t
+    n = grid.utc_jd.size
+    first, vsd, time = (_on_grid(x, cand, n) for x in (choice.first_scores,
+                                                      np.sqrt(np.diag(cov_vv)), t))  # fmt: skip
     on_grid = Choice(cand[choice.order], choice.scores, choice.variance_after, first,
                      choice.variance_before)  # fmt: skip
     return Plan(grid, time, aim, instrument, float(np.sqrt(noise_var)), on_grid, vsd,
