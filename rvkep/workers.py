@@ -184,7 +184,22 @@ def run_tasks(fn: Callable, tasks: Sequence[tuple[Hashable, tuple]],
     if executor is None:
         executor = own = dask_client(scheduler) if scheduler else local_pool(n)
     local = own is not None and not is_dask(own)
-    window = n if local else len(tasks)
+    try:
+        _submit_all(fn, tasks, on_result, executor, own if local else None, n)
+    finally:
+        if own is not None:
+            # a Dask Client is closed, never shut down: that would stop the cluster
+            if is_dask(own):
+                own.close()
+            else:
+                own.shutdown(wait=True, cancel_futures=True)
+
+
+def _submit_all(fn, tasks, on_result, executor, pool, n: int) -> None:
+    """Submit the tasks (to a local ``pool`` no more than ``n`` at a time, so nothing
+    queued needs cancelling; to any other executor all at once) and hand each result
+    on as it ends; on Ctrl-C, stop them (:func:`_stop`) and re-raise."""
+    window = n if pool is not None else len(tasks)
     queue = list(tasks)
     running: dict = {}
 
@@ -200,7 +215,7 @@ def run_tasks(fn: Callable, tasks: Sequence[tuple[Hashable, tuple]],
             while queue and len(running) < window:
                 key, args = queue.pop(0)
                 with sigint_blocked():  # a worker starting inherits the block
-                    fut = (executor.submit(_in_worker, fn, *args) if local
+                    fut = (executor.submit(_in_worker, fn, *args) if pool is not None
                            else executor.submit(fn, *args))  # fmt: skip
                 running[fut] = key
             for fut in _first_completed(executor, list(running)):
@@ -208,17 +223,10 @@ def run_tasks(fn: Callable, tasks: Sequence[tuple[Hashable, tuple]],
     except KeyboardInterrupt:
         previous = signal.signal(signal.SIGINT, signal.SIG_IGN)  # the stop is not interrupted
         try:
-            _stop(executor, own if local else None, running, finish)
+            _stop(executor, pool, running, finish)
         finally:
             signal.signal(signal.SIGINT, previous)
         raise
-    finally:
-        if own is not None:
-            # a Dask Client is closed, never shut down: that would stop the cluster
-            if is_dask(own):
-                own.close()
-            else:
-                own.shutdown(wait=True, cancel_futures=True)
 
 
 def _stop(executor, pool, running: dict, finish) -> None:
