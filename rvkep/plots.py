@@ -165,6 +165,7 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
     Parameters
     ----------
     data : RVData
+        The velocities.
     curve_t, curve : arrays
         Model times and velocities (offsets removed).
     band : (low, high) arrays, optional
@@ -180,6 +181,10 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
     removed : str
         What was taken out of the velocities besides the offsets (e.g. the trend),
         said on the figure.
+
+    Returns
+    -------
+    Figure
     """
     panels = ([3] + ([1.6] if activity is not None else []) + ([0.7] if band is not None else [])
               + ([1] if residuals is not None else []))  # fmt: skip
@@ -192,6 +197,27 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
                         lw=0.6, edgecolor=BAND_COLOUR, label="68% of the posterior")  # fmt: skip
     ax.plot(curve_t - t0, curve, color=MODEL_COLOUR, lw=0.9,
             label="model" if activity is None else "companions' model")  # fmt: skip
+    styles = _points(ax, axes[1] if activity is not None else None, data, offsets, activity, t0)
+    ax.set_ylabel(VELOCITY_LABEL)
+    ax.legend(ncol=5, loc="lower left", bbox_to_anchor=(0.0, 1.0), borderaxespad=0.2)
+    what = "instrument offsets" + (f" and {removed}" if removed else "")
+    ax.text(0.995, 0.02, f"{what} removed", transform=ax.transAxes, ha="right", va="bottom",
+            fontsize=8, color="#5a6268")  # fmt: skip
+    xlabel = f"time - {t0:.0f} [d]" if t0 else "time [d]"
+    if activity is not None:
+        _activity_panel(axes[1], activity, t0)
+    if band is not None:
+        _spread_panel(axes[1 + (activity is not None)], curve_t - t0, band)
+    if residuals is not None:
+        _left_over(axes[-1], data.time - t0, residuals, data, styles,
+                   (curve_t[0] - t0, curve_t[-1] - t0))  # fmt: skip
+    axes[-1].set_xlabel(xlabel)
+    return fig
+
+
+def _points(ax, activity_ax, data, offsets, activity, t0: float) -> list:
+    """Each instrument's velocities less its offset (and, on ``activity_ax``, less the
+    companions too); returns each instrument's (mask, style) for the residual panel."""
     styles = []
     for k, name in enumerate(data.instruments):
         m = data.instrument == name
@@ -200,36 +226,29 @@ def plot_timeseries(data, curve_t, curve, band=None, residuals=None, offsets=Non
         styles.append((m, st))
         ax.errorbar(data.time[m] - t0, data.rv[m] - off, data.err[m], ls="none", ms=4,
                     mec="white", mew=0.4, elinewidth=0.8, label=name, **st)  # fmt: skip
-        if activity is not None:
-            axes[1].errorbar(data.time[m] - t0, activity["data"][m], data.err[m], ls="none",
-                             ms=4, mec="white", mew=0.4, elinewidth=0.8, **st)  # fmt: skip
-    ax.set_ylabel(VELOCITY_LABEL)
-    ax.legend(ncol=5, loc="lower left", bbox_to_anchor=(0.0, 1.0), borderaxespad=0.2)
-    what = "instrument offsets" + (f" and {removed}" if removed else "")
-    ax.text(0.995, 0.02, f"{what} removed", transform=ax.transAxes, ha="right", va="bottom",
-            fontsize=8, color="#5a6268")  # fmt: skip
-    xlabel = f"time - {t0:.0f} [d]" if t0 else "time [d]"
-    row = 1
-    if activity is not None:
-        a_ax = axes[1]
-        lo, hi = activity["band"]
-        a_ax.fill_between(activity["time"] - t0, lo, hi, color=ACTIVITY_COLOUR, alpha=0.25, lw=0)
-        a_ax.plot(activity["time"] - t0, activity["mean"], color=ACTIVITY_COLOUR, lw=0.9,
-                  label="activity (Gaussian process) given the data, +-1 sigma")  # fmt: skip
-        a_ax.set_ylabel("minus companions [m/s]")
-        a_ax.legend(fontsize=8, loc="upper left")
-        row = 2
-    if band is not None:
-        s_ax = axes[row]
-        s_ax.fill_between(curve_t - t0, 0, band[1] - band[0], color=BAND_COLOUR,
-                          alpha=BAND_ALPHA, lw=0.8, edgecolor=BAND_COLOUR)  # fmt: skip
-        s_ax.set_ylabel("model spread\n68% [m/s]", fontsize=8)
-        s_ax.set_ylim(bottom=0)
-    if residuals is not None:
-        _left_over(axes[-1], data.time - t0, residuals, data, styles,
-                   (curve_t[0] - t0, curve_t[-1] - t0))  # fmt: skip
-    axes[-1].set_xlabel(xlabel)
-    return fig
+        if activity_ax is not None:
+            activity_ax.errorbar(data.time[m] - t0, activity["data"][m], data.err[m],
+                                 ls="none", ms=4, mec="white", mew=0.4, elinewidth=0.8,
+                                 **st)  # fmt: skip
+    return styles
+
+
+def _activity_panel(ax, activity: dict, t0: float) -> None:
+    """The correlated signal apart from the companions: its mean and +-1 sigma band."""
+    lo, hi = activity["band"]
+    ax.fill_between(activity["time"] - t0, lo, hi, color=ACTIVITY_COLOUR, alpha=0.25, lw=0)
+    ax.plot(activity["time"] - t0, activity["mean"], color=ACTIVITY_COLOUR, lw=0.9,
+            label="activity (Gaussian process) given the data, +-1 sigma")  # fmt: skip
+    ax.set_ylabel("minus companions [m/s]")
+    ax.legend(fontsize=8, loc="upper left")
+
+
+def _spread_panel(ax, x: np.ndarray, band) -> None:
+    """The posterior band's width over time: where the orbit is least pinned down."""
+    ax.fill_between(x, 0, band[1] - band[0], color=BAND_COLOUR, alpha=BAND_ALPHA, lw=0.8,
+                    edgecolor=BAND_COLOUR)  # fmt: skip
+    ax.set_ylabel("model spread\n68% [m/s]", fontsize=8)
+    ax.set_ylim(bottom=0)
 
 
 @_styled
