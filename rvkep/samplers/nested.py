@@ -176,38 +176,45 @@ class NestedSampler(Sampler):
                                maxcall=opts.max_calls, resume=resumed,
                                checkpoint_file=None if path is None else str(path),
                                checkpoint_every=30)  # fmt: skip
-        res = sampler.results
-        seconds = time.perf_counter() - t0
-        theta = np.asarray(res.samples, float)
-        logw = np.asarray(res.logwt, float) - float(res.logz[-1])
-        weights = np.exp(logw - logw.max())
-        weights /= weights.sum()
-        with np.errstate(all="ignore"):
-            log_prob = np.asarray(res.logl, float) + model.log_prior(theta)
-        keep = weights > 0
-        theta, log_prob, weights = theta[keep], log_prob[keep], weights[keep] / weights[keep].sum()
-        ln_z, ln_z_err = float(res.logz[-1]), float(res.logzerr[-1])
-        calls = int(np.sum(res.ncall))
-        done = opts.max_calls is None or calls < opts.max_calls
-        best_seen = float(np.max(res.logl))
-        missed = bool(np.isfinite(reference) and best_seen < reference - max(3.0, ndim / 2))
-        info = {
-            "sampler": "nested (dynesty, static, multi-ellipsoid bounds, random slices)",
-            "live_points": opts.n_live(ndim),
-            "iterations": int(res.niter),
-            "likelihood_calls": calls,
-            "ln_z": ln_z,
-            "ln_z_err": ln_z_err,
-            "dlogz": opts.dlogz,
-            "effective_samples": float(1.0 / np.sum(weights**2)),
-            "seconds": seconds,
-            "max_ln_l": best_seen,
-            "start_ln_l": reference,
-            "missed_mode": missed,
-            "converged": bool(done and not missed),
-            "criterion": f"remaining evidence below dlogz = {opts.dlogz:g}, and the best "
-            "fit's likelihood reached",
-            "resumed": resumed,
-        }
-        return SampleSet(model, theta, log_prob, weights, bool(done and not missed), info,
-                         {"ln_z": ln_z, "ln_z_err": ln_z_err, "results": res})  # fmt: skip
+        return _sample_set(model, sampler.results, opts, reference,
+                           time.perf_counter() - t0, resumed)  # fmt: skip
+
+
+def _sample_set(model, res, opts, reference: float, seconds: float, resumed: bool) -> SampleSet:
+    """dynesty's results as weighted samples (weights summing to one, empty ones left
+    out), ln Z, and the diagnostics: converged when the remaining evidence is below
+    ``dlogz`` within the call cap and the best fit's likelihood was reached."""
+    ndim = model.ndim
+    theta = np.asarray(res.samples, float)
+    logw = np.asarray(res.logwt, float) - float(res.logz[-1])
+    weights = np.exp(logw - logw.max())
+    weights /= weights.sum()
+    with np.errstate(all="ignore"):
+        log_prob = np.asarray(res.logl, float) + model.log_prior(theta)
+    keep = weights > 0
+    theta, log_prob, weights = theta[keep], log_prob[keep], weights[keep] / weights[keep].sum()
+    ln_z, ln_z_err = float(res.logz[-1]), float(res.logzerr[-1])
+    calls = int(np.sum(res.ncall))
+    done = opts.max_calls is None or calls < opts.max_calls
+    best_seen = float(np.max(res.logl))
+    missed = bool(np.isfinite(reference) and best_seen < reference - max(3.0, ndim / 2))
+    info = {
+        "sampler": "nested (dynesty, static, multi-ellipsoid bounds, random slices)",
+        "live_points": opts.n_live(ndim),
+        "iterations": int(res.niter),
+        "likelihood_calls": calls,
+        "ln_z": ln_z,
+        "ln_z_err": ln_z_err,
+        "dlogz": opts.dlogz,
+        "effective_samples": float(1.0 / np.sum(weights**2)),
+        "seconds": seconds,
+        "max_ln_l": best_seen,
+        "start_ln_l": reference,
+        "missed_mode": missed,
+        "converged": bool(done and not missed),
+        "criterion": f"remaining evidence below dlogz = {opts.dlogz:g}, and the best "
+        "fit's likelihood reached",
+        "resumed": resumed,
+    }
+    return SampleSet(model, theta, log_prob, weights, bool(done and not missed), info,
+                     {"ln_z": ln_z, "ln_z_err": ln_z_err, "results": res})  # fmt: skip
