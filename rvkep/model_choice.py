@@ -28,6 +28,7 @@ import numpy as np
 from rvkep.data import RVData
 from rvkep.errors import OptionError, RvkepError
 from rvkep.options import TREND_DEGREES, parse_trend
+from rvkep.rotation import near_rotation, rotation_notes, rotation_prior, star_rotation
 
 if TYPE_CHECKING:
     from rvkep.pipeline import AnalyzeOptions
@@ -161,13 +162,7 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
     chosen_notes = [n for o in outcomes for n in (o[5] if len(o) > 5 else [])]
     if len(outcomes) > 1:
         per_degree, _ = rules.nested_refits(per_degree)
-    cands = []  # (degree index, companion count)
-    for d, (o, fits) in enumerate(zip(outcomes, per_degree, strict=True)):
-        if fixed:
-            cands.append((d, len(fits) - 1))
-        else:
-            n_sig = min(len(o[0].significant), len(fits) - 1)
-            cands.extend((d, k) for k in range(n_sig + 1))
+    cands = _candidates(outcomes, per_degree, fixed)
     chosen = cands[rules.occam_choice([per_degree[d][k] for d, k in cands])]
     d, k = chosen
     fit = per_degree[d][k]
@@ -201,21 +196,42 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
     else:
         message = (f"search: {len(search_result.significant)} significant signal(s); {k} "
                    "companion(s) kept after the BIC comparison")  # fmt: skip
+    rows = _model_rows(per_degree, cands, (d, k))
+    if not fixed:
+        notes += rules.alternatives([per_degree[a][b] for a, b in cands], fit)
+    prefix = f"{k} companion(s), degree {fit.model.trend}:"  # the chosen model's own stage
+    notes += [n for n in chosen_notes if n.startswith(prefix)]
+    return search_result, fit, comparison, message, fits, rows, notes, harmonics
+
+
+def _candidates(outcomes: list, per_degree: list, fixed: bool) -> list[tuple[int, int]]:
+    """The models that compete, as (degree index, companion count): at each degree every
+    count up to the significant signals, or only the count given."""
+    cands = []
+    for d, (o, fits) in enumerate(zip(outcomes, per_degree, strict=True)):
+        if fixed:
+            cands.append((d, len(fits) - 1))
+        else:
+            n_sig = min(len(o[0].significant), len(fits) - 1)
+            cands.extend((d, k) for k in range(n_sig + 1))
+    return cands
+
+
+def _model_rows(per_degree: list, cands: list, chosen: tuple[int, int]) -> list[dict]:
+    """One row per competing model for results.json's ``model_comparison``."""
+    from rvkep.choice import periods_of
+
     best_bic = min(per_degree[a][b].bic for a, b in cands)
     rows = []
     for a, b in cands:
         f = per_degree[a][b]
         rows.append({
             "degree": f.model.trend, "n_companions": len(f.model.companions),
-            "periods_d": rules.periods_of(f), "n_free": f.n_free,
+            "periods_d": periods_of(f), "n_free": f.n_free,
             "log_likelihood": f.log_likelihood, "bic": f.bic, "delta_bic": f.bic - best_bic,
-            "chosen": (a, b) == (d, k),
+            "chosen": (a, b) == chosen,
         })  # fmt: skip
-    if not fixed:
-        notes += rules.alternatives([per_degree[a][b] for a, b in cands], fit)
-    prefix = f"{k} companion(s), degree {fit.model.trend}:"  # the chosen model's own stage
-    notes += [n for n in chosen_notes if n.startswith(prefix)]
-    return search_result, fit, comparison, message, fits, rows, notes, harmonics
+    return rows
 
 
 def _selection_notes(search_result, fit, comparison) -> list[str]:
@@ -253,46 +269,11 @@ def _selection_notes(search_result, fit, comparison) -> list[str]:
                     f"a model with {r['n_companions']} companions has a BIC lower by "
                     f"{chosen['bic'] - r['bic']:.1f} but was not chosen (its last periodogram "
                     "peak was not significant)"
-                    + _near_rotation(fit, r["periods_d"])
+                    + near_rotation(fit, r["periods_d"])
                     + "; inspect it before trusting the number"
                 )
                 break
     return notes
-
-
-def _rotation_notes(fit, rotation: float) -> list[str]:
-    """Notes on companions whose period lies within 10% of the star's rotation period
-    or its half (where spots put their signal)."""
-    notes = []
-    remedy = "" if fit.model.noise == "gp" else "; --noise gp models the activity"
-    for c in fit.model.companions:
-        P = fit.params[f"{c.label}.period"]
-        near = _rotation_match(P, rotation)
-        if near is not None:
-            what, at = near
-            notes.append(f"the period of {c.label} ({P:.4g} d) lies near the star's {what} "
-                         f"({at:.4g} d): it may be activity{remedy}")  # fmt: skip
-    return notes
-
-
-def _rotation_match(period: float, rotation: float) -> tuple[str, float] | None:
-    """("rotation period" or "half rotation period", that period) when ``period`` lies
-    within 10% of the rotation period or of half of it (where spots put their signal)."""
-    for share, what in ((1.0, "rotation period"), (0.5, "half rotation period")):
-        if abs(period / (share * rotation) - 1.0) < 0.1:
-            return what, share * rotation
-    return None
-
-
-def _near_rotation(fit, periods) -> str:
-    """', and its period X d lies near the activity's rotation period' when a noise
-    model with a rotation period has one within 10% of a period (or of half of it)."""
-    p = fit.params.get("noise.rotation_period")
-    for P in periods if p is not None else ():
-        near = _rotation_match(P, p)
-        if near is not None:
-            return f", and its period {P:.4g} d lies near the activity's {near[0]} {near[1]:.4g} d"
-    return ""
 
 
 def _comparison_rows(fits, chosen: int, search_result) -> list[dict]:
@@ -316,32 +297,16 @@ def _comparison_rows(fits, chosen: int, search_result) -> list[dict]:
     return rows
 
 
-def star_rotation(opts: AnalyzeOptions, spec=None) -> tuple[float, float] | None:
-    """(period, sd) of the star's rotation: ``--star-rotation`` (with its error, default
-    10% of it) over the model file's ``[star] rotation``; None when neither gives it."""
-    period, err = opts.star_rotation, opts.star_rotation_err
-    if period is None and spec is not None and spec.star_rotation is not None:
-        period, err = spec.star_rotation
-    if period is None:
-        return None
-    return float(period), float(err) if err else 0.1 * float(period)
-
-
-def _rotation_prior(base, rotation: tuple[float, float], opts: AnalyzeOptions):
-    """The GP's rotation period with a normal prior at the given rotation (truncated
-    at 5 sd, and above 0.05 d), starting there; other noise models unchanged."""
-    from rvkep.priors import TruncatedNormal
-
-    P, sd = rotation
-    pars = list(base.noise_parameters)
-    names = [p.name for p in pars]
-    if "rotation_period" not in names:
+def _with_rotation(base, rotation, opts: AnalyzeOptions):
+    """``base`` with the star's rotation as the prior of its GP's rotation period (said
+    on the terminal); unchanged without a rotation or a GP."""
+    if rotation is None:
         return base
-    k = names.index("rotation_period")
-    prior = TruncatedNormal(P, sd, max(0.05, P - 5 * sd), P + 5 * sd)
-    pars[k] = replace(pars[k], prior=prior, start=P)
-    _say(opts, f"rotation period: normal prior {P:g} +- {sd:g} d on the activity signal")
-    return replace(base, noise_parameters=pars)
+    given = rotation_prior(base, rotation)
+    if given is not base:
+        _say(opts, f"rotation period: normal prior {rotation[0]:g} +- {rotation[1]:g} d "
+             "on the activity signal")  # fmt: skip
+    return given
 
 
 @dataclass
@@ -385,8 +350,7 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
         n_terms = len(base.linear_names) - len(base.instruments) - base.trend
         _say(opts, f"decorrelating against {', '.join(columns)} ({n_terms} coefficient(s))")
     rotation = star_rotation(opts, spec)
-    if rotation is not None:
-        base = _rotation_prior(base, rotation, opts)
+    base = _with_rotation(base, rotation, opts)
     base = base.noise_model.initial(base)  # start values of its own parameters
     if base.noise_parameters:
         _say(
@@ -420,7 +384,7 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
     choice.notes = choice.extra_notes + _selection_notes(search_result, choice.fit,
                                                          choice.comparison)  # fmt: skip
     if rotation is not None:
-        choice.notes += _rotation_notes(choice.fit, rotation[0])
+        choice.notes += rotation_notes(choice.fit, rotation[0])
     for note in choice.notes:
         _say(opts, f"note: {note}")
     return choice
