@@ -325,24 +325,9 @@ def run_population(batch_dir: str | Path, out: str | Path, *, period_range=None,
     if n_comp:
         beta = beta_population(stars, rng=seed)
         hist = histogram_population(stars, rng=seed + 1)
-        labels = [(s.name, c["label"]) for s in stars for c in s.companions]
-        doc["eccentricity"] = {
-            "distribution": "beta", "a": _estimate(beta["a"]), "b": _estimate(beta["b"]),
-            "mean": _estimate(beta["mean"]),
-            "histogram": {"edges": hist["edges"].tolist(),
-                          "density": [_estimate(hist["density"][:, k]) for k in range(N_BINS)]},
-            "shrunk": [{"star": n, "companion": L, "ecc": e}
-                       for (n, L), e in zip(labels, beta["shrunk"], strict=True)],
-            "method": "importance reweighting of each star's samples, sampling prior "
-                      "divided out (Hogg, Myers & Bovy 2010)",
-        }  # fmt: skip
+        doc["eccentricity"] = _eccentricity_section(stars, beta, hist)
     occ = occurrence(stars, period_range, mass_range)
-    doc["occurrence"] = {
-        "fraction": occ["fraction"], "interval95": occ["interval95"], "n_hosts": occ["n_hosts"],
-        "hosts": occ["hosts"], "period_range_d": list(period_range),
-        "msini_range_mjup": list(mass_range), "completeness_from": occ["completeness_from"],
-        "completeness": occ["completeness"], "stars_without_limits": occ["without_limits"],
-    }  # fmt: skip
+    doc["occurrence"] = _occurrence_section(occ, period_range, mass_range)
     warnings_ = []
     if occ["without_limits"]:
         warnings_.append(f"{len(occ['without_limits'])} star(s) without detection limits over "
@@ -357,17 +342,52 @@ def run_population(batch_dir: str | Path, out: str | Path, *, period_range=None,
     _refresh_index(Path(batch_dir))
     for w in warnings_:
         say(f"warning: {w}")
+    say(_headline(doc, period_range, mass_range, len(stars), out))
+    return doc
+
+
+def _eccentricity_section(stars, beta: dict, hist: dict) -> dict:
+    """population.json's ``eccentricity``: the Beta and histogram populations and each
+    companion's eccentricity shrunk towards the population."""
+    labels = [(s.name, c["label"]) for s in stars for c in s.companions]
+    return {
+        "distribution": "beta", "a": _estimate(beta["a"]), "b": _estimate(beta["b"]),
+        "mean": _estimate(beta["mean"]),
+        "histogram": {"edges": hist["edges"].tolist(),
+                      "density": [_estimate(hist["density"][:, k]) for k in range(N_BINS)]},
+        "shrunk": [{"star": n, "companion": L, "ecc": e}
+                   for (n, L), e in zip(labels, beta["shrunk"], strict=True)],
+        "method": "importance reweighting of each star's samples, sampling prior "
+                  "divided out (Hogg, Myers & Bovy 2010)",
+    }  # fmt: skip
+
+
+def _occurrence_section(occ: dict, period_range, mass_range) -> dict:
+    """population.json's ``occurrence``: the fraction of stars with a companion in the
+    box, with the completeness it was corrected by."""
+    return {
+        "fraction": occ["fraction"], "interval95": occ["interval95"], "n_hosts": occ["n_hosts"],
+        "hosts": occ["hosts"], "period_range_d": list(period_range),
+        "msini_range_mjup": list(mass_range), "completeness_from": occ["completeness_from"],
+        "completeness": occ["completeness"], "stars_without_limits": occ["without_limits"],
+    }  # fmt: skip
+
+
+def _headline(doc: dict, period_range, mass_range, n_stars: int, out: Path) -> str:
+    """The terminal's summary of a population run: the eccentricity population (when
+    there are companions) and the occurrence."""
+    lines = []
     if "eccentricity" in doc:
         m = doc["eccentricity"]["mean"]
-        say(f"eccentricity: Beta(a = {doc['eccentricity']['a']['median']:.3g}, b = "
-            f"{doc['eccentricity']['b']['median']:.3g}), mean {m['median']:.3f} "
-            f"+{m['plus']:.3f} -{m['minus']:.3f}")  # fmt: skip
-    fr = doc["occurrence"]["fraction"]
-    say(f"occurrence in P {period_range[0]:g}-{period_range[1]:g} d x m sin i "
-        f"{mass_range[0]:g}-{mass_range[1]:g} M_Jup: {fr['median']:.3f} +{fr['plus']:.3f} "
-        f"-{fr['minus']:.3f} ({occ['n_hosts']} host(s) of {len(stars)}); "
-        f"written to {out}/")  # fmt: skip
-    return doc
+        lines.append(f"eccentricity: Beta(a = {doc['eccentricity']['a']['median']:.3g}, b = "
+                     f"{doc['eccentricity']['b']['median']:.3g}), mean {m['median']:.3f} "
+                     f"+{m['plus']:.3f} -{m['minus']:.3f}")  # fmt: skip
+    fr, occ = doc["occurrence"]["fraction"], doc["occurrence"]
+    lines.append(f"occurrence in P {period_range[0]:g}-{period_range[1]:g} d x m sin i "
+                 f"{mass_range[0]:g}-{mass_range[1]:g} M_Jup: {fr['median']:.3f} "
+                 f"+{fr['plus']:.3f} -{fr['minus']:.3f} ({occ['n_hosts']} host(s) of "
+                 f"{n_stars}); written to {out}/")  # fmt: skip
+    return "\n".join(lines)
 
 
 def _refresh_index(batch: Path) -> None:
