@@ -194,6 +194,52 @@ _COST = {"white_noise_profile_grad": 3.0, "keplerian_power": 2.4, "white_noise_l
          "white_noise_loglike": 1.5}  # fmt: skip
 
 
+def _shares(jobs: list[tuple[str, str]], workers: int) -> list[list[tuple[str, str]]]:
+    """The jobs split between ``workers``: longest first, each to the least loaded."""
+    shares: list[list[tuple[str, str]]] = [[] for _ in range(workers)]
+    loads = [0.0] * workers
+    for job in jobs:
+        k = loads.index(min(loads))
+        shares[k].append(job)
+        loads[k] += _COST.get(job[0], 0.5)
+    return shares
+
+
+def _compile_in_workers(shares: list[list[tuple[str, str]]]):
+    """Compile each share in a fresh Python process; yields once per kernel compiled
+    (each worker prints a line per kernel). The workers are killed if this stops early."""
+    import selectors
+    import subprocess
+    import sys
+
+    code = "import sys; from rvkep._kernel_cache import _compile_listed; " \
+        "_compile_listed(sys.argv[1:])"
+    procs = [
+        subprocess.Popen(
+            [sys.executable, "-c", code, *(f"{n}={s}" for n, s in share)],
+            stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True,
+        )
+        for share in shares
+    ]
+    try:
+        sel = selectors.DefaultSelector()
+        for p in procs:
+            sel.register(p.stdout, selectors.EVENT_READ)
+        open_streams = len(procs)
+        while open_streams:
+            for key, _ in sel.select():
+                if key.fileobj.readline():
+                    yield
+                else:
+                    sel.unregister(key.fileobj)
+                    open_streams -= 1
+    finally:
+        for p in procs:
+            if p.poll() is None:
+                p.kill()
+            p.wait()
+
+
 def prepare(say=None, workers: int = 2) -> int:
     """Compile the kernels the cache lacks, before a run needs them, and cache them.
 
@@ -203,9 +249,6 @@ def prepare(say=None, workers: int = 2) -> int:
     here, one after the other. ``say(text, done, total)`` reports progress. Returns how
     many kernels were missing.
     """
-    import subprocess
-    import sys
-
     jobs = sorted(missing(), key=lambda j: -_COST.get(j[0], 0.5))
     if not jobs:
         return 0
@@ -221,42 +264,9 @@ def prepare(say=None, workers: int = 2) -> int:
     tick()
     workers = min(workers, os.cpu_count() or 1, len(jobs))
     if folder is not None and workers >= 2:
-        shares: list[list[tuple[str, str]]] = [[] for _ in range(workers)]
-        loads = [0.0] * workers
-        for job in jobs:  # longest first, each to the least loaded worker
-            k = loads.index(min(loads))
-            shares[k].append(job)
-            loads[k] += _COST.get(job[0], 0.5)
-        code = "import sys; from rvkep._kernel_cache import _compile_listed; " \
-            "_compile_listed(sys.argv[1:])"
-        procs = [
-            subprocess.Popen(
-                [sys.executable, "-c", code, *(f"{n}={s}" for n, s in share)],
-                stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, text=True,
-            )
-            for share in shares
-        ]
-        try:
-            import selectors
-
-            sel = selectors.DefaultSelector()
-            for p in procs:
-                sel.register(p.stdout, selectors.EVENT_READ)
-            open_streams = len(procs)
-            while open_streams:
-                for key, _ in sel.select():
-                    line = key.fileobj.readline()
-                    if not line:
-                        sel.unregister(key.fileobj)
-                        open_streams -= 1
-                    else:
-                        done += 1
-                        tick()
-        finally:
-            for p in procs:
-                if p.poll() is None:
-                    p.kill()
-                p.wait()
+        for _ in _compile_in_workers(_shares(jobs, workers)):
+            done += 1
+            tick()
     # whatever the workers did not leave in the cache (or all, without workers)
     rest = missing() if done else jobs
     done = len(jobs) - len(rest)
