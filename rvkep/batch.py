@@ -93,54 +93,16 @@ def read_targets(path: str | Path) -> list[Target]:
     ``problem`` set, and the batch runs the others. Data patterns that match no file
     are not checked here either: that target fails when it runs.
     """
-    import io
-
-    from rvkep.inputs import read_text
-
     path = Path(path)
-    text = read_text(path, DataError, "a target list")
-    rows: list[tuple[int, list[str]]] = []  # (first line of the row, cells)
-    reader = csv.reader(io.StringIO(text, newline=""))
-    last = 0
-    try:
-        for row in reader:
-            first, last = last + 1, reader.line_num
-            if not row or not "".join(row).strip() or row[0].lstrip().startswith("#"):
-                continue
-            rows.append((first, row))
-    except csv.Error as exc:
-        raise DataError(f"{path}, line {reader.line_num}: {exc}") from None
-    if not rows:
-        raise DataError(f"{path}: empty target list")
-    header = [h.strip().lower() for h in rows[0][1]]
-    missing = [c for c in _REQUIRED if c not in header]
-    if missing:
-        raise DataError(f"{path}, line {rows[0][0]}: missing column(s) {', '.join(missing)}")
-    known = ["name", "data", *(o.name for o in columns())]
-    unknown = [c for c in header if c not in known]
-    if unknown:
-        import difflib
-
-        close = difflib.get_close_matches(unknown[0], known, n=1)
-        hint = f" (did you mean {close[0]}?)" if close else ""
-        raise DataError(f"{path}, line {rows[0][0]}: unknown column(s) "
-                        f"{', '.join(unknown)}{hint}")  # fmt: skip
+    rows = _list_rows(path)
+    header = _checked_header(path, rows[0])
     targets, names = [], set()
     for line, row in rows[1:]:
         where = f"{path}, line {line}"
         if len(row) != len(header):
             raise DataError(f"{where}: {len(row)} cells where the header has {len(header)}")
         rec = {h: c.strip() for h, c in zip(header, row, strict=True)}
-        name = rec["name"]
-        problem = _name_problem(name)
-        if problem is None and name in names:
-            problem = f"target {name!r} listed twice"
-        if problem is not None:
-            safe = shown(name).strip("'").replace("/", "_").replace("\\", "_").lstrip(".")
-            safe = safe or f"line-{line}"
-            while safe in names:
-                safe += f"@line{line}"
-            name = safe
+        name, problem = _unique_name(rec["name"], names, line)
         names.add(name)
         try:
             target = _target_from(rec, name, path.parent, line)
@@ -153,6 +115,65 @@ def read_targets(path: str | Path) -> list[Target]:
     if not targets:
         raise DataError(f"{path}: no targets")
     return targets
+
+
+def _list_rows(path: Path) -> list[tuple[int, list[str]]]:
+    """The list's rows that are not blank or comments, each with its first line."""
+    import io
+
+    from rvkep.inputs import read_text
+
+    text = read_text(path, DataError, "a target list")
+    rows: list[tuple[int, list[str]]] = []
+    reader = csv.reader(io.StringIO(text, newline=""))
+    last = 0
+    try:
+        for row in reader:
+            first, last = last + 1, reader.line_num
+            if not row or not "".join(row).strip() or row[0].lstrip().startswith("#"):
+                continue
+            rows.append((first, row))
+    except csv.Error as exc:
+        raise DataError(f"{path}, line {reader.line_num}: {exc}") from None
+    if not rows:
+        raise DataError(f"{path}: empty target list")
+    return rows
+
+
+def _checked_header(path: Path, first: tuple[int, list[str]]) -> list[str]:
+    """The header's column names, lower case, after checking that the required ones are
+    there and every other is an option's column (with "did you mean" for a near miss)."""
+    line, cells = first
+    header = [h.strip().lower() for h in cells]
+    missing = [c for c in _REQUIRED if c not in header]
+    if missing:
+        raise DataError(f"{path}, line {line}: missing column(s) {', '.join(missing)}")
+    known = ["name", "data", *(o.name for o in columns())]
+    unknown = [c for c in header if c not in known]
+    if unknown:
+        import difflib
+
+        close = difflib.get_close_matches(unknown[0], known, n=1)
+        hint = f" (did you mean {close[0]}?)" if close else ""
+        raise DataError(f"{path}, line {line}: unknown column(s) "
+                        f"{', '.join(unknown)}{hint}")  # fmt: skip
+    return header
+
+
+def _unique_name(name: str, names: set, line: int) -> tuple[str, str | None]:
+    """A target's folder name and its problem (a bad name or one listed twice): a name
+    with a problem is replaced by a safe one, unique in ``names``, so the target can
+    fail in a folder of its own."""
+    problem = _name_problem(name)
+    if problem is None and name in names:
+        problem = f"target {name!r} listed twice"
+    if problem is None:
+        return name, None
+    safe = shown(name).strip("'").replace("/", "_").replace("\\", "_").lstrip(".")
+    safe = safe or f"line-{line}"
+    while safe in names:
+        safe += f"@line{line}"
+    return safe, problem
 
 
 def _target_from(rec: dict[str, str], name: str, base: Path, line: int) -> Target:
