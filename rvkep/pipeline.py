@@ -120,17 +120,7 @@ def analyze(files=None, opts: AnalyzeOptions | None = None, **keywords):
     Results
         the run's summaries, derived quantities and outputs' paths.
     """
-    if keywords:
-        if opts is not None:
-            raise TypeError("give the options as AnalyzeOptions or as keywords, not both")
-        unknown = [k for k in keywords if k not in _OPTION_NAMES]
-        if unknown:
-            import difflib
-
-            close = difflib.get_close_matches(unknown[0], _OPTION_NAMES, n=1)
-            hint = f" (did you mean {close[0]}?)" if close else ""
-            raise TypeError(f"analyze() got an unexpected keyword argument {unknown[0]!r}{hint}")
-        opts = AnalyzeOptions(**keywords)
+    opts = _options_from(opts, keywords)
     if isinstance(files, (str, Path)):
         files = [files]
     from rvkep.modelfile import read_model_file
@@ -153,15 +143,38 @@ def analyze(files=None, opts: AnalyzeOptions | None = None, **keywords):
         if created:  # a refused run leaves no empty folder behind
             remove_if_empty(out)
         raise
+    _report_done(results, paths, opts, out, time.perf_counter() - t_start)
+    return results
+
+
+def _options_from(opts: AnalyzeOptions | None, keywords: dict) -> AnalyzeOptions | None:
+    """The options given by keyword as AnalyzeOptions (an unknown keyword is a
+    TypeError with "did you mean"), or ``opts`` as given."""
+    if not keywords:
+        return opts
+    if opts is not None:
+        raise TypeError("give the options as AnalyzeOptions or as keywords, not both")
+    unknown = [k for k in keywords if k not in _OPTION_NAMES]
+    if unknown:
+        import difflib
+
+        close = difflib.get_close_matches(unknown[0], _OPTION_NAMES, n=1)
+        hint = f" (did you mean {close[0]}?)" if close else ""
+        raise TypeError(f"analyze() got an unexpected keyword argument {unknown[0]!r}{hint}")
+    return AnalyzeOptions(**keywords)
+
+
+def _report_done(results, paths: dict, opts: AnalyzeOptions, out: Path, seconds: float):
+    """The terminal's end of a run: the results, the timings if asked, where the files
+    are and what kind of run made them."""
     _say(opts, str(results))
     if opts.timings:
         print("timings: " + ", ".join(f"{k.replace('_', ' ')} {v:.2f} s"
                                       for k, v in results.timings.items()), flush=True)  # fmt: skip
     figures = "" if figure_set(opts.figures) == "none" else ", figures"
-    _say(opts, f"done in {time.perf_counter() - t_start:.1f} s; results in {out}/ "
+    _say(opts, f"done in {seconds:.1f} s; results in {out}/ "
                f"({paths['report'].name}, {paths['json'].name}, {paths['summary'].name}, "
                f"{paths['latex'].name}{figures}); kind of run: {results.run_label()}")  # fmt: skip
-    return results
 
 
 analyze.__doc__ = analyze.__doc__.replace("{OPTIONS}", options.numpydoc("analyze"))
