@@ -19,6 +19,7 @@ report.html (its Stability section) when the run has one.
 
 from __future__ import annotations
 
+import json
 import math
 import sys
 import time
@@ -93,6 +94,26 @@ def _draws(results, n: int, seed: int) -> list[dict]:
     return rows
 
 
+def _summary(rows: list, y: np.ndarray, orbits: float, seed: int, seconds: float,
+             nbody_run: bool) -> dict:
+    """stability.json's content: the fraction of integrated draws with a regular MEGNO,
+    its median, and each draw's value (None and ``escaped`` for a companion lost)."""
+    done = ~np.isnan(y)  # finite, or inf for an escape
+    return {
+        "draws": int(done.sum()),
+        "orbits_of_outermost": float(orbits),
+        "fraction_regular": float(np.mean(y[done] <= REGULAR_MEGNO)) if done.any() else None,
+        "megno_median": float(np.median(y[done])) if done.any() else None,
+        "regular_if_megno_at_most": REGULAR_MEGNO,
+        "inclination": "the N-body run's" if nbody_run else "edge-on, coplanar (m sin i)",
+        "seed": seed,
+        "seconds": seconds,
+        "reference": "Cincotta & Simo (2000), A&AS 147, 205",
+        "per_draw": [{"sample": r["index"], "megno": (float(v) if np.isfinite(v) else None),
+                      "escaped": bool(np.isinf(v))} for r, v in zip(rows, y, strict=True)],
+    }  # fmt: skip
+
+
 def run_stability(run_dir: str | Path, draws: int = 100, orbits: float = 5000.0,
                   workers: int = 1, scheduler: str | None = None, seed: int = 0,
                   quiet: bool = False) -> dict:  # fmt: skip
@@ -132,26 +153,10 @@ def run_stability(run_dir: str | Path, draws: int = 100, orbits: float = 5000.0,
             if not quiet:
                 print(file=sys.stderr)
         y = np.array([values.get(k, math.nan) for k in range(len(rows))])
-        done = ~np.isnan(y)  # finite, or inf for an escape
         if interrupted:
             raise KeyboardInterrupt
-        summary = {
-            "draws": int(done.sum()),
-            "orbits_of_outermost": float(orbits),
-            "fraction_regular": float(np.mean(y[done] <= REGULAR_MEGNO)) if done.any() else None,
-            "megno_median": float(np.median(y[done])) if done.any() else None,
-            "regular_if_megno_at_most": REGULAR_MEGNO,
-            "inclination": "the N-body run's" if results.saved.get("dynamics") else
-                           "edge-on, coplanar (m sin i)",
-            "seed": seed,
-            "seconds": time.perf_counter() - t0,
-            "reference": "Cincotta & Simo (2000), A&AS 147, 205",
-            "per_draw": [{"sample": r["index"], "megno": (float(v) if np.isfinite(v) else
-                          None), "escaped": bool(np.isinf(v))} for r, v in zip(rows, y,
-                                                                                strict=True)],
-        }  # fmt: skip
-        import json
-
+        summary = _summary(rows, y, orbits, seed, time.perf_counter() - t0,
+                           bool(results.saved.get("dynamics")))  # fmt: skip
         write_text(run_dir / "stability.json", json.dumps(summary, indent=2) + "\n")
         csv = ["sample,megno,regular"] + [
             f"{r['index']},{'' if not np.isfinite(v) else f'{v:.4f}'},"
