@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
+from functools import partial
 
 import numpy as np
 
@@ -129,6 +130,49 @@ FTOL = 1e-13
 SCREEN_FTOL = 1e-9
 
 
+#: the bowl that turns the optimizer back outside the prior (see :func:`_value_and_grad`)
+_PENALTY = 1e6
+#: finite-difference step in the rescaled coordinates
+_STEP = 1e-6
+
+
+def _value_and_grad(post, gradient, x0, scale, ulo, uhi, last, u):
+    """-ln posterior and its gradient at ``x0 + u * scale``, in the rescaled coordinates
+    ``u``: analytic where ``gradient`` is given, else central differences with steps kept
+    inside the bounds (one-sided at a bound). Outside the prior the value is a steep
+    bowl around the last valid point ``last`` (updated here), so the line search backs
+    off instead of stopping."""
+    ndim = u.size
+    if gradient is not None:
+        f, g = gradient(x0 + u * scale)
+        if not np.isfinite(f):
+            d = u - last[0]
+            return last[1] + _PENALTY * (1.0 + d @ d), 2.0 * _PENALTY * d
+        last[0], last[1] = u.copy(), -f
+        return -f, -g * scale
+    pts = np.repeat(u[None, :], 2 * ndim + 1, axis=0)
+    for j in range(ndim):
+        pts[1 + 2 * j, j] = min(u[j] + _STEP, uhi[j])
+        pts[2 + 2 * j, j] = max(u[j] - _STEP, ulo[j])
+    vals = -post(x0 + pts * scale)
+    f0 = vals[0]
+    if not np.isfinite(f0):
+        d = u - last[0]
+        return last[1] + _PENALTY * (1.0 + d @ d), 2.0 * _PENALTY * d
+    last[0], last[1] = u.copy(), f0
+    grad = np.zeros(ndim)
+    for j in range(ndim):
+        fu, fd = vals[1 + 2 * j], vals[2 + 2 * j]
+        hu, hd = pts[1 + 2 * j, j] - u[j], u[j] - pts[2 + 2 * j, j]
+        if np.isfinite(fu) and np.isfinite(fd) and hu + hd > 0:
+            grad[j] = (fu - fd) / (hu + hd)
+        elif np.isfinite(fu) and hu > 0:
+            grad[j] = (fu - f0) / hu
+        elif np.isfinite(fd) and hd > 0:
+            grad[j] = (f0 - fd) / hd
+    return f0, grad
+
+
 def _minimize(
     post: LogPosterior, theta0: np.ndarray, bounds, ftol: float = FTOL
 ) -> tuple[np.ndarray, float, bool, str]:
@@ -140,8 +184,6 @@ def _minimize(
     ndim = theta0.size
     lo = np.array([b[0] if b[0] is not None else -np.inf for b in bounds])
     hi = np.array([b[1] if b[1] is not None else np.inf for b in bounds])
-    penalty = 1e6
-    h = 1e-6  # finite-difference step in the rescaled coordinates
     gradient = post.gradient_function()  # analytic where the compiled pass applies
     x = theta0.copy()
     res = None
@@ -151,38 +193,7 @@ def _minimize(
         ulo, uhi = (lo - x0) / scale, (hi - x0) / scale
         last = [np.zeros(ndim), float(-post(x0[None, :])[0])]
 
-        def value_and_grad(u, x0=x0, scale=scale, ulo=ulo, uhi=uhi, last=last):
-            if gradient is not None:
-                f, g = gradient(x0 + u * scale)
-                if not np.isfinite(f):  # outside the prior: the bowl below
-                    d = u - last[0]
-                    return last[1] + penalty * (1.0 + d @ d), 2.0 * penalty * d
-                last[0], last[1] = u.copy(), -f
-                return -f, -g * scale
-            pts = np.repeat(u[None, :], 2 * ndim + 1, axis=0)
-            for j in range(ndim):  # steps stay inside the bounds
-                pts[1 + 2 * j, j] = min(u[j] + h, uhi[j])
-                pts[2 + 2 * j, j] = max(u[j] - h, ulo[j])
-            vals = -post(x0 + pts * scale)
-            f0 = vals[0]
-            if not np.isfinite(f0):
-                # outside the prior: a steep bowl around the last valid point, so the
-                # line search backs off instead of stopping
-                d = u - last[0]
-                return last[1] + penalty * (1.0 + d @ d), 2.0 * penalty * d
-            last[0], last[1] = u.copy(), f0
-            grad = np.zeros(ndim)
-            for j in range(ndim):
-                fu, fd = vals[1 + 2 * j], vals[2 + 2 * j]
-                hu, hd = pts[1 + 2 * j, j] - u[j], u[j] - pts[2 + 2 * j, j]
-                if np.isfinite(fu) and np.isfinite(fd) and hu + hd > 0:
-                    grad[j] = (fu - fd) / (hu + hd)
-                elif np.isfinite(fu) and hu > 0:
-                    grad[j] = (fu - f0) / hu
-                elif np.isfinite(fd) and hd > 0:
-                    grad[j] = (f0 - fd) / hd
-            return f0, grad
-
+        value_and_grad = partial(_value_and_grad, post, gradient, x0, scale, ulo, uhi, last)
         ubounds = [
             (None if not np.isfinite(a) else a, None if not np.isfinite(b) else b)
             for a, b in zip(ulo, uhi, strict=True)
@@ -256,16 +267,31 @@ def fit(
     return _result(model, x, ok, msg)
 
 
-def grid_starts(
-    data: RVData,
-    residual: np.ndarray,
-    weights: np.ndarray,
-    design: np.ndarray,
-    period: float,
-    n_best: int = 3,
-    ecc_grid=GRID_ECC,
-    n_phase: int = GRID_PHASES,
-) -> list[dict]:
+def _linear_fits(cos_nu, sin_nu, e, design, weights, residual):
+    """At each grid point (rows of ``cos_nu``, ``sin_nu``), the weighted least-squares
+    fit of K cos(omega), K sin(omega) and the offset/trend columns to ``residual``, and
+    its chi-square."""
+    G = e.size
+    cols = np.concatenate(
+        [
+            np.stack([cos_nu + e[:, None], -sin_nu], axis=2),
+            np.broadcast_to(design[None], (G, *design.shape)),
+        ],
+        axis=2,
+    )  # (G, n, 2 + m)
+    Wc = cols * weights[None, :, None]
+    A = np.einsum("gni,gnj->gij", Wc, cols)
+    b = np.einsum("gni,n->gi", Wc, residual)
+    A += 1e-12 * np.eye(A.shape[1]) * np.trace(A, axis1=1, axis2=2)[:, None, None]
+    coef = np.linalg.solve(A, b[:, :, None])[:, :, 0]
+    model_v = np.einsum("gni,gi->gn", cols, coef)
+    chi2 = np.sum(weights[None, :] * (residual[None, :] - model_v) ** 2, axis=1)
+    return coef, chi2
+
+
+def grid_starts(data: RVData, residual: np.ndarray, weights: np.ndarray, design: np.ndarray,
+                period: float, n_best: int = 3, ecc_grid=GRID_ECC,
+                n_phase: int = GRID_PHASES) -> list[dict]:  # fmt: skip
     """Best (e, tp) grid points at one period, solved linearly for K and omega.
 
     ``residual`` is what the other companions leave (centred velocities), ``weights``
@@ -285,21 +311,7 @@ def grid_starts(
     den = 1 - e[:, None] * cosE
     cos_nu = (cosE - e[:, None]) / den
     sin_nu = np.sqrt(1 - e[:, None] ** 2) * sinE / den
-    G = e.size
-    cols = np.concatenate(
-        [
-            np.stack([cos_nu + e[:, None], -sin_nu], axis=2),
-            np.broadcast_to(design[None], (G, *design.shape)),
-        ],
-        axis=2,
-    )  # (G, n, 2 + m)
-    Wc = cols * weights[None, :, None]
-    A = np.einsum("gni,gnj->gij", Wc, cols)
-    b = np.einsum("gni,n->gi", Wc, residual)
-    A += 1e-12 * np.eye(A.shape[1]) * np.trace(A, axis1=1, axis2=2)[:, None, None]
-    coef = np.linalg.solve(A, b[:, :, None])[:, :, 0]
-    model_v = np.einsum("gni,gi->gn", cols, coef)
-    chi2 = np.sum(weights[None, :] * (residual[None, :] - model_v) ** 2, axis=1)
+    coef, chi2 = _linear_fits(cos_nu, sin_nu, e, design, weights, residual)
     order = np.argsort(chi2)
     out = []
     for g in order:

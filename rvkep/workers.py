@@ -66,6 +66,11 @@ def _watch_parent(parent: int) -> None:
 def _worker_init(parent: int) -> None:
     import threading
 
+    # one thread each, unless the user set a count: set here, in the worker, before any
+    # numeric library loads (importing this module loads none), so the parent's own
+    # environment and thread pools are left as they were
+    for var in _CHILD_THREADS:
+        os.environ.setdefault(var, "1")
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     # the worker was started with SIGINT blocked (rvkep.signals): a Ctrl-C
     # during its start-up is pending now, and dropped as ignored
@@ -90,13 +95,11 @@ def _in_worker(fn: Callable, *args):
 
 def local_pool(workers: int):
     """A pool of ``workers`` spawned processes. Their thread counts (BLAS, OpenMP,
-    numba) default to one: set in this process's environment, which they inherit
-    (this process has loaded its libraries already; a variable set before is kept)."""
+    numba) default to one, set in each worker as it starts (a count the user set is
+    kept); this process's environment is not changed."""
     import multiprocessing as mp
     from concurrent.futures import ProcessPoolExecutor
 
-    for var in _CHILD_THREADS:
-        os.environ.setdefault(var, "1")
     return ProcessPoolExecutor(
         max_workers=workers, mp_context=mp.get_context("spawn"),
         initializer=_worker_init, initargs=(os.getpid(),),
