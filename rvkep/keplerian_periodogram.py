@@ -45,6 +45,7 @@ References
 
 from __future__ import annotations
 
+import time
 from dataclasses import dataclass, field
 from functools import partial
 
@@ -189,6 +190,18 @@ def _project(D: np.ndarray, G: np.ndarray, w: np.ndarray, v: np.ndarray) -> np.n
     return v - D @ (G @ (D.T @ (w * v)))
 
 
+def _redrawn_maxima(drops, project, yt, w, n_bootstrap: int, rng) -> np.ndarray:
+    """The highest power of each of ``n_bootstrap`` redraws of the residuals
+    (normalized residuals drawn with replacement, rescaled to each point's error)."""
+    gen = np.random.default_rng(rng)
+    z = yt * np.sqrt(w)
+    maxima = np.empty(n_bootstrap)
+    for b in range(n_bootstrap):
+        yb = project(gen.choice(z, size=z.size, replace=True) / np.sqrt(w))
+        maxima[b] = drops(yb).max() / float(np.sum(w * yb**2))
+    return maxima
+
+
 def _calibrate(pg: KeplerianPeriodogram, maxima: np.ndarray) -> None:
     """Calibrate ``pg``'s false-alarm probabilities on the highest powers of redrawn
     residuals: the effective number of independent trials, and the levels."""
@@ -232,10 +245,8 @@ def keplerian_periodogram(t: np.ndarray, y: np.ndarray, dy: np.ndarray,
         Polynomial trend degree fitted beside the offsets.
     ecc : sequence of float
         The eccentricity grid (phases from :func:`phase_counts`).
-    n_bootstrap : int
-        Redraws calibrating the false-alarm probability (0: none; ``fap`` is then NaN).
-    rng : Generator or int
-        For the redraws.
+    n_bootstrap, rng : int, and Generator or int
+        Redraws calibrating the false-alarm probability (0: none, ``fap`` is NaN), seed.
     label : str
         What the periodogram is of (shown in figures and reports).
     min_period, max_period, oversampling : float, optional
@@ -247,16 +258,13 @@ def keplerian_periodogram(t: np.ndarray, y: np.ndarray, dy: np.ndarray,
         The power (fraction of chi-square removed) at each frequency, the best
         eccentricity and phase there, and the redraws' calibration.
     """
-    import time
-
     from rvkep.periodogram import frequency_grid
 
     start = time.perf_counter()
     t, y, dy, ecc = _checked(t, y, dy, ecc)
     instrument = np.zeros(t.size, int) if instrument is None else np.asarray(instrument)
-    if frequency is None:
-        frequency = frequency_grid(t, min_period, max_period, oversampling)
-    frequency = np.ascontiguousarray(frequency, float)
+    frequency = np.ascontiguousarray(frequency if frequency is not None else frequency_grid(
+        t, min_period, max_period, oversampling), float)  # fmt: skip
     order, starts, D = _design(t, instrument, trend)
     t0 = (t - np.round(np.mean(t)))[order]
     w = 1.0 / dy[order] ** 2
@@ -270,13 +278,9 @@ def keplerian_periodogram(t: np.ndarray, y: np.ndarray, dy: np.ndarray,
                               label, ecc=ecc[be], phase=bp,
                               dof=0.5 * (t.size - D.shape[1] - 2))  # fmt: skip
     if n_bootstrap > 0:
-        gen = np.random.default_rng(rng)
-        z = yt * np.sqrt(w)  # normalized residuals, redrawn and rescaled to each point
-        maxima = np.empty(n_bootstrap)
-        for b in range(n_bootstrap):
-            yb = project(gen.choice(z, size=z.size, replace=True) / np.sqrt(w))
-            maxima[b] = _drops(t0, yb, w, starts, D, G, frequency, ecc, nph)[0].max() / float(
-                np.sum(w * yb**2))  # fmt: skip
-        _calibrate(pg, maxima)
+        def drops(v):
+            return _drops(t0, v, w, starts, D, G, frequency, ecc, nph)[0]
+
+        _calibrate(pg, _redrawn_maxima(drops, project, yt, w, n_bootstrap, rng))
     pg.seconds = time.perf_counter() - start
     return pg
