@@ -436,8 +436,8 @@ def fit_dynamics(choice: ModelChoice, opts: AnalyzeOptions, spec=None, star=None
         return choice
     own = spec.dynamics_parameters_for(kind) if spec is not None else None
     model = replace(kep.model, dynamics=kind, dynamics_parameters=own, star=star)
-    start = {k: v for k, v in kep.params.items() if k in set(model.start_physical())}
     own_start = model.start_physical()
+    start = {k: v for k, v in kep.params.items() if k in own_start}
     cos_keys = [f"dynamics.{p.name}" for p in model.dynamics_parameters
                 if p.name.startswith("cos_inc")]  # fmt: skip
     lo, hi = model.dynamics_parameters[0].prior.bounds

@@ -473,18 +473,28 @@ def _read_sampling(sampling, spec: ModelSpec, path: str) -> None:
         spec.sampling[key] = v
 
 
+def _kind_of(table, section: str, kinds, default: str, path: str) -> str | None:
+    """The ``kind`` a table of one of the registries names (``default`` when it names
+    none), None for an empty table; a table that is not one, or an unknown kind, is a
+    :class:`ModelFileError` naming the key."""
+    if not isinstance(table, dict):
+        raise ModelFileError(f"{_where(path, section)}: must be a table")
+    if not table:
+        return None
+    kind = table.get("kind", default)
+    if not isinstance(kind, str) or kind not in kinds:
+        raise ModelFileError(f"{_where(path, section, 'kind')}: must be one of "
+                             f"{', '.join(kinds)}, got {kind!r}")  # fmt: skip
+    return kind
+
+
 def _read_noise(table, spec: ModelSpec, path: str) -> None:
     """The ``[noise]`` table: ``kind`` and the noise model's own parameters."""
     from rvkep.noise import NOISE_MODELS, get_noise_model
 
-    if not isinstance(table, dict):
-        raise ModelFileError(f"{_where(path, 'noise')}: must be a table")
-    if not table:
+    kind = _kind_of(table, "noise", NOISE_MODELS, "white", path)
+    if kind is None:
         return
-    kind = table.get("kind", "white")
-    if kind not in NOISE_MODELS:
-        raise ModelFileError(f"{_where(path, 'noise', 'kind')}: must be one of "
-                             f"{', '.join(NOISE_MODELS)}, got {kind!r}")  # fmt: skip
     names = list(get_noise_model(kind).parameter_keys)
     _check_keys(table, {"kind", *names}, _where(path, "noise"))
     spec.noise = kind
@@ -498,14 +508,9 @@ def _read_dynamics(table, spec: ModelSpec, path: str) -> None:
     """The ``[dynamics]`` table: ``kind`` and, for N-body, ``cos_inc``."""
     from rvkep.model import DYNAMICS, dynamics_parameters
 
-    if not isinstance(table, dict):
-        raise ModelFileError(f"{_where(path, 'dynamics')}: must be a table")
-    if not table:
+    kind = _kind_of(table, "dynamics", DYNAMICS, "keplerian", path)
+    if kind is None:
         return
-    kind = table.get("kind", "keplerian")
-    if kind not in DYNAMICS:
-        raise ModelFileError(f"{_where(path, 'dynamics', 'kind')}: must be one of "
-                             f"{', '.join(DYNAMICS)}, got {kind!r}")  # fmt: skip
     own = {p.name: p for p in dynamics_parameters(kind)}  # none per companion here
     _check_keys(table, {"kind", *own}, _where(path, "dynamics"))
     spec.dynamics = kind

@@ -131,7 +131,7 @@ def integrator_for(period, ecc, masses, star_mass: float) -> str:
     or two orbits cross (the inner apoastron reaches the outer periastron), where
     encounters can be close. A heavy 2:1 pair (K 88 and 214 m/s around 0.37 solar
     masses, e 0.25, not Hill stable) stays within 0.05 m/s of IAS15 over ten years
-    with WHFast at P_min/20 (tests/test_nbody.py), so Hill instability alone does not
+    with WHFast at P_min/20 (tests/kernel/test_nbody.py), so Hill instability alone does not
     send a system to the slower integrator."""
     P = np.atleast_1d(np.asarray(period, float))
     e = np.atleast_1d(np.asarray(ecc, float))

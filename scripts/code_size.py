@@ -4,7 +4,10 @@ Prints every module over 600 lines and every function over 60 lines (decorators 
 docstrings included, as the source shows them). ``--check`` exits 1 when more modules
 than allowed exceed 600 lines or more than five functions exceed 60.
 
-Usage: ``python scripts/code_size.py [--check]``
+It also counts the public functions whose docstrings lack numpydoc ``Parameters`` or
+``Returns`` (``--docs`` lists them).
+
+Usage: ``python scripts/code_size.py [--check] [--docs]``
 """
 
 from __future__ import annotations
@@ -38,6 +41,41 @@ def sizes() -> tuple[list[tuple[int, str]], list[tuple[int, str]]]:
     return sorted(modules, reverse=True), sorted(functions, reverse=True)
 
 
+def _public_names(tree: ast.Module) -> set[str] | None:
+    for node in tree.body:
+        if isinstance(node, ast.Assign) and any(getattr(t, "id", None) == "__all__"
+                                                for t in node.targets):  # fmt: skip
+            try:
+                return set(ast.literal_eval(node.value))
+            except ValueError:
+                return None
+    return None
+
+
+def undocumented() -> list[str]:
+    """Public module-level functions (in ``__all__`` where a module has one) whose
+    docstring lacks a numpydoc ``Parameters`` section (when they take arguments) or a
+    ``Returns`` section (when they return a value)."""
+    found = []
+    for path in sorted(ROOT.rglob("*.py")):
+        tree = ast.parse(path.read_text())
+        public = _public_names(tree)
+        for node in tree.body:
+            if not isinstance(node, ast.FunctionDef) or node.name.startswith("_"):
+                continue
+            if public is not None and node.name not in public:
+                continue
+            doc = ast.get_docstring(node) or ""
+            args = [a for a in node.args.args + node.args.kwonlyargs if a.arg != "self"]
+            returns = any(isinstance(n, ast.Return) and n.value is not None
+                          for n in ast.walk(node))  # fmt: skip
+            if (args and "Parameters\n" not in doc) or (
+                returns and "Returns\n" not in doc and "Yields\n" not in doc
+            ):
+                found.append(f"{path.relative_to(ROOT.parent)}:{node.lineno} {node.name}")
+    return found
+
+
 def main(argv: list[str]) -> int:
     modules, functions = sizes()
     print(f"modules over {MODULE_LINES} lines: {len(modules)}")
@@ -46,6 +84,11 @@ def main(argv: list[str]) -> int:
     print(f"functions over {FUNCTION_LINES} lines: {len(functions)}")
     for n, name in functions:
         print(f"  {n:5d}  {name}")
+    missing = undocumented()
+    print(f"public functions without numpydoc Parameters/Returns: {len(missing)}")
+    if "--docs" in argv:
+        for name in missing:
+            print(f"  {name}")
     if "--check" in argv:
         return int(bool(modules) or len(functions) > MAX_LONG_FUNCTIONS)
     return 0

@@ -11,7 +11,7 @@ import time
 from pathlib import Path
 
 import pytest
-from test_batch import make_targets, read_summary
+from helpers import HERE, make_targets, read_summary
 
 pytestmark = [
     pytest.mark.integration,
@@ -122,7 +122,7 @@ def test_ctrl_c_during_sampling_prints_no_traceback_and_resumes_exactly(tmp_path
 
     import h5py
     import numpy as np
-    from test_sampling import one_planet, planet_model
+    from helpers import one_planet, planet_model
 
     import rvkep.sampling as sampling
     from rvkep.sampling import SamplerOptions, UnconvergedWarning, run_sampler
@@ -213,7 +213,7 @@ def test_second_batch_into_the_same_folder_refuses(tmp_path):
 FULL_DISK_SCRIPT = """
 import resource, signal, sys, warnings
 sys.path.insert(0, {tests!r})
-from test_sampling import one_planet, planet_model
+from helpers import one_planet, planet_model
 from rvkep.sampling import CheckpointWriteError, SamplerOptions, UnconvergedWarning, run_sampler
 fit = planet_model(one_planet())
 opts = SamplerOptions(seed=9, max_steps=3000, check_every=100, tau_factor=1e9, walkers=32,
@@ -236,7 +236,7 @@ np.save({out!r}.replace(".npy", "_acc.npy"), res.acceptance)
 
 def run_full_disk(tmp_path, name, limit):
     path, out = tmp_path / f"{name}.h5", tmp_path / f"{name}.npy"
-    code = FULL_DISK_SCRIPT.format(tests=os.path.dirname(__file__), path=str(path),
+    code = FULL_DISK_SCRIPT.format(tests=HERE, path=str(path),
                                    out=str(out), limit=limit)  # fmt: skip
     return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
                           timeout=300), path, out  # fmt: skip
@@ -275,7 +275,7 @@ def test_damaged_checkpoint_is_kept_aside_and_the_chain_starts_afresh(tmp_path, 
 
     import h5py
     import numpy as np
-    from test_sampling import one_planet, planet_model
+    from helpers import one_planet, planet_model
 
     from rvkep.sampling import CheckpointNotice, SamplerOptions, UnconvergedWarning, run_sampler
 
@@ -436,7 +436,7 @@ def test_ctrl_c_twice_stops_limits_on_workers_and_leaves_nothing_running(tmp_pat
     """Two SIGINTs 50 ms apart during ``rvkep limits --workers 2`` (before the one
     worker-pool helper, 6 of 6 such runs hung with their workers alive): exit 130
     within seconds, no traceback, no process left, and the rerun resumes."""
-    from test_sampling import finished_run
+    from helpers import finished_run
 
     run = finished_run(tmp_path / "run")
     cmd = [sys.executable, "-m", "rvkep", "limits", str(run), "--workers", "2",

@@ -1,6 +1,5 @@
 """Batch runs over target lists: local processes, a kill and a rerun, a Dask cluster."""
 
-import csv
 import json
 import os
 import signal
@@ -9,38 +8,12 @@ import sys
 import time
 from pathlib import Path
 
-import numpy as np
 import pytest
+from helpers import make_targets, read_summary
 
 from rvkep.batch import read_targets, run_batch
 from rvkep.cli import BATCH_FAILED_EXIT, main
 from rvkep.errors import DataError
-from rvkep.orbit import radial_velocity
-
-
-def make_targets(folder: Path, n: int, n_points: int = 25) -> Path:
-    """Invented sparse stars (seeds 0..n-1): one companion each, plus one bad file."""
-    folder.mkdir(parents=True, exist_ok=True)
-    rows = ["name,data,star_mass,star_mass_err,max_companions"]
-    for k in range(n):
-        rng = np.random.default_rng(k)
-        t = 2459000 + np.sort(rng.choice(np.arange(400), n_points, replace=False)) * 0.99727
-        P = float(np.exp(rng.uniform(np.log(3), np.log(60))))
-        v = radial_velocity(t, P, 2459000.0 + rng.uniform(0, P), 0.2, 1.0, rng.uniform(20, 40))
-        v += rng.normal(0, 3, n_points)
-        rows_txt = "\n".join(f"{a:.6f} {b:.3f} 3.0" for a, b in zip(t, v, strict=True))
-        (folder / f"star{k}.txt").write_text(rows_txt + "\n")
-        rows.append(f"star{k},star{k}.txt,1.0,0.05,1")
-    (folder / "broken.txt").write_text("2459000 1 1\n2459001 oops 1\n")
-    rows.append("broken,broken.txt,1.0,0.05,1")
-    path = folder / "targets.csv"
-    path.write_text("\n".join(rows) + "\n")
-    return path
-
-
-def read_summary(out: Path):
-    with open(out / "summary.csv") as fh:
-        return list(csv.DictReader(fh))
 
 
 def check_complete(out: Path, n: int):

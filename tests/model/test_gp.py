@@ -8,8 +8,8 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+from helpers import one_planet, planet_model, write_table
 from scipy import integrate, stats
-from test_sampling import one_planet, planet_model, write_table
 
 from rvkep.errors import ModelFileError
 from rvkep.likelihood import LogPosterior

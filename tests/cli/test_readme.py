@@ -8,7 +8,7 @@ import pytest
 
 from rvkep.cli import main
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 
 def examples():

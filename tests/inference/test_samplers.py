@@ -5,7 +5,7 @@ import warnings
 
 import numpy as np
 import pytest
-from test_sampling import one_planet, planet_model
+from helpers import one_planet, planet_model
 
 from rvkep.likelihood import LogPosterior
 from rvkep.samplers import SampleSet, available_samplers, get_sampler

@@ -97,8 +97,8 @@ def test_occurrence_with_completeness_recovers_the_fraction():
 
 @pytest.fixture(scope="module")
 def batch(tmp_path_factory):
-    """A quick batch of three invented stars (tests/test_batch.py's make_targets)."""
-    from test_batch import make_targets
+    """A quick batch of three invented stars (tests/helpers.py's make_targets)."""
+    from helpers import make_targets
 
     from rvkep.cli import main
 

@@ -4,32 +4,11 @@ import math
 
 import numpy as np
 import pytest
+from helpers import slow_rv
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from rvkep import orbit
-
-
-def slow_rv(t, period, tp, e, omega, K):
-    """Plain reference RV: bisection for E, then nu, one point at a time.
-
-    v = K [cos(nu + omega) + e cos omega]  (common practice, no source; the usual RV
-    convention with omega the star's argument of periastron).
-    """
-    out = []
-    for ti in np.atleast_1d(t):
-        M = 2 * math.pi * ((ti - tp) / period % 1.0)
-        lo, hi = 0.0, 2 * math.pi
-        for _ in range(100):
-            mid = 0.5 * (lo + hi)
-            if mid - e * math.sin(mid) - M > 0:
-                hi = mid
-            else:
-                lo = mid
-        E = 0.5 * (lo + hi)
-        nu = 2 * math.atan2(math.sqrt(1 + e) * math.sin(E / 2), math.sqrt(1 - e) * math.cos(E / 2))
-        out.append(K * (math.cos(nu + omega) + e * math.cos(omega)))
-    return np.array(out)
 
 
 @pytest.mark.parametrize("e", [0.0, 0.2, 0.6, 0.9, 0.97])

@@ -9,7 +9,7 @@ import warnings
 
 import matplotlib
 import pytest
-from test_sampling import one_planet
+from helpers import one_planet
 
 from rvkep.model import SystemModel
 from rvkep.optimize import fit_companions

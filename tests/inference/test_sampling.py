@@ -1,7 +1,6 @@
 """Posterior sampling: an analytic posterior, exact resume after kills, calibration."""
 
 import math
-import os
 import signal
 import subprocess
 import sys
@@ -12,6 +11,7 @@ from dataclasses import replace
 import h5py
 import numpy as np
 import pytest
+from helpers import HERE, finished_run, one_planet, planet_model, write_table  # noqa: F401
 
 from rvkep.data import RVData
 from rvkep.model import Companion, Instrument, SystemModel
@@ -69,49 +69,11 @@ def test_linear_model_matches_analytic_posterior():
     assert post["offset.a"].std() == pytest.approx(math.sqrt(cov[2, 2]), rel=0.06)
 
 
-def one_planet(seed=4, n=40):
-    """Invented star, seed given: P = 9.4 d, K = 12 m/s, e = 0.2."""
-    rng = np.random.default_rng(seed)
-    t = np.sort(rng.uniform(2459000, 2459150, n))
-    err = np.full(n, 2.0)
-    v = radial_velocity(t, 9.4, 2459001.0, 0.2, 1.0, 12.0)
-    return RVData(t, v + rng.normal(0, 2.0, n), err, np.full(n, "a"))
-
-
-def write_table(data, path):
-    """``data`` as a plain three-column RV file (time, rv, err); returns the path."""
-    rows = zip(data.time, data.rv, data.err, strict=True)
-    path.write_text("".join(f"{t} {v} {e}\n" for t, v, e in rows))
-    return path
-
-
-def planet_model(data):
-    from rvkep.optimize import fit_companions
-
-    return fit_companions(data, [[9.4]])
-
-
-def finished_run(folder, n=40):
-    """A short sampled run of one_planet(n) written to ``folder`` (a run folder for the
-    commands that read one back); returns the folder."""
-    import warnings
-
-    from rvkep.results import Results
-    from rvkep.sampling import UnconvergedWarning
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", UnconvergedWarning)
-        sampled = planet_model(one_planet(n=n)).sample(seed=4, max_steps=2000,
-                                                       check_every=500, progress=False)  # fmt: skip
-    Results.from_sampling(sampled).write(folder)
-    return folder
-
-
 SCRIPT = r"""
 import sys, warnings
 import numpy as np
 sys.path.insert(0, {tests!r})
-from test_sampling import one_planet, planet_model
+from helpers import one_planet, planet_model
 from rvkep.sampling import SamplerOptions, run_sampler
 warnings.simplefilter("ignore")
 fit = planet_model(one_planet())
@@ -123,7 +85,7 @@ np.save({out!r}, res.chain)
 
 
 def run_script(tmp_path, path, out, steps, kill_after=None):
-    code = SCRIPT.format(tests=os.path.dirname(__file__), steps=steps, path=str(path), out=str(out))
+    code = SCRIPT.format(tests=HERE, steps=steps, path=str(path), out=str(out))
     proc = subprocess.Popen([sys.executable, "-c", code], stderr=subprocess.PIPE)
     if kill_after is None:
         assert proc.wait(timeout=300) == 0, proc.stderr.read().decode()

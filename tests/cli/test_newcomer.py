@@ -6,7 +6,7 @@ no source.)"""
 import re
 
 import pytest
-from test_sampling import finished_run
+from helpers import finished_run
 
 import rvkep
 from rvkep.formatting import p_text

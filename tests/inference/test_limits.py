@@ -10,7 +10,7 @@ import time
 
 import numpy as np
 import pytest
-from test_sampling import finished_run
+from helpers import finished_run
 
 from rvkep.limits import (
     EARTH_PER_JUPITER,

@@ -8,7 +8,7 @@ import pytest
 from rvkep.cli import main
 from rvkep.formatting import format_uncertain, latex_value, text_value
 
-DEMO = Path(__file__).resolve().parents[1] / "demo_data"
+DEMO = Path(__file__).resolve().parents[2] / "demo_data"
 
 
 @pytest.mark.parametrize(

@@ -5,7 +5,7 @@ import warnings
 
 import numpy as np
 import pytest
-from test_sampling import one_planet, planet_model
+from helpers import one_planet, planet_model
 
 from rvkep.likelihood import LogPosterior
 from rvkep.noise import NOISE_MODELS, get_noise_model

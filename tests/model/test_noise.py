@@ -3,8 +3,8 @@ uses, checked against direct integration, and a new model added by registration.
 
 import numpy as np
 import pytest
+from helpers import one_planet, planet_model
 from scipy import integrate
-from test_sampling import one_planet, planet_model
 
 import rvkep.noise as noise
 from rvkep.likelihood import LogPosterior

@@ -7,7 +7,7 @@ import warnings
 
 import numpy as np
 import pytest
-from test_sampling import one_planet, planet_model
+from helpers import one_planet, planet_model
 
 from rvkep.events import EVENTS, event_times
 from rvkep.orbit import radial_velocity, tp_to_tc

@@ -7,8 +7,8 @@ import warnings
 
 import numpy as np
 import pytest
+from helpers import one_planet, write_table
 from scipy import stats
-from test_sampling import one_planet, write_table
 
 from rvkep.data import RVData
 from rvkep.eccentricity import eccentricity_tests, lucy_sweeney

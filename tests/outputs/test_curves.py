@@ -5,7 +5,7 @@ import warnings
 
 import numpy as np
 import pytest
-from test_sampling import one_planet
+from helpers import one_planet
 
 import rvkep
 from rvkep.curves import phase_curves, timeseries_curves

@@ -18,7 +18,7 @@ from rvkep.data import RVData
 from rvkep.names import csv_cell, latex_escape, name_problem, relative_link
 from rvkep.orbit import radial_velocity
 
-sys.path.insert(0, str(Path(__file__).parent))
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 
 def _files_under(root: Path) -> set[Path]:
@@ -166,7 +166,7 @@ def test_a_refused_run_leaves_no_folder_and_no_lock(tmp_path, capsys):
 
 @pytest.fixture(scope="module")
 def finished(tmp_path_factory):
-    from test_sampling import finished_run
+    from helpers import finished_run
 
     return finished_run(tmp_path_factory.mktemp("hostile") / "run")
 

@@ -7,7 +7,7 @@ import warnings
 
 import numpy as np
 import pytest
-from test_sampling import one_planet, write_table
+from helpers import one_planet, write_table
 
 import rvkep
 
@@ -73,7 +73,7 @@ def test_a_reloaded_run_rebuilds_its_fit_and_draws_the_same_curves(tmp_path):
     import json
     import warnings
 
-    from test_sampling import one_planet, planet_model
+    from helpers import one_planet, planet_model
 
     from rvkep.curves import phase_curves, timeseries_curves
     from rvkep.pipeline import write_figures

@@ -131,7 +131,7 @@ def test_odd_input_probe_ends_every_case_as_expected():
     import sys
     from pathlib import Path
 
-    script = Path(__file__).resolve().parent.parent / "scripts" / "probe_inputs.py"
+    script = Path(__file__).resolve().parents[2] / "scripts" / "probe_inputs.py"
     proc = subprocess.run([sys.executable, str(script)], capture_output=True, text=True,
                           timeout=300)  # fmt: skip
     assert proc.returncode == 0, proc.stdout[-3000:] + proc.stderr[-2000:]

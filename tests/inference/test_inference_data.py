@@ -3,7 +3,7 @@ arviz.summary's R-hat and ESS, arviz.loo's PSIS-LOO, Vehtari et al. 2017)."""
 
 import numpy as np
 import pytest
-from test_sampling import finished_run
+from helpers import finished_run
 
 from rvkep.results import Results
 

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import pytest
 
-PACKAGE = Path(__file__).resolve().parents[1] / "rvkep"
+PACKAGE = Path(__file__).resolve().parents[2] / "rvkep"
 
 pytestmark = pytest.mark.skipif(
     os.environ.get("RVKEP_PURE_NUMPY", "") not in ("", "0"), reason="numba switched off"

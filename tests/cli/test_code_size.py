@@ -4,7 +4,7 @@ functions over 60 (``scripts/code_size.py --check``; common practice, no source)
 import importlib.util
 from pathlib import Path
 
-ROOT = Path(__file__).resolve().parents[1]
+ROOT = Path(__file__).resolve().parents[2]
 
 
 def _script():
@@ -18,6 +18,26 @@ def test_no_module_over_the_limit_and_few_long_functions():
     modules, functions = _script().sizes()
     assert modules == [], f"modules over 600 lines: {modules}"
     assert len(functions) <= 5, f"{len(functions)} functions over 60 lines: {functions}"
+
+
+#: public functions still without numpydoc Parameters/Returns (2026-12-04); lower it as
+#: they are written, never raise it
+UNDOCUMENTED_AT_MOST = 246
+
+
+def test_no_new_public_function_without_numpydoc_sections():
+    missing = _script().undocumented()
+    assert len(missing) <= UNDOCUMENTED_AT_MOST, missing[:10]
+
+
+def test_the_docstring_scan_sees_a_missing_section(tmp_path, monkeypatch):
+    module = _script()
+    (tmp_path / "m.py").write_text(
+        'def f(x):\n    """Doc.\n\n    Parameters\n    ----------\n    x : int\n        X.\n'
+        '    """\n    return x\n\n\ndef g():\n    """Doc."""\n'
+    )
+    monkeypatch.setattr(module, "ROOT", tmp_path)
+    assert [n.split("/")[-1] for n in module.undocumented()] == ["m.py:1 f"]
 
 
 def test_the_count_sees_a_long_function(tmp_path, monkeypatch):

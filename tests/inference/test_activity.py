@@ -14,7 +14,7 @@ from rvkep.pipeline import analyze
 
 pytestmark = pytest.mark.integration
 
-SCRIPT = Path(__file__).resolve().parents[1] / "scripts" / "make_activity_star.py"
+SCRIPT = Path(__file__).resolve().parents[2] / "scripts" / "make_activity_star.py"
 
 
 def star_files(folder: Path, **scales) -> tuple[list[str], dict]:

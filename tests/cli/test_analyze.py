@@ -8,7 +8,7 @@ import pytest
 
 from rvkep.cli import main
 
-DEMO = Path(__file__).resolve().parents[1] / "demo_data"
+DEMO = Path(__file__).resolve().parents[2] / "demo_data"
 
 
 @pytest.fixture(scope="module")

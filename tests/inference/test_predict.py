@@ -5,7 +5,7 @@ import json
 
 import numpy as np
 import pytest
-from test_orbit import slow_rv
+from helpers import slow_rv
 
 from rvkep.prediction import QUANTILES, predict
 

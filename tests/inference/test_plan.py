@@ -8,7 +8,7 @@ import warnings
 
 import numpy as np
 import pytest
-from test_sampling import finished_run
+from helpers import finished_run
 
 from rvkep.orbit import radial_velocity
 from rvkep.plan import choose_epochs, plan_epochs

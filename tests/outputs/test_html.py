@@ -11,7 +11,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from test_batch import make_targets
+from helpers import make_targets
 
 from rvkep.cli import BATCH_FAILED_EXIT, main
 from rvkep.formatting import format_uncertain
