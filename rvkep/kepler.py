@@ -64,6 +64,11 @@ def check_eccentricity(e: ArrayLike) -> np.ndarray:
     ----------
     e : array_like
         Eccentricities; each must satisfy 0 <= e < 1 (NaN is refused).
+
+    Returns
+    -------
+    ndarray
+        ``e`` as floats.
     """
     e = np.asarray(e, dtype=float)
     bad = ~((e >= 0.0) & (e < 1.0))
@@ -199,13 +204,29 @@ _ecc_anom_flat, _rv_flat, _rv_rows = _BACKENDS[BACKEND]
 
 
 def available_backends() -> list[str]:
-    """Names of the kernel implementations that loaded here, the one in use first."""
+    """Names of the kernel implementations that loaded here, the one in use first.
+
+    Returns
+    -------
+    list of str
+        ``"numba"`` (when it loaded) and ``"numpy"``.
+    """
     return list(_BACKENDS)
 
 
 def backend_kernels(name: str) -> tuple:
-    """The (eccentric anomaly, RV flat, RV rows) kernels of one backend (for tests
-    and benchmarks that compare them)."""
+    """The kernels of one backend (for tests and benchmarks that compare them).
+
+    Parameters
+    ----------
+    name : str
+        One of :func:`available_backends`.
+
+    Returns
+    -------
+    tuple
+        The eccentric-anomaly, flat RV and row RV kernels.
+    """
     try:
         return _BACKENDS[name]
     except KeyError:
@@ -224,6 +245,19 @@ def rv_rows(t, tp, n, e, cosw, sinw, K) -> np.ndarray:
     ``t`` has shape (n_times,), every parameter shape (n_sets,); the result is
     (n_sets, n_times): ``K [cos(nu + omega) + e cos omega]`` with ``n = 2 pi / P`` the
     mean motion and ``cosw, sinw`` the cosine and sine of omega. No validation.
+
+    Parameters
+    ----------
+    t : array_like
+        Times (n_times,), days.
+    tp, n, e, cosw, sinw, K : array_like
+        Per parameter set (n_sets,): time of periastron, mean motion (rad/day),
+        eccentricity, cos omega, sin omega, semi-amplitude.
+
+    Returns
+    -------
+    ndarray
+        (n_sets, n_times) velocities, in the unit of ``K``.
     """
     t = _flat(t)
     params = [_flat(p) for p in (tp, n, e, cosw, sinw, K)]
@@ -237,6 +271,16 @@ def rv_kernel(t, tp, n, e, cosw, sinw, K) -> np.ndarray:
 
     Same quantity as :func:`rv_rows`; parameters of shape (n_sets, 1) against times of
     shape (n_times,) take the fast row path, any other layout is broadcast first.
+
+    Parameters
+    ----------
+    t, tp, n, e, cosw, sinw, K : array_like
+        As for :func:`rv_rows`, of any shapes that broadcast together.
+
+    Returns
+    -------
+    ndarray
+        The velocities, in the broadcast shape.
     """
     t = np.asarray(t, dtype=float)
     params = [np.asarray(p, dtype=float) for p in (tp, n, e, cosw, sinw, K)]
@@ -301,6 +345,16 @@ def true_anomaly_from_eccentric(E: ArrayLike, e: ArrayLike) -> np.ndarray:
 
     Uses tan(nu / 2) = sqrt((1 + e) / (1 - e)) tan(E / 2) in its two-argument form,
     which keeps nu on the same turn as E.
+
+    Parameters
+    ----------
+    E, e : array_like
+        Eccentric anomaly (radians) and eccentricity in [0, 1).
+
+    Returns
+    -------
+    ndarray
+        The true anomaly, radians, on the turn of ``E``.
     """
     e = check_eccentricity(e)
     E = np.asarray(E, dtype=float)
@@ -312,7 +366,18 @@ def true_anomaly_from_eccentric(E: ArrayLike, e: ArrayLike) -> np.ndarray:
 
 
 def true_anomaly(M: ArrayLike, e: ArrayLike) -> np.ndarray:
-    """True anomaly nu (radians) from the mean anomaly M and eccentricity e."""
+    """True anomaly nu (radians) from the mean anomaly M and eccentricity e.
+
+    Parameters
+    ----------
+    M, e : array_like
+        Mean anomaly (radians) and eccentricity in [0, 1).
+
+    Returns
+    -------
+    ndarray
+        The true anomaly, radians, on the turn of ``M``.
+    """
     return true_anomaly_from_eccentric(eccentric_anomaly(M, e), e)
 
 

@@ -91,7 +91,18 @@ def radial_velocity(
 
 
 def mean_anomaly(t: ArrayLike, period: ArrayLike, tp: ArrayLike) -> np.ndarray:
-    """Mean anomaly 2 pi (t - tp) / P (radians, not reduced)."""
+    """Mean anomaly 2 pi (t - tp) / P (radians, not reduced).
+
+    Parameters
+    ----------
+    t, period, tp : array_like
+        Times, periods and times of periastron (days), broadcast together.
+
+    Returns
+    -------
+    ndarray
+        The mean anomaly in radians.
+    """
     return TWO_PI * (np.asarray(t, float) - np.asarray(tp, float)) / np.asarray(period, float)
 
 
@@ -100,6 +111,16 @@ def conjunction_mean_anomaly(ecc: np.ndarray, omega: np.ndarray) -> np.ndarray:
 
     No validation: the hot path (the model's coordinate transform) calls it directly;
     :func:`tp_to_tc` and :func:`tc_to_tp` check the eccentricity first.
+
+    Parameters
+    ----------
+    ecc, omega : ndarray
+        Eccentricities in [0, 1) and the star's arguments of periastron (radians).
+
+    Returns
+    -------
+    ndarray
+        The mean anomaly at conjunction, radians.
     """
     half_nu = 0.5 * (np.mod(1.5 * np.pi - omega, TWO_PI) - np.pi)
     E = 2.0 * np.arctan2(np.sqrt(1.0 - ecc) * np.sin(half_nu), np.sqrt(1.0 + ecc) * np.cos(half_nu))
@@ -116,6 +137,18 @@ def tp_to_tc(tp: ArrayLike, period: ArrayLike, ecc: ArrayLike, omega: ArrayLike)
     The conjunction is the one that follows ``tp`` within the half-period either side
     of it: ``tc = tp + P M_c / (2 pi)`` with ``M_c`` in (-pi, pi] the mean anomaly at
     ``nu = pi / 2 - omega``.
+
+    Parameters
+    ----------
+    tp, period : array_like
+        Time of periastron and period (days).
+    ecc, omega : array_like
+        Eccentricity in [0, 1) and the star's argument of periastron (radians).
+
+    Returns
+    -------
+    ndarray
+        The time of conjunction (days, the time system of ``tp``).
     """
     return (
         np.asarray(tp, float)
@@ -124,7 +157,20 @@ def tp_to_tc(tp: ArrayLike, period: ArrayLike, ecc: ArrayLike, omega: ArrayLike)
 
 
 def tc_to_tp(tc: ArrayLike, period: ArrayLike, ecc: ArrayLike, omega: ArrayLike) -> np.ndarray:
-    """Time of periastron from the time of conjunction (inverse of :func:`tp_to_tc`)."""
+    """Time of periastron from the time of conjunction (inverse of :func:`tp_to_tc`).
+
+    Parameters
+    ----------
+    tc, period : array_like
+        Time of conjunction and period (days).
+    ecc, omega : array_like
+        Eccentricity in [0, 1) and the star's argument of periastron (radians).
+
+    Returns
+    -------
+    ndarray
+        The time of periastron (days, the time system of ``tc``).
+    """
     return (
         np.asarray(tc, float)
         - np.asarray(period, float) * _conjunction_mean_anomaly(ecc, omega) / TWO_PI
@@ -136,6 +182,16 @@ def to_sqrt_e(ecc: ArrayLike, omega: ArrayLike) -> tuple[np.ndarray, np.ndarray]
 
     Uniform sampling in these two coordinates inside the unit disc is uniform in
     e on [0, 1) and in omega on [0, 2 pi) (Eastman, Gaudi & Agol 2013, PASP 125, 83).
+
+    Parameters
+    ----------
+    ecc, omega : array_like
+        Eccentricity and argument of periastron (radians).
+
+    Returns
+    -------
+    tuple of ndarray
+        sqrt(e) cos omega and sqrt(e) sin omega.
     """
     s = np.sqrt(np.asarray(ecc, float))
     omega = np.asarray(omega, float)
@@ -143,28 +199,83 @@ def to_sqrt_e(ecc: ArrayLike, omega: ArrayLike) -> tuple[np.ndarray, np.ndarray]
 
 
 def from_sqrt_e(h: ArrayLike, k: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
-    """(e, omega) from (sqrt(e) cos omega, sqrt(e) sin omega); omega in [0, 2 pi)."""
+    """(e, omega) from (sqrt(e) cos omega, sqrt(e) sin omega); omega in [0, 2 pi).
+
+    Parameters
+    ----------
+    h, k : array_like
+        sqrt(e) cos omega and sqrt(e) sin omega.
+
+    Returns
+    -------
+    tuple of ndarray
+        The eccentricity and the argument of periastron (radians).
+    """
     h = np.asarray(h, float)
     k = np.asarray(k, float)
     return h * h + k * k, np.mod(np.arctan2(k, h), TWO_PI)
 
 
 def orbital_radius(nu: ArrayLike, a: ArrayLike, ecc: ArrayLike) -> np.ndarray:
-    """Distance on the conic, r = a (1 - e^2) / (1 + e cos nu)."""
+    """Distance on the conic, r = a (1 - e^2) / (1 + e cos nu).
+
+    Parameters
+    ----------
+    nu, a, ecc : array_like
+        True anomaly (radians), semi-major axis and eccentricity.
+
+    Returns
+    -------
+    ndarray
+        The separation, in the unit of ``a``.
+    """
     ecc = np.asarray(ecc, float)
     return np.asarray(a, float) * (1.0 - ecc**2) / (1.0 + ecc * np.cos(np.asarray(nu, float)))
 
 
 def periastron_distance(a: ArrayLike, ecc: ArrayLike) -> np.ndarray:
-    """a (1 - e)."""
+    """The periastron distance a (1 - e).
+
+    Parameters
+    ----------
+    a, ecc : array_like
+        Semi-major axis and eccentricity.
+
+    Returns
+    -------
+    ndarray
+        In the unit of ``a``.
+    """
     return np.asarray(a, float) * (1.0 - np.asarray(ecc, float))
 
 
 def apastron_distance(a: ArrayLike, ecc: ArrayLike) -> np.ndarray:
-    """a (1 + e)."""
+    """The apastron distance a (1 + e).
+
+    Parameters
+    ----------
+    a, ecc : array_like
+        Semi-major axis and eccentricity.
+
+    Returns
+    -------
+    ndarray
+        In the unit of ``a``.
+    """
     return np.asarray(a, float) * (1.0 + np.asarray(ecc, float))
 
 
 def semi_minor_axis(a: ArrayLike, ecc: ArrayLike) -> np.ndarray:
-    """b = a sqrt(1 - e^2)."""
+    """The semi-minor axis b = a sqrt(1 - e^2).
+
+    Parameters
+    ----------
+    a, ecc : array_like
+        Semi-major axis and eccentricity.
+
+    Returns
+    -------
+    ndarray
+        In the unit of ``a``.
+    """
     return np.asarray(a, float) * np.sqrt(1.0 - np.asarray(ecc, float) ** 2)

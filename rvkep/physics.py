@@ -63,7 +63,19 @@ def mass_function(period: ArrayLike, K: ArrayLike, ecc: ArrayLike = 0.0, *, quan
 
     Parameters
     ----------
-    period : days;  K : m/s;  ecc : eccentricity.
+    period : array_like or Quantity
+        Orbital period (days).
+    K : array_like or Quantity
+        Semi-amplitude (m/s).
+    ecc : array_like
+        Eccentricity.
+    quantity : bool
+        Return an astropy Quantity (also when any input is one).
+
+    Returns
+    -------
+    ndarray or Quantity
+        The mass function, solar masses.
     """
     P, q1 = _value(period, u.day)
     K_, q2 = _value(K, u.m / u.s)
@@ -110,9 +122,23 @@ def minimum_mass(
 
     Parameters
     ----------
-    period : days;  K : m/s;  ecc : eccentricity;  star_mass : solar masses.
+    period : array_like or Quantity
+        Orbital period (days).
+    K : array_like or Quantity
+        Semi-amplitude (m/s).
+    ecc : array_like
+        Eccentricity.
+    star_mass : array_like or Quantity
+        The star's mass (solar masses).
     unit : {"jupiter", "earth", "sun"}
         Unit of the plain-float result.
+    quantity : bool
+        Return an astropy Quantity (also when any input is one).
+
+    Returns
+    -------
+    ndarray or Quantity
+        m sin i in ``unit`` masses.
 
     References
     ----------
@@ -137,7 +163,20 @@ def minimum_mass(
 
 
 def minimum_mass_light(period, K, ecc, star_mass, *, unit: str = "jupiter"):
-    """The light-companion approximation m sin i = f^(1/3) M^(2/3) (for comparison)."""
+    """The light-companion approximation m sin i = f^(1/3) M^(2/3) (for comparison).
+
+    Parameters
+    ----------
+    period, K, ecc, star_mass : array_like
+        As for :func:`minimum_mass`.
+    unit : {"jupiter", "earth", "sun"}
+        Unit of the result.
+
+    Returns
+    -------
+    ndarray
+        m sin i in ``unit`` masses, with the companion's own mass neglected.
+    """
     f = mass_function(period, K, ecc)
     M, _ = _value(star_mass, u.M_sun)
     return _mass_out(np.cbrt(f * M * M) * M_SUN, unit, False)
@@ -170,7 +209,21 @@ def semi_amplitude(
 
     Parameters
     ----------
-    period : days;  companion_mass : Jupiter masses;  star_mass : solar masses.
+    period : array_like or Quantity
+        Orbital period (days).
+    companion_mass : array_like or Quantity
+        The companion's true mass m (Jupiter masses).
+    star_mass : array_like or Quantity
+        The star's mass M (solar masses).
+    ecc, sin_i : array_like
+        Eccentricity and the sine of the inclination.
+    quantity : bool
+        Return an astropy Quantity (also when any input is one).
+
+    Returns
+    -------
+    ndarray or Quantity
+        K in m/s.
     """
     P, q1 = _value(period, u.day)
     m, q2 = _value(companion_mass, u.M_jup)
@@ -200,7 +253,19 @@ def semi_major_axis(
 
     Parameters
     ----------
-    period : days;  star_mass : solar masses;  companion_mass : Jupiter masses.
+    period : array_like or Quantity
+        Orbital period (days).
+    star_mass : array_like or Quantity
+        The star's mass (solar masses).
+    companion_mass : array_like or Quantity
+        The companion's mass (Jupiter masses; 0 neglects it).
+    quantity : bool
+        Return an astropy Quantity (also when any input is one).
+
+    Returns
+    -------
+    ndarray or Quantity
+        a in au.
     """
     P, q1 = _value(period, u.day)
     M, q2 = _value(star_mass, u.M_sun)
@@ -218,7 +283,17 @@ def transit_probability(a_au: ArrayLike, star_radius: ArrayLike, ecc=0.0, omega=
 
     Parameters
     ----------
-    a_au : au;  star_radius : solar radii.
+    a_au : array_like or Quantity
+        Semi-major axis (au).
+    star_radius : array_like or Quantity
+        The star's radius (solar radii).
+    ecc, omega : array_like
+        Eccentricity and the star's argument of periastron (radians).
+
+    Returns
+    -------
+    ndarray
+        The probability, at most 1.
     """
     a, _ = _value(a_au, u.au)
     R, _ = _value(star_radius, u.R_sun)
@@ -235,6 +310,20 @@ def equilibrium_temperature(
     T_eq = T_eff (1 - A)^(1/4) sqrt(R_star / (2 a)) (1 - e^2)^(-1/8): the orbit-averaged
     flux scales as 1 / (a^2 sqrt(1 - e^2)) (Mendez & Rivera-Valentin 2017, ApJL 837,
     L1, for the eccentric average; the circular formula is common practice, no source).
+
+    Parameters
+    ----------
+    a_au : array_like or Quantity
+        Semi-major axis (au).
+    star_radius, star_teff : array_like or Quantity
+        The star's radius (solar radii) and effective temperature (K).
+    ecc, albedo : array_like
+        Eccentricity and Bond albedo.
+
+    Returns
+    -------
+    ndarray
+        T_eq in K.
     """
     a, _ = _value(a_au, u.au)
     R, _ = _value(star_radius, u.R_sun)
@@ -249,6 +338,20 @@ def insolation(a_au: ArrayLike, star_radius: ArrayLike, star_teff: ArrayLike, ec
 
     L / L_sun = (R / R_sun)^2 (T_eff / 5772 K)^4 (Stefan-Boltzmann law; IAU 2015
     nominal solar values) and S = L / (a^2 sqrt(1 - e^2)) in solar units per au^2.
+
+    Parameters
+    ----------
+    a_au : array_like or Quantity
+        Semi-major axis (au).
+    star_radius, star_teff : array_like or Quantity
+        The star's radius (solar radii) and effective temperature (K).
+    ecc : array_like
+        Eccentricity.
+
+    Returns
+    -------
+    ndarray
+        S / S_earth.
     """
     a, _ = _value(a_au, u.au)
     R, _ = _value(star_radius, u.R_sun)
@@ -268,6 +371,22 @@ def draw_positive(
     """n draws from a normal of the given mean and error, truncated to > 0.
 
     With ``err <= 0`` every draw is ``value``.
+
+    Parameters
+    ----------
+    value, err : float
+        Mean (must be positive) and standard deviation.
+    n : int
+        Number of draws.
+    rng : Generator or int, optional
+        The random generator or its seed.
+    what : str
+        What is drawn, for the error message.
+
+    Returns
+    -------
+    ndarray
+        ``n`` positive draws.
     """
     rng = np.random.default_rng(rng)
     if not value > 0:
