@@ -43,15 +43,39 @@ __all__ = [
 ]
 
 def baseline(data: RVData) -> float:
-    """Time span of the data (days)."""
+    """Time span of the data (days).
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+
+    Returns
+    -------
+    float
+        Last time minus first, days.
+    """
     return float(data.time.max() - data.time.min())
 
 
 def default_period_range(
     data: RVData, min_period: float | None = None, max_period: float | None = None
 ) -> tuple[float, float]:
-    """The search range: ``min_period`` (default 1.2 d) to ``max_period`` (default the
-    time span)."""
+    """The search range: ``min_period`` (default :data:`DEFAULT_MIN_PERIOD`, 1.2 d) to
+    ``max_period`` (default the time span).
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    min_period, max_period : float, optional
+        The range's ends in days, when given.
+
+    Returns
+    -------
+    tuple of float
+        (shortest, longest) period, days.
+    """
     lo = DEFAULT_MIN_PERIOD if min_period is None else float(min_period)
     hi = baseline(data) if max_period is None else float(max_period)
     return lo, hi
@@ -67,7 +91,22 @@ def period_prior(
     data: RVData, period: float, period_range: tuple[float, float] | None = None
 ) -> LogUniform:
     """Log-uniform over the search range, widened to hold [0.8 P, 1.25 P]; for a start
-    period beyond half the span, up to LONG_PERIOD_SPANS spans (an open orbit)."""
+    period beyond half the span, up to LONG_PERIOD_SPANS spans (an open orbit).
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    period : float
+        The companion's start period, days.
+    period_range : tuple of float, optional
+        The search range (default :func:`default_period_range`).
+
+    Returns
+    -------
+    LogUniform
+        The period prior.
+    """
     lo, hi = period_range if period_range is not None else default_period_range(data)
     span = baseline(data)
     if span > 0 and period > 0.5 * span:
@@ -76,7 +115,18 @@ def period_prior(
 
 
 def tc_prior(tc: float, period: float) -> Uniform:
-    """Uniform over one period centred on ``tc`` (data time system)."""
+    """Uniform over one period centred on ``tc`` (data time system).
+
+    Parameters
+    ----------
+    tc, period : float
+        Start time of conjunction and period, days.
+
+    Returns
+    -------
+    Uniform
+        The prior on the time of conjunction.
+    """
     return Uniform(tc - 0.5 * period, tc + 0.5 * period)
 
 
@@ -90,12 +140,34 @@ CIRCULAR_BELOW = 1.2
 
 
 def ecc_prior(circular: bool = False) -> Prior:
-    """Uniform on [0, 0.99], or fixed at 0 for a circular orbit."""
+    """Uniform on [0, 0.99], or fixed at 0 for a circular orbit.
+
+    Parameters
+    ----------
+    circular : bool
+        Fix the orbit circular.
+
+    Returns
+    -------
+    Prior
+        The eccentricity prior.
+    """
     return Fixed(0.0) if circular else Uniform(0.0, DEFAULT_MAX_ECC)
 
 
 def centred_velocities(data: RVData) -> np.ndarray:
-    """Velocities with each instrument's median (its zero point) subtracted."""
+    """Velocities with each instrument's median (its zero point) subtracted.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+
+    Returns
+    -------
+    ndarray
+        A new array, m/s.
+    """
     out = np.array(data.rv, dtype=float, copy=True)
     for name in data.instruments:
         m = data.instrument == name
@@ -104,20 +176,61 @@ def centred_velocities(data: RVData) -> np.ndarray:
 
 
 def K_prior(data: RVData, K: float = 0.0) -> Uniform:  # noqa: N802 - the trade's symbol
-    """Uniform on [0, max(2 x peak-to-peak of the zero-point-free velocities, 2 K, 1)]."""
+    """Uniform on [0, max(2 x peak-to-peak of the zero-point-free velocities, 2 K, 1)].
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    K : float
+        The companion's start semi-amplitude, m/s.
+
+    Returns
+    -------
+    Uniform
+        The prior on K, m/s.
+    """
     spread = float(np.ptp(centred_velocities(data))) if len(data) else 0.0
     return Uniform(0.0, max(2.0 * spread, 2.0 * float(K), 1.0))
 
 
 def jitter_prior(data: RVData, name: str) -> Uniform:
-    """Uniform on [0, max(10, 3 x RMS of the instrument's velocities)] m/s."""
+    """Uniform on [0, max(10, 3 x RMS of the instrument's velocities)] m/s.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    name : str
+        The instrument.
+
+    Returns
+    -------
+    Uniform
+        The prior on its jitter, m/s.
+    """
     m = data.instrument == name
     rms = float(np.std(data.rv[m])) if m.sum() > 1 else 10.0
     return Uniform(0.0, max(10.0, 3.0 * rms))
 
 
 def start_jitter(data: RVData, name: str, prior: Prior | None = None) -> float:
-    """A start value for the jitter: half the median error, moved inside ``prior``."""
+    """A start value for the jitter: half the median error, moved inside ``prior``.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    name : str
+        The instrument.
+    prior : Prior, optional
+        The jitter's prior (its fixed value when fixed).
+
+    Returns
+    -------
+    float
+        The start jitter, m/s.
+    """
     m = data.instrument == name
     value = max(0.5 * float(np.median(data.err[m])), 0.1)
     if prior is None:

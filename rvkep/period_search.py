@@ -235,7 +235,7 @@ AUTO_ECC = 0.5
 #: the ``auto`` search's Keplerian checks look at periods from this up: shorter orbits
 #: are fitted circular (rvkep.defaults.CIRCULAR_BELOW), where the sine periodogram
 #: already is the Keplerian one; the checks then cost the same whatever the shortest
-#: period searched (0.2 d by default)
+#: period searched
 KEPLERIAN_MIN_PERIOD = CIRCULAR_BELOW
 
 
@@ -281,7 +281,7 @@ def search(data: RVData, min_period: float | None = None, max_period: float | No
     data : RVData
         The velocities.
     min_period, max_period : float, optional
-        Search range in days (default 0.2 d, a rocky planet's Roche limit, to the span).
+        Search range in days (default :data:`DEFAULT_MIN_PERIOD`, 1.2 d, to the span).
     fap_threshold : float
         Stop at the first peak with a larger false-alarm probability.
     max_signals : int
