@@ -20,13 +20,39 @@ MAX_NAME = 100
 
 
 def shown(name: str, width: int = 40) -> str:
-    """A printable, bounded form of a name for messages and the summary."""
+    """A printable, bounded form of a name for messages and the summary.
+
+    Parameters
+    ----------
+    name : str
+        Any text.
+    width : int
+        Most characters kept (a longer name ends in "...").
+
+    Returns
+    -------
+    str
+        The escaped name, quoted.
+    """
     text = name.encode("unicode_escape").decode("ascii")
     return repr(text if len(text) <= width else text[: width - 3] + "...")
 
 
 def name_problem(name: str, what: str = "target name") -> str | None:
-    """Why ``name`` cannot become a file or folder name, or None."""
+    """Why ``name`` cannot become a file or folder name, or None.
+
+    Parameters
+    ----------
+    name : str
+        The name.
+    what : str
+        What it names, for the message.
+
+    Returns
+    -------
+    str or None
+        The problem in a few words, or None for a good name.
+    """
     if not name or not name.strip():
         return f"empty {what}"
     if len(name) > MAX_NAME or len(name.encode("utf-8")) > 200:
@@ -50,6 +76,18 @@ _LATEX_RE = re.compile("|".join(re.escape(k) for k in _LATEX))
 def latex_escape(text: str) -> str:
     r"""Text as LaTeX prints it literally: every special character escaped in one pass.
 
+    Parameters
+    ----------
+    text : str
+        Any text.
+
+    Returns
+    -------
+    str
+        LaTeX source that prints ``text``.
+
+    Examples
+    --------
     >>> latex_escape(r"\input{/etc/passwd} osprey_2 50%")
     '\\textbackslash{}input\\{/etc/passwd\\} osprey\\_2 50\\%'
     """
@@ -60,7 +98,18 @@ def csv_cell(value):
     """A text cell that a spreadsheet will not run as a formula: one starting with
     ``= + - @`` (or a tab or carriage return) gets a leading apostrophe (the usual
     CSV-injection guard, OWASP; common practice, no source). Numbers, and text that
-    reads as a number (``-12.5``), pass unchanged."""
+    reads as a number (``-12.5``), pass unchanged.
+
+    Parameters
+    ----------
+    value : object
+        A cell's value.
+
+    Returns
+    -------
+    object
+        ``value``, or the guarded text.
+    """
     if not isinstance(value, str) or not value or value[0] not in "=+-@\t\r":
         return value
     try:
@@ -72,5 +121,16 @@ def csv_cell(value):
 
 def relative_link(folder_name: str, file_name: str) -> str:
     """A relative link ``./<folder>/<file>`` with the folder name percent-encoded, so that
-    no name (``javascript:...``, ``//host``) can become a scheme or another host."""
+    no name (``javascript:...``, ``//host``) can become a scheme or another host.
+
+    Parameters
+    ----------
+    folder_name, file_name : str
+        The target's folder and the file in it.
+
+    Returns
+    -------
+    str
+        The link.
+    """
     return f"./{quote(folder_name, safe='')}/{quote(file_name)}"

@@ -41,6 +41,18 @@ def check_output_folder(path: str | Path, option: str = "--out") -> Path:
     :data:`RUN_MARKERS`), so that ``--out /`` or ``--out ~`` cannot scatter files among
     others; a new folder is created later as the last component of the path only, so
     its parent must exist. Raises :class:`~rvkep.errors.OptionError` naming the option.
+
+    Parameters
+    ----------
+    path : str or Path
+        The folder.
+    option : str
+        The option that named it, for the message.
+
+    Returns
+    -------
+    Path
+        The folder.
     """
     p = Path(path)
     if p.exists():
@@ -69,7 +81,20 @@ def check_output_folder(path: str | Path, option: str = "--out") -> Path:
 
 def make_output_folder(path: str | Path, option: str = "--out") -> bool:
     """Create the output folder checked by :func:`check_output_folder` (its last
-    component only); returns whether it was created (so a refused run can remove it)."""
+    component only).
+
+    Parameters
+    ----------
+    path : str or Path
+        The folder.
+    option : str
+        The option that named it, for the message.
+
+    Returns
+    -------
+    bool
+        Whether it was created (so a refused run can remove it).
+    """
     p = Path(check_output_folder(path, option))
     try:
         p.mkdir()
@@ -91,7 +116,20 @@ def remove_if_empty(path: str | Path) -> None:
 
 
 def check_output_file(path: str | Path, option: str = "--out") -> Path:
-    """Refuse an output file whose folder does not exist or that names a folder."""
+    """Refuse an output file whose folder does not exist or that names a folder.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file.
+    option : str
+        The option that named it, for the message.
+
+    Returns
+    -------
+    Path
+        The file's path.
+    """
     p = Path(path)
     if p.is_dir():
         raise OptionError(f"{option} {p}: is a folder; give a file name")
@@ -104,7 +142,13 @@ def check_output_file(path: str | Path, option: str = "--out") -> Path:
 
 
 def current_umask() -> int:
-    """The process's file-creation mask (read without changing it where possible)."""
+    """The process's file-creation mask (read without changing it where possible).
+
+    Returns
+    -------
+    int
+        The umask, e.g. 0o022.
+    """
     try:
         with open("/proc/self/status") as fh:
             for line in fh:
@@ -122,6 +166,18 @@ def atomic_write(path: str | Path, mode: str = "w"):
     """Open a temporary file beside ``path``; rename it onto ``path`` on success.
 
     The file gets the permissions the umask gives any new file (not mkstemp's 0600).
+
+    Parameters
+    ----------
+    path : str or Path
+        The file to write.
+    mode : str
+        The open mode (``"w"`` or ``"wb"``).
+
+    Yields
+    ------
+    file
+        The temporary file, open for writing.
     """
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
@@ -142,6 +198,20 @@ def atomic_write(path: str | Path, mode: str = "w"):
 
 
 def write_text(path: str | Path, text: str) -> Path:
+    """Write ``text`` to ``path`` atomically (:func:`atomic_write`).
+
+    Parameters
+    ----------
+    path : str or Path
+        The file.
+    text : str
+        Its whole content.
+
+    Returns
+    -------
+    Path
+        The file's path.
+    """
     with atomic_write(path) as fh:
         fh.write(text)
     return Path(path)
@@ -151,7 +221,26 @@ def write_csv(path: str | Path | None, comment: str, fields: list[str], rows: li
               stream=None) -> Path | None:  # fmt: skip
     """A ``#`` comment line, then a CSV of ``rows`` (floats to 12 significant digits,
     a full Julian date to the second; None as an empty cell) to ``path`` (atomically),
-    or to ``stream`` when ``path`` is None."""
+    or to ``stream`` when ``path`` is None.
+
+    Parameters
+    ----------
+    path : str or Path or None
+        The file, or None to write to ``stream``.
+    comment : str
+        The first line's text (after ``#``).
+    fields : list of str
+        The columns.
+    rows : list of dict
+        One dict per row, keyed by column.
+    stream : file, optional
+        Where to write without a path.
+
+    Returns
+    -------
+    Path or None
+        The file's path, or None when written to ``stream``.
+    """
     import csv
     import io
 
@@ -169,7 +258,22 @@ def write_csv(path: str | Path | None, comment: str, fields: list[str], rows: li
 
 
 def save_figure(fig, path: str | Path, **kwargs) -> Path:
-    """Save a matplotlib figure atomically (format from the suffix) and close it."""
+    """Save a matplotlib figure atomically (format from the suffix) and close it.
+
+    Parameters
+    ----------
+    fig : Figure
+        The figure.
+    path : str or Path
+        The file (its suffix gives the format).
+    **kwargs
+        Passed to ``savefig`` (``dpi`` defaults to 150).
+
+    Returns
+    -------
+    Path
+        The file's path.
+    """
     import matplotlib.pyplot as plt
 
     path = Path(path)
@@ -181,7 +285,18 @@ def save_figure(fig, path: str | Path, **kwargs) -> Path:
 
 
 def clean_temporaries(folder: str | Path) -> int:
-    """Remove temporary files left by an interrupted run; returns how many."""
+    """Remove temporary files left by an interrupted run.
+
+    Parameters
+    ----------
+    folder : str or Path
+        The run's folder.
+
+    Returns
+    -------
+    int
+        How many were removed.
+    """
     n = 0
     for p in Path(folder).glob(TEMPORARY_PATTERN):
         with contextlib.suppress(OSError):
@@ -190,28 +305,9 @@ def clean_temporaries(folder: str | Path) -> int:
     return n
 
 
-@contextlib.contextmanager
-def folder_lock(folder: str | Path):
-    """Hold an advisory lock on an output folder for the length of a run.
-
-    The lock is :func:`fcntl.flock` on ``<folder>/.rvkep.lock``, which also records the
-    holder (process id, host, start time, command). The kernel releases it when the
-    process ends, however it ends, so a killed run never leaves a stale lock. A second
-    run into the same folder raises :class:`rvkep.errors.FolderBusyError` naming the
-    folder and the running process. The file is removed when the run ends. Where
-    ``fcntl`` does not exist (Windows) no lock is taken.
-    """
-    try:
-        import fcntl
-    except ImportError:  # pragma: no cover - not on POSIX systems
-        yield
-        return
-    import socket
-    import sys
-    import time
-
-    folder = Path(folder)
-    path = folder / LOCK_NAME
+def _take_lock(fcntl, folder: Path, path: Path) -> int:
+    """An open descriptor of ``path`` holding its exclusive lock, or
+    :class:`FolderBusyError` naming the holder when another process has it."""
     while True:
         fd = os.open(path, os.O_RDWR | os.O_CREAT, 0o666 & ~current_umask())
         try:
@@ -230,8 +326,43 @@ def folder_lock(folder: str | Path):
         except FileNotFoundError:
             same = False
         if same:
-            break
+            return fd
         os.close(fd)
+
+
+@contextlib.contextmanager
+def folder_lock(folder: str | Path):
+    """Hold an advisory lock on an output folder for the length of a run.
+
+    The lock is :func:`fcntl.flock` on ``<folder>/.rvkep.lock``, which also records the
+    holder (process id, host, start time, command). The kernel releases it when the
+    process ends, however it ends, so a killed run never leaves a stale lock. A second
+    run into the same folder raises :class:`rvkep.errors.FolderBusyError` naming the
+    folder and the running process. The file is removed when the run ends. Where
+    ``fcntl`` does not exist (Windows) no lock is taken.
+
+    Parameters
+    ----------
+    folder : str or Path
+        The output folder.
+
+    Yields
+    ------
+    None
+        While the lock is held.
+    """
+    try:
+        import fcntl
+    except ImportError:  # pragma: no cover - not on POSIX systems
+        yield
+        return
+    import socket
+    import sys
+    import time
+
+    folder = Path(folder)
+    path = folder / LOCK_NAME
+    fd = _take_lock(fcntl, folder, path)
     try:
         command = " ".join(["rvkep", *sys.argv[1:]])[:300]
         stamp = time.strftime("%Y-%m-%d %H:%M:%S")
