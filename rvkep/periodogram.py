@@ -67,6 +67,20 @@ def frequency_grid(
 
     Defaults: ``min_period`` = 1.2 d, ``max_period`` = the baseline; spacing
     1 / (oversampling x baseline) so each peak is sampled about ``oversampling`` times.
+
+    Parameters
+    ----------
+    t : ndarray
+        The times (days).
+    min_period, max_period : float, optional
+        The range (days).
+    oversampling : float
+        Grid points per 1 / baseline.
+
+    Returns
+    -------
+    ndarray
+        Increasing frequencies, cycles per day.
     """
     t = np.asarray(t, float)
     baseline = float(t.max() - t.min())
@@ -87,7 +101,20 @@ def frequency_grid(
 
 
 def centre_by_instrument(y: np.ndarray, dy: np.ndarray, instrument: np.ndarray) -> np.ndarray:
-    """y minus each instrument's error-weighted mean."""
+    """y minus each instrument's error-weighted mean.
+
+    Parameters
+    ----------
+    y, dy : ndarray
+        Values and their errors.
+    instrument : ndarray
+        Each point's instrument.
+
+    Returns
+    -------
+    ndarray
+        A new array.
+    """
     out = np.asarray(y, float).copy()
     w = 1.0 / np.asarray(dy, float) ** 2
     for name in np.unique(instrument):
@@ -185,6 +212,15 @@ def periodogram(
         Each point's instrument; each one's weighted mean is subtracted first.
     frequency : array, optional
         The grid (c/d); default from :func:`frequency_grid`.
+    min_period, max_period, oversampling : float, optional
+        The default grid's range (days) and oversampling.
+    label : str
+        What the periodogram is of (figures and reports).
+
+    Returns
+    -------
+    Periodogram
+        The power on the grid with the Baluev false-alarm levels.
     """
     from astropy.timeseries import LombScargle
 
@@ -214,6 +250,20 @@ def spectral_window(t: np.ndarray, frequency: np.ndarray, chunk: int | None = No
 
     Equals 1 at f = 0; peaks at the sidereal day and the year reveal where aliases of
     any signal will appear.
+
+    Parameters
+    ----------
+    t : ndarray
+        The times (days).
+    frequency : ndarray
+        Cycles per day.
+    chunk : int, optional
+        Frequencies per block (bounds the memory).
+
+    Returns
+    -------
+    ndarray
+        The window's power at each frequency.
     """
     t = np.asarray(t, float)
     t = t - np.round(np.mean(t))
@@ -267,6 +317,22 @@ def alias_candidates(
     periodogram at the alias reaches at least ``power_fraction`` of the peak's power:
     then the other peak could be the true signal and the chosen one its alias (Dawson &
     Fabrycky 2010).
+
+    Parameters
+    ----------
+    pg : Periodogram
+        The periodogram the peak is in.
+    period : float
+        The peak's period (days).
+    t : ndarray
+        The times (their window).
+    window_threshold, power_fraction : float
+        The flagging rule's two levels.
+
+    Returns
+    -------
+    list of AliasCandidate
+        The aliases in the periodogram's range.
     """
     f0 = 1.0 / period
     p0 = pg.power_at(period)
@@ -353,6 +419,25 @@ def power_many(
 ) -> np.ndarray:
     """The periodogram of :func:`periodogram` (instruments centred, generalized
     Lomb-Scargle with a floating mean, "standard" normalization) for many series on the
-    same times and errors at once: ``y`` has shape (B, N), the result (B, F). For many
-    calls on the same times, build a :class:`PowerBasis` once."""
+    same times and errors at once. For many calls on the same times, build a
+    :class:`PowerBasis` once.
+
+    Parameters
+    ----------
+    t, dy : ndarray
+        The times (days) and errors, (N,).
+    y : ndarray
+        The series, (B, N).
+    instrument : ndarray or None
+        Each point's instrument.
+    frequency : ndarray
+        Cycles per day, (F,).
+    chunk : int
+        Frequencies per block.
+
+    Returns
+    -------
+    ndarray
+        The power, (B, F).
+    """
     return PowerBasis(t, dy, instrument, frequency, chunk).power(y)

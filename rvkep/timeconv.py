@@ -39,13 +39,35 @@ __all__ = [
 
 
 def looks_like_date(text: str) -> bool:
-    """True for an ISO calendar date such as ``2026-12-10`` or ``2026-12-10T03:30``."""
+    """True for an ISO calendar date such as ``2026-12-10`` or ``2026-12-10T03:30``.
+
+    Parameters
+    ----------
+    text : str
+        A time as the user wrote it.
+
+    Returns
+    -------
+    bool
+        Whether it reads as a calendar date (not a number).
+    """
     text = text.strip()
     return len(text) >= 8 and text[:4].isdigit() and text[4] == "-"
 
 
 def parse_site(text: str) -> tuple[float, float, float]:
-    """``LAT,LON,HEIGHT`` (degrees north, degrees east, metres) checked."""
+    """``LAT,LON,HEIGHT`` (degrees north, degrees east, metres) checked.
+
+    Parameters
+    ----------
+    text : str
+        The ``--site`` value.
+
+    Returns
+    -------
+    tuple of float
+        Latitude, longitude and height.
+    """
     try:
         lat, lon, height = (float(x) for x in text.split(","))
     except ValueError:
@@ -59,7 +81,20 @@ def parse_site(text: str) -> tuple[float, float, float]:
 
 def data_offset(data_time: np.ndarray, given: float | None) -> float:
     """The offset between BJD_TDB and the data's times: ``given``, or 0 when the data
-    are full Julian dates (about 2.4e6); anything else must be stated."""
+    are full Julian dates (about 2.4e6); anything else must be stated.
+
+    Parameters
+    ----------
+    data_time : ndarray
+        The run's times.
+    given : float, optional
+        The ``--time-offset`` value.
+
+    Returns
+    -------
+    float
+        BJD_TDB minus the data's times.
+    """
     if given is not None:
         return float(given)
     if float(np.median(data_time)) > 2_000_000:
@@ -72,7 +107,17 @@ def data_offset(data_time: np.ndarray, given: float | None) -> float:
 def check_request(dates: list[str], ra_deg: float | None, dec_deg: float | None,
                   site: tuple[float, float, float] | None) -> None:  # fmt: skip
     """Refuse, in one line, a conversion that lacks the target's coordinates or the
-    site (never guessed), has them out of range, or holds a date that is not ISO 8601."""
+    site (never guessed), has them out of range, or holds a date that is not ISO 8601.
+
+    Parameters
+    ----------
+    dates : list of str
+        The dates asked for (UTC).
+    ra_deg, dec_deg : float
+        The target's ICRS right ascension and declination (degrees).
+    site : tuple of float
+        The observatory: latitude (degrees north), longitude (degrees east), height (m).
+    """
     if ra_deg is None or dec_deg is None or site is None:
         raise OptionError("calendar dates need the target's coordinates and the site: "
                           "--ra DEG --dec DEG --site LAT,LON,HEIGHT (never guessed)")  # fmt: skip
@@ -89,6 +134,22 @@ def dates_to_bjd_tdb(dates: list[str], ra_deg: float | None, dec_deg: float | No
                      site: tuple[float, float, float] | None) -> np.ndarray:  # fmt: skip
     """BJD_TDB of UTC calendar dates (ISO 8601) seen from ``site`` toward (ra, dec).
 
+    Parameters
+    ----------
+    dates : list of str
+        ISO 8601 dates and times, UTC.
+    ra_deg, dec_deg : float
+        The target's ICRS right ascension and declination (degrees).
+    site : tuple of float
+        The observatory: latitude (degrees north), longitude (degrees east), height (m).
+
+    Returns
+    -------
+    ndarray
+        BJD_TDB of each date.
+
+    Examples
+    --------
     >>> bjd = dates_to_bjd_tdb(["2000-01-01T12:00:00"], 0.0, 90.0, (0.0, 0.0, 0.0))
     >>> round(float(bjd[0] - 2451545.0) * 86400)  # s: TDB - UTC 64.2, light time 191.5
     256
@@ -121,7 +182,18 @@ def offline_astropy():
 
 
 def site_location(site: tuple[float, float, float]):
-    """An astropy ``EarthLocation`` of (latitude deg, longitude deg east, height m)."""
+    """An astropy ``EarthLocation`` of (latitude deg, longitude deg east, height m).
+
+    Parameters
+    ----------
+    site : tuple of float
+        The observatory: latitude (degrees north), longitude (degrees east), height (m).
+
+    Returns
+    -------
+    EarthLocation
+        The site.
+    """
     from astropy import units as u
     from astropy.coordinates import EarthLocation
 
@@ -131,7 +203,22 @@ def site_location(site: tuple[float, float, float]):
 
 def utc_to_bjd_tdb(t, ra_deg: float, dec_deg: float, site: tuple[float, float, float]):
     """BJD_TDB (array of float) of astropy ``Time`` instants ``t``, seen from ``site``
-    toward ICRS (ra, dec); call inside :func:`offline_astropy`."""
+    toward ICRS (ra, dec); call inside :func:`offline_astropy`.
+
+    Parameters
+    ----------
+    t : Time
+        The instants.
+    ra_deg, dec_deg : float
+        The target's ICRS right ascension and declination (degrees).
+    site : tuple of float
+        The observatory: latitude (degrees north), longitude (degrees east), height (m).
+
+    Returns
+    -------
+    ndarray
+        BJD_TDB of each instant.
+    """
     from astropy import units as u
     from astropy.coordinates import SkyCoord
     from astropy.time import Time
