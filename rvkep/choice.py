@@ -51,7 +51,18 @@ HARMONICS = ((0.5, "first harmonic (P/2)"), (1.0 / 3.0, "second harmonic (P/3)")
 
 
 def periods_of(fit) -> list[float]:
-    """The companions' periods of a fit, in its order."""
+    """The companions' periods of a fit, in its order.
+
+    Parameters
+    ----------
+    fit : FitResult
+        A best fit.
+
+    Returns
+    -------
+    list of float
+        Periods, days.
+    """
     return [float(fit.params[f"{c.label}.period"]) for c in fit.model.companions]
 
 
@@ -66,7 +77,18 @@ def _refit_from(fit, trend: int):
 def nested_refits(fits_by_degree: list[list]) -> tuple[list[list], int]:
     """The fits per trend degree (index: degree order, then companion count) with each
     higher degree's fit restarted from the lower degree's optimum where that was
-    better; returns (new lists, number of fits improved). The inputs are unchanged."""
+    better. The inputs are unchanged.
+
+    Parameters
+    ----------
+    fits_by_degree : list of list of FitResult
+        Per trend degree (lowest first), the fits by companion count.
+
+    Returns
+    -------
+    tuple
+        The new lists and the number of fits improved.
+    """
     out = [list(f) for f in fits_by_degree]
     improved = 0
     for d in range(1, len(out)):
@@ -84,7 +106,18 @@ def nested_refits(fits_by_degree: list[list]) -> tuple[list[list], int]:
 def occam_choice(candidates: list) -> int:
     """The index of the chosen fit among ``candidates`` (FitResults): in order of
     their number of free parameters (then BIC), a candidate replaces the current
-    choice only if its BIC is lower by more than BIC_THRESHOLD."""
+    choice only if its BIC is lower by more than BIC_THRESHOLD.
+
+    Parameters
+    ----------
+    candidates : list of FitResult
+        The competing models.
+
+    Returns
+    -------
+    int
+        The index of the chosen one.
+    """
     order = sorted(range(len(candidates)), key=lambda i: (candidates[i].n_free,
                                                           candidates[i].bic))  # fmt: skip
     chosen = order[0]
@@ -134,7 +167,20 @@ def harmonic_check(fit, span: float) -> tuple[object, list[str], list[dict]]:
     """Companions at a harmonic ratio of another: kept only if they beat the other
     refitted eccentric by more than BIC_THRESHOLD. Returns (the fit, dropped
     companions removed; the notes; one record per test: ``companion``, ``of``,
-    ``ratio``, ``delta_bic``, ``kept``)."""
+    ``ratio``, ``delta_bic``, ``kept``).
+
+    Parameters
+    ----------
+    fit : FitResult
+        The chosen fit.
+    span : float
+        The data's span (days), which sets the frequency resolution.
+
+    Returns
+    -------
+    tuple
+        The fit, the notes and the records.
+    """
     notes, records = [], []
     tested = set()
     while True:
@@ -170,7 +216,20 @@ def _same_periods(p: list[float], q: list[float], tol: float = 0.01) -> bool:
 def alternatives(candidates: list, chosen) -> list[str]:
     """Notes naming candidates with other periods that fit nearly as well as
     ``chosen``: within BIC_THRESHOLD in BIC, or within LNL_CLOSE in ln L at the same
-    number of free parameters (at most three, closest first)."""
+    number of free parameters (at most three, closest first).
+
+    Parameters
+    ----------
+    candidates : list of FitResult
+        Every model compared.
+    chosen : FitResult
+        The one chosen.
+
+    Returns
+    -------
+    list of str
+        The notes.
+    """
     mine = periods_of(chosen)
     close = []
     for c in candidates:
@@ -202,7 +261,21 @@ def instrument_support(fit, label: str) -> dict:
     (weights 1 / (err^2 + jitter^2), diagonal), the joint K, and the chi-square of the
     per-instrument values about it with its p-value (common practice, no source; the
     idea of a signal's support across data sets as in Mortier & Collier Cameron 2017,
-    A&A 601, A110)."""
+    A&A 601, A110).
+
+    Parameters
+    ----------
+    fit : FitResult
+        The fit holding the companion.
+    label : str
+        The companion.
+
+    Returns
+    -------
+    dict
+        ``instruments`` (each one's ``K`` and ``sd``), the joint ``K``, and ``chi2`` and
+        ``p`` of the consistency test.
+    """
     from scipy.stats import chi2 as chi2_dist
 
     from rvkep.orbit import radial_velocity
@@ -239,7 +312,18 @@ def instrument_support(fit, label: str) -> dict:
 
 def support_check(fit) -> tuple[object, list[str]]:
     """Companions seen by one instrument only, where the others could test them and
-    disagree (SUPPORT_P), are not adopted: returns (the fit without them, notes)."""
+    disagree (SUPPORT_P), are not adopted.
+
+    Parameters
+    ----------
+    fit : FitResult
+        The chosen fit.
+
+    Returns
+    -------
+    tuple
+        The fit without such companions, and the notes.
+    """
     notes = []
     if len(fit.model.instruments) < 2:
         return fit, notes
@@ -269,8 +353,23 @@ def long_period_stage(fits: list, data, period_range,
     """The fits by companion count (0 .. N), each count k >= 1 also tried as the fit
     with k - 1 companions plus one on the long-period grid (see the module text).
 
-    Returns (fits, notes): a copy of the list with the better fit of each count, and a
-    note for each count where the long-period companion won."""
+    Parameters
+    ----------
+    fits : list of FitResult
+        The fits by companion count.
+    data : RVData
+        The velocities.
+    period_range : tuple of float
+        The search range (the grid starts at half the span).
+    n_starts : int
+        Starts per grid period.
+
+    Returns
+    -------
+    tuple
+        A copy of the list with the better fit of each count, and a note for each
+        count where the long-period companion won.
+    """
     from rvkep.defaults import LONG_PERIOD_SPANS, baseline
     from rvkep.errors import RvkepError
     from rvkep.optimize import _add_one
