@@ -69,7 +69,13 @@ _INSTALL = 'the N-body model needs REBOUND: pip install "rvkep[dynamics]"'
 
 def require_rebound():
     """The ``rebound`` module, or :class:`~rvkep.errors.OptionError` with the install
-    line when it is missing."""
+    line when it is missing.
+
+    Returns
+    -------
+    module
+        ``rebound``.
+    """
     try:
         import rebound
     except ImportError:
@@ -131,8 +137,21 @@ def integrator_for(period, ecc, masses, star_mass: float) -> str:
     or two orbits cross (the inner apoastron reaches the outer periastron), where
     encounters can be close. A heavy 2:1 pair (K 88 and 214 m/s around 0.37 solar
     masses, e 0.25, not Hill stable) stays within 0.05 m/s of IAS15 over ten years
-    with WHFast at P_min/20 (tests/kernel/test_nbody.py), so Hill instability alone does not
-    send a system to the slower integrator."""
+    with WHFast at P_min/20 (tests/kernel/test_nbody.py), so Hill instability alone does
+    not send a system to the slower integrator.
+
+    Parameters
+    ----------
+    period, ecc, masses : array_like
+        Per companion: period (days), eccentricity, mass (solar masses).
+    star_mass : float
+        Solar masses.
+
+    Returns
+    -------
+    str
+        The integrator's name.
+    """
     P = np.atleast_1d(np.asarray(period, float))
     e = np.atleast_1d(np.asarray(ecc, float))
     if P.size == 0:
@@ -174,6 +193,11 @@ def simulation(
         Default: :func:`integrator_for`.
     node : float or array_like
         Longitudes of the node on the sky (radians), shared or one per companion.
+
+    Returns
+    -------
+    rebound.Simulation
+        Star first, then the companions in Jacobi coordinates.
     """
     rebound = require_rebound()
     P = np.atleast_1d(np.asarray(period, float))
@@ -238,10 +262,22 @@ def star_velocity(
 ) -> np.ndarray:
     """The star's line-of-sight velocity (m/s) at times ``t_rel`` (days from the epoch).
 
-    Parameters are those of :func:`simulation`. Returns shape ``t_rel.shape``. Positive
-    values move away from the observer, as a radial velocity does; for well-separated
-    light companions this is the sum of the Keplerians with the same elements. The
-    unguarded integration (for worker threads) is ``star_velocity.__wrapped__``.
+    Positive values move away from the observer, as a radial velocity does; for
+    well-separated light companions this is the sum of the Keplerians with the same
+    elements. The unguarded integration (for worker threads) is
+    ``star_velocity.__wrapped__``.
+
+    Parameters
+    ----------
+    t_rel : array_like
+        Times from the epoch (days), before or after it.
+    period, tp_rel, ecc, omega, K, star_mass, inclination, integrator, node
+        As for :func:`simulation`.
+
+    Returns
+    -------
+    ndarray
+        The velocity (m/s), shape ``t_rel.shape``.
     """
     t = np.asarray(t_rel, float)
     flat = t.ravel()
@@ -298,7 +334,13 @@ def threads() -> int:
     """Threads :func:`star_velocity_rows` spreads its rows over: ``OMP_NUM_THREADS``
     when set (rvkep's batch and limits workers set it to 1), else the cores this
     process may use. REBOUND's C integrator runs without Python's lock (ctypes), so
-    the rows integrate side by side: 1.5x on 2 cores (16 four-planet rows)."""
+    the rows integrate side by side: 1.5x on 2 cores (16 four-planet rows).
+
+    Returns
+    -------
+    int
+        At least 1.
+    """
     import os
 
     given = os.environ.get("OMP_NUM_THREADS", "")
@@ -325,7 +367,22 @@ def _pool(n: int):
 def orientation(columns, labels, rows=slice(None)) -> tuple[np.ndarray, np.ndarray]:
     """(inclinations, nodes) in radians, each (n_draws, n_companions), from posterior
     or model columns: ``dynamics.cos_inc`` (shared, nodes 0) or ``dynamics.cos_inc.<L>``
-    and ``dynamics.node.<L>`` (the first companion's node 0); edge-on without them."""
+    and ``dynamics.node.<L>`` (the first companion's node 0); edge-on without them.
+
+    Parameters
+    ----------
+    columns : mapping of str to array
+        Posterior or model columns.
+    labels : list of str
+        The companions.
+    rows : slice or index array
+        The draws to take.
+
+    Returns
+    -------
+    tuple of ndarray
+        Inclinations and nodes.
+    """
 
     def col(key):
         return np.atleast_1d(np.asarray(columns[key], float))[rows]
@@ -347,9 +404,26 @@ def orientation(columns, labels, rows=slice(None)) -> tuple[np.ndarray, np.ndarr
 def mutual_inclination(inc1, node1, inc2, node2) -> np.ndarray:
     """The angle between two orbit planes (radians) from their inclinations and nodes
     on the sky: cos Phi = cos i1 cos i2 + sin i1 sin i2 cos(node1 - node2) (spherical
-    trigonometry; common practice, no source)."""
+    trigonometry; common practice, no source).
+
+    Parameters
+    ----------
+    inc1, node1, inc2, node2 : array_like
+        Inclinations and nodes of the two orbits (radians).
+
+    Returns
+    -------
+    ndarray
+        The mutual inclination, radians in [0, pi].
+    """
     c = np.cos(inc1) * np.cos(inc2) + np.sin(inc1) * np.sin(inc2) * np.cos(node1 - node2)
     return np.arccos(np.clip(c, -1.0, 1.0))
+
+
+def _per_row(x, shape: tuple[int, int]) -> np.ndarray:
+    """A value per row, or per row and companion, as an (n_sets, n_companions) array."""
+    x = np.asarray(x, float)
+    return np.broadcast_to(x[:, None] if x.ndim == 1 else x, shape)
 
 
 def star_velocity_rows(
@@ -361,18 +435,28 @@ def star_velocity_rows(
     (n_sets, n_times). ``inclination`` and ``node`` (radians) have one value per row,
     or a row of one per companion (:func:`orientation`); a row that
     cannot be integrated (an orbit crossing, an escape) gives NaN. Rows run on
-    :func:`threads` threads; each row's result is the same whatever their number."""
+    :func:`threads` threads; each row's result is the same whatever their number.
+
+    Parameters
+    ----------
+    t_rel : ndarray
+        Times from the epoch (days).
+    arr : dict
+        The companions' matrices.
+    star_mass : ndarray or float
+        Solar masses, per row or shared.
+    inclination, node : ndarray or float
+        Radians, per row (and per companion).
+
+    Returns
+    -------
+    ndarray
+        (n_sets, n_times) velocities, m/s.
+    """
     n = arr["period"].shape[0]
     out = np.empty((n, np.size(t_rel)))
     mass = np.broadcast_to(np.asarray(star_mass, float), (n,))
-    nc = arr["period"].shape[1]
-
-    def per_row(x):  # a value per row, or per row and companion
-        x = np.asarray(x, float)
-        return np.broadcast_to(x[:, None] if x.ndim == 1 else x, (n, nc))
-
-    inc, nodes = per_row(inclination), per_row(node)
-
+    inc, nodes = (_per_row(x, arr["period"].shape) for x in (inclination, node))
     interrupted = []
 
     def row(r: int) -> None:
