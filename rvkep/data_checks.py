@@ -52,7 +52,19 @@ _MIN_PLAUSIBLE_ERR = 1e-4
 
 
 def check_ranges(path: Path, line_numbers: np.ndarray, time, rv, err, scale: float) -> None:
-    """Refuse values no spectrograph gives: speeds beyond light, times beyond dates."""
+    """Refuse values no spectrograph gives: speeds beyond light, times beyond dates.
+
+    Parameters
+    ----------
+    path : Path
+        The file, for the messages.
+    line_numbers : ndarray
+        Each row's line in the file.
+    time, rv, err : ndarray
+        The columns as read.
+    scale : float
+        What turns the velocities into m/s (1000 for km/s).
+    """
     for label, values, limit, what in (
         ("time", time, _MAX_TIME, f"beyond {_MAX_TIME:g} days, not a date"),
         ("rv", rv * scale, _C_MPS, "faster than light (m/s)"),
@@ -66,7 +78,17 @@ def check_ranges(path: Path, line_numbers: np.ndarray, time, rv, err, scale: flo
 
 def check_time_system(path: Path, line_numbers: np.ndarray, time: np.ndarray) -> None:
     """All times of one file in one system (full JD, JD - 2400000 or MJD, a smaller
-    offset): a mixture spans millions of days and no fit can make sense of it."""
+    offset): a mixture spans millions of days and no fit can make sense of it.
+
+    Parameters
+    ----------
+    path : Path
+        The file, for the messages.
+    line_numbers : ndarray
+        Each row's line in the file.
+    time : ndarray
+        The times.
+    """
     classes = time_class(time)
     if classes.size and np.any(classes != classes[0]):
         common = np.bincount(classes).argmax()
@@ -79,6 +101,16 @@ def check_time_system(path: Path, line_numbers: np.ndarray, time: np.ndarray) ->
 
 
 def warn_if_kms(path: Path, rv: np.ndarray, err: np.ndarray) -> None:
+    """Warn when errors are implausibly small (:class:`DataWarning`), or when velocities
+    and errors look like km/s in a file read as m/s (:class:`UnitWarning`).
+
+    Parameters
+    ----------
+    path : Path
+        The file, for the message.
+    rv, err : ndarray
+        Velocities and errors as read.
+    """
     med_err = float(np.median(err))
     spread = float(np.ptp(rv)) if rv.size else 0.0
     if med_err < _MIN_PLAUSIBLE_ERR:
@@ -97,7 +129,18 @@ def warn_if_kms(path: Path, rv: np.ndarray, err: np.ndarray) -> None:
 
 
 def first_duplicate(time: np.ndarray, names: np.ndarray) -> tuple[int, int] | None:
-    """Indices (i < j) of the first pair of rows with the same instrument and time."""
+    """Indices (i < j) of the first pair of rows with the same instrument and time.
+
+    Parameters
+    ----------
+    time, names : ndarray
+        Each row's time and instrument.
+
+    Returns
+    -------
+    tuple of int or None
+        The pair, or None when no row repeats another.
+    """
     _, codes = np.unique(names, return_inverse=True)
     order = np.lexsort((time, codes))
     same = (time[order][1:] == time[order][:-1]) & (codes[order][1:] == codes[order][:-1])
@@ -109,6 +152,17 @@ def first_duplicate(time: np.ndarray, names: np.ndarray) -> tuple[int, int] | No
 
 
 def check_duplicates(path: Path, line_numbers: np.ndarray, time, names) -> None:
+    """Refuse a row that repeats another's instrument and time, naming both lines.
+
+    Parameters
+    ----------
+    path : Path
+        The file, for the messages.
+    line_numbers : ndarray
+        Each row's line in the file.
+    time, names : ndarray
+        Each row's time and instrument.
+    """
     pair = first_duplicate(time, names)
     if pair is not None:
         first, second = pair
@@ -131,10 +185,32 @@ _TIME_NAMES = (
 
 
 def time_class(time) -> np.ndarray:
-    """The index in :data:`_TIME_NAMES` of each time's system."""
+    """The index in :data:`_TIME_NAMES` of each time's system.
+
+    Parameters
+    ----------
+    time : array_like
+        Times.
+
+    Returns
+    -------
+    ndarray
+        One index per time.
+    """
     return np.digitize(time, _TIME_BOUNDS, right=True)
 
 
 def time_system(time: np.ndarray) -> str:
-    """The name of the system the times' median lies in."""
+    """The name of the system the times' median lies in.
+
+    Parameters
+    ----------
+    time : ndarray
+        Times.
+
+    Returns
+    -------
+    str
+        For example ``"full JD/BJD (about 2.4e6)"``.
+    """
     return _TIME_NAMES[int(time_class(np.median(time)))]
