@@ -47,7 +47,7 @@ from rvkep.errors import DataError, OptionError, RvkepError
 from rvkep.names import csv_cell, name_problem, shown
 from rvkep.option_checks import check as check_options
 from rvkep.option_checks import from_cell
-from rvkep.options import TARGET_REQUIRED, columns, option
+from rvkep.options import TARGET_REQUIRED, columns, did_you_mean, option
 from rvkep.outputs import LOCK_NAME, clean_temporaries, write_text
 from rvkep.workers import INTERRUPTED, run_tasks
 
@@ -151,12 +151,8 @@ def _checked_header(path: Path, first: tuple[int, list[str]]) -> list[str]:
     known = ["name", "data", *(o.name for o in columns())]
     unknown = [c for c in header if c not in known]
     if unknown:
-        import difflib
-
-        close = difflib.get_close_matches(unknown[0], known, n=1)
-        hint = f" (did you mean {close[0]}?)" if close else ""
         raise DataError(f"{path}, line {line}: unknown column(s) "
-                        f"{', '.join(unknown)}{hint}")  # fmt: skip
+                        f"{', '.join(unknown)}{did_you_mean(unknown[0], known)}")  # fmt: skip
     return header
 
 

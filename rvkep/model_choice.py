@@ -16,9 +16,7 @@ References
 
 from __future__ import annotations
 
-import math
 import time
-import warnings
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -27,7 +25,9 @@ import numpy as np
 
 from rvkep.data import RVData
 from rvkep.errors import OptionError, RvkepError
+from rvkep.evidence import compute_evidence, run_seed
 from rvkep.options import TREND_DEGREES, parse_trend
+from rvkep.options import say as _say
 from rvkep.rotation import near_rotation, rotation_notes, rotation_prior, star_rotation
 
 if TYPE_CHECKING:
@@ -41,21 +41,10 @@ __all__ = [
     "star_rotation",
     "ModelChoice",
     "choose_model",
-    "EVIDENCE_THRESHOLD",
-    "dynamics_kind",
-    "check_dynamics",
-    "NBODY_STARTS",
-    "fit_dynamics",
-    "compute_evidence",
 ]
 
 
 BIC_THRESHOLD = 10.0
-
-
-def _say(opts: AnalyzeOptions, text: str) -> None:
-    if not opts.quiet:
-        print(text, flush=True)
 
 
 def choose_companions(search_result, data, base, period_range, max_companions: int,
@@ -108,7 +97,7 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
         search_result = search(
             data, opts.min_period, opts.max_period, opts.fap,
             max_signals=opts.companions if opts.companions is not None else opts.max_companions,
-            trend=base.trend, base=base, kind=opts.search, rng=_seed(opts, spec),
+            trend=base.trend, base=base, kind=opts.search, rng=run_seed(opts, spec),
             n_bootstrap=opts.bootstrap,
         )  # fmt: skip
     except ValueError as exc:
@@ -388,167 +377,3 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
     for note in choice.notes:
         _say(opts, f"note: {note}")
     return choice
-
-
-#: a model with more companions is chosen by evidence only if ln Z rises by more than
-#: this: a Bayes factor above e^5 ~ 150, "very strong" on the scale of Kass & Raftery
-#: (1995, 2 ln B > 10), the same bar as the BIC rule (Delta BIC ~ -2 ln B)
-EVIDENCE_THRESHOLD = 5.0
-
-
-def dynamics_kind(opts: AnalyzeOptions, spec=None) -> str:
-    """``--dynamics`` over the model file's ``[dynamics] kind``, else keplerian."""
-    return opts.dynamics or (spec.dynamics if spec is not None else None) or "keplerian"
-
-
-def check_dynamics(opts: AnalyzeOptions, spec, star) -> None:
-    """Refuse an N-body run that cannot start, before any folder is made: REBOUND
-    missing, or no stellar mass (the masses, and so the interactions, scale with it)."""
-    if dynamics_kind(opts, spec) == "keplerian":
-        return
-    from rvkep.nbody import require_rebound
-
-    require_rebound()
-    if star is None:
-        raise OptionError("--dynamics nbody needs the star's mass: give --star-mass (or a "
-                          "model file's [star] mass)")  # fmt: skip
-
-
-#: inclinations (cosines) the N-body best fit starts from, beside the model's own start
-NBODY_STARTS = (0.1, 0.5, 0.8)
-
-
-def fit_dynamics(choice: ModelChoice, opts: AnalyzeOptions, spec=None, star=None) -> ModelChoice:
-    """Stage 3b, with ``--dynamics nbody``: the chosen Keplerian model refitted as an
-    N-body one (:mod:`rvkep.nbody`), from the Keplerian optimum at several
-    inclinations; the two are compared (ln L, BIC) in ``dynamics_rows`` and the
-    N-body fit becomes the chosen one. Without companions there is nothing to
-    integrate and the Keplerian model stays, with a note."""
-    from rvkep.optimize import fit as best_fit
-
-    kind = dynamics_kind(opts, spec)
-    if kind == "keplerian":
-        return choice
-    kep = choice.fit
-    if not kep.model.companions:
-        choice.notes.append("--dynamics nbody: no companion was adopted, so the model stays "
-                            "Keplerian")  # fmt: skip
-        return choice
-    own = spec.dynamics_parameters_for(kind) if spec is not None else None
-    model = replace(kep.model, dynamics=kind, dynamics_parameters=own, star=star)
-    own_start = model.start_physical()
-    start = {k: v for k, v in kep.params.items() if k in own_start}
-    cos_keys = [f"dynamics.{p.name}" for p in model.dynamics_parameters
-                if p.name.startswith("cos_inc")]  # fmt: skip
-    lo, hi = model.dynamics_parameters[0].prior.bounds
-    cos_starts = dict.fromkeys([own_start[cos_keys[0]], *NBODY_STARTS])
-    starts = [model.from_physical({**own_start, **start, **dict.fromkeys(cos_keys, c)})[0]
-              for c in cos_starts if lo <= c <= hi]  # fmt: skip
-    _say(opts, f"N-body fit (REBOUND) of {len(kep.model.companions)} companion(s) from the "
-               f"Keplerian solution, {len(starts)} inclination start(s)")  # fmt: skip
-    nb = best_fit(model, starts)
-    rows = []
-    for name, f in (("keplerian", kep), ("nbody", nb)):
-        rows.append({"dynamics": name, "n_free": f.n_free, "log_likelihood": f.log_likelihood,
-                     "bic": f.bic})  # fmt: skip
-    best_bic = min(r["bic"] for r in rows)
-    for r in rows:
-        r["delta_bic"] = r["bic"] - best_bic
-    gain = nb.log_likelihood - kep.log_likelihood
-    inc = ", ".join(f"{k.removeprefix('dynamics.cos_inc').lstrip('.') or 'shared'} "
-                    f"{math.degrees(math.acos(min(1.0, nb.params[k]))):.1f}" for k in cos_keys)
-    _say(opts, f"N-body: ln L {nb.log_likelihood:.2f} against {kep.log_likelihood:.2f} "
-               f"(Keplerian), delta BIC {rows[1]['bic'] - rows[0]['bic']:+.2f}; inclination "
-               f"(deg) {inc} at the best fit")  # fmt: skip
-    if gain < -1.0:  # a nested model (sin i -> 1, light masses) should not lose
-        choice.notes.append(f"the N-body best fit has ln L lower than the Keplerian one by "
-                            f"{-gain:.1f}: the optimizer may have stopped early")  # fmt: skip
-    choice.fit = nb
-    choice.dynamics_rows = rows
-    return choice
-
-
-def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
-                     folder: Path | None = None) -> None:  # fmt: skip
-    """ln Z by nested sampling (:mod:`rvkep.samplers.nested`) for N - 1, N and N + 1
-    companions (every number fitted, with ``choose_by="evidence"``), kept in
-    ``choice.evidence``; with ``choose_by="evidence"`` the number of companions is
-    chosen by it (a larger number must raise ln Z by more than EVIDENCE_THRESHOLD).
-    The nested run of the chosen model is kept for its posterior (``choice.nested``)."""
-
-    by_n = {len(f.model.companions): f for f in choice.fits}
-    n = len(choice.fit.model.companions)
-    wanted = sorted(by_n) if opts.choose_by == "evidence" else [k for k in (n - 1, n, n + 1)
-                                                                 if k in by_n]  # fmt: skip
-    if not (opts.evidence or opts.choose_by == "evidence"):
-        wanted = [n]  # only the posterior of the chosen model (--sampler nested)
-    runs = {}
-    for k in wanted:
-        model = by_n[k].model
-        if model.ndim == 0:
-            continue
-        saved = folder / f"nested_{k}.save" if folder else None
-        runs[k] = _run_nested(by_n[k], opts, _seed(opts, spec), saved, choice.extra_notes)
-        _say(opts, f"  ln Z = {runs[k].extra['ln_z']:.2f} +- {runs[k].extra['ln_z_err']:.2f} "
-                   f"({runs[k].info['likelihood_calls']:,} likelihood calls, "
-                   f"{runs[k].info['seconds']:.1f} s)")  # fmt: skip
-    if opts.evidence or opts.choose_by == "evidence":
-        choice.evidence = [{"n_companions": k, "ln_z": r.extra["ln_z"],
-                            "ln_z_err": r.extra["ln_z_err"], "reliable": not r.info["missed_mode"],
-                            "likelihood_calls": r.info["likelihood_calls"],
-                            "seconds": r.info["seconds"]} for k, r in runs.items()]  # fmt: skip
-    missed = [k for k, r in runs.items() if r.info["missed_mode"]]
-    for k in missed:
-        r = runs[k]
-        note = (f"the nested run for {k} companion(s) never reached the best fit's likelihood "
-                f"(best ln L met {r.info['max_ln_l']:.1f}, best fit {r.info['start_ln_l']:.1f}): "
-                "its ln Z is UNRELIABLE (a narrow mode missed; more live points help)")  # fmt: skip
-        _say(opts, f"WARNING: {note}")
-        choice.extra_notes.append(note)
-    if opts.choose_by == "evidence" and missed:
-        _say(opts, "evidence: not used to choose (an unreliable run); the BIC choice stands")
-    elif opts.choose_by == "evidence" and runs:
-        ks = sorted(runs)
-        best = ks[0]
-        for k in ks[1:]:
-            if runs[k].extra["ln_z"] - runs[best].extra["ln_z"] > EVIDENCE_THRESHOLD:
-                best = k
-        if best != n:
-            _say(opts, f"evidence: {best} companion(s) chosen (BIC chose {n})")
-        choice.fit = by_n[best]
-        for row in choice.comparison:
-            row["chosen"] = row["n_companions"] == best
-        n = best
-    choice.nested = runs.get(n)
-
-
-def _seed(opts: AnalyzeOptions, spec=None) -> int:
-    """The run's seed: the option, else the model file's ``[sampling]`` seed, else 0."""
-    if opts.seed is not None:
-        return opts.seed
-    return spec.sampling.get("seed", 0) if spec else 0
-
-
-def _run_nested(fit, opts: AnalyzeOptions, seed: int, checkpoint: Path | None, notes: list[str]):
-    """One nested run of ``fit.model`` (checked against the best fit ``fit.theta``); a
-    checkpoint it could not resume is said on the terminal and kept in ``notes``."""
-    from rvkep.likelihood import LogPosterior
-    from rvkep.samplers import get_sampler
-    from rvkep.samplers.nested import NestedOptions
-    from rvkep.sampling import CheckpointNotice
-
-    model = fit.model
-    nopts = NestedOptions(seed=seed, progress=None if not opts.quiet else False,
-                          dlogz=0.5 if opts.quick else 0.1, checkpoint=checkpoint)  # fmt: skip
-    _say(opts, f"nested sampling: {len(model.companions)} companion(s), {model.ndim} "
-               f"parameters, {nopts.n_live(model.ndim)} live points")  # fmt: skip
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", CheckpointNotice)
-        run = get_sampler("nested").run(LogPosterior(model), fit.theta, nopts)
-    for w in caught:
-        if issubclass(w.category, CheckpointNotice):
-            _say(opts, f"note: {w.message}")
-            notes.append(str(w.message))
-        else:  # anything else the library says goes on as it was
-            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
-    return run

@@ -6,11 +6,17 @@ read or folder made.
 
 from __future__ import annotations
 
-import difflib
 import math
 
 from rvkep.errors import OptionError
-from rvkep.options import DEFAULT_MIN_PERIOD, Option, number_text, options_of, parse_trend
+from rvkep.options import (
+    DEFAULT_MIN_PERIOD,
+    Option,
+    did_you_mean,
+    number_text,
+    options_of,
+    parse_trend,
+)
 
 __all__ = ["check", "check_value", "from_text", "from_cell"]
 
@@ -187,9 +193,8 @@ def check(values: dict, command: str) -> dict:
     out = {}
     for name, value in values.items():
         if name not in known:
-            close = difflib.get_close_matches(name, list(known), n=1)
-            hint = f" (did you mean {close[0]}?)" if close else ""
-            raise OptionError(f"rvkep {command} has no option {name!r}{hint}")
+            raise OptionError(f"rvkep {command} has no option {name!r}"
+                              f"{did_you_mean(name, known)}")  # fmt: skip
         out[name] = check_value(known[name], value)
     _check_rules(out)
     return out

@@ -21,20 +21,13 @@ import numpy as np
 from rvkep import option_checks, options
 from rvkep.data import MIN_POINTS, DataWarning, RVData, check_size
 from rvkep.errors import OptionError, RvkepError
+from rvkep.evidence import run_nested, run_seed
 from rvkep.formatting import p_relation
 from rvkep.kepler import prepare_kernels
-from rvkep.model_choice import (
-    BIC_THRESHOLD,
-    ModelChoice,
-    _run_nested,
-    _say,
-    _seed,
-    check_dynamics,
-    choose_companions,
-    choose_model,
-    fit_dynamics,
-)
+from rvkep.model_choice import BIC_THRESHOLD, ModelChoice, choose_companions, choose_model
 from rvkep.names import name_problem
+from rvkep.nbody_fit import check_dynamics, fit_dynamics
+from rvkep.options import say as _say
 from rvkep.outputs import (
     check_output_folder,
     clean_temporaries,
@@ -156,11 +149,8 @@ def _options_from(opts: AnalyzeOptions | None, keywords: dict) -> AnalyzeOptions
         raise TypeError("give the options as AnalyzeOptions or as keywords, not both")
     unknown = [k for k in keywords if k not in _OPTION_NAMES]
     if unknown:
-        import difflib
-
-        close = difflib.get_close_matches(unknown[0], _OPTION_NAMES, n=1)
-        hint = f" (did you mean {close[0]}?)" if close else ""
-        raise TypeError(f"analyze() got an unexpected keyword argument {unknown[0]!r}{hint}")
+        raise TypeError(f"analyze() got an unexpected keyword argument {unknown[0]!r}"
+                        f"{options.did_you_mean(unknown[0], _OPTION_NAMES)}")  # fmt: skip
     return AnalyzeOptions(**keywords)
 
 
@@ -355,7 +345,7 @@ def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | No
     from rvkep.sampling import CheckpointNotice, SamplerOptions, UnconvergedWarning
 
     sampling_spec = spec.sampling if spec else {}
-    seed = _seed(opts, spec)
+    seed = run_seed(opts, spec)
     max_steps = opts.max_steps or sampling_spec.get("max_steps") or (1500 if opts.quick else 40000)
     if fit.model.ndim == 0:
         raise RvkepError("nothing to sample: every parameter is fixed")
@@ -363,7 +353,7 @@ def sample_posterior(fit, opts: AnalyzeOptions, spec=None, checkpoint: Path | No
         if nested is None or nested.model is not fit.model:
             saved = checkpoint.with_name("nested_posterior.save") if checkpoint else None
             notes: list[str] = []
-            nested = _run_nested(fit, opts, seed, saved, notes)
+            nested = run_nested(fit, opts, seed, saved, notes)
         else:
             notes = []
         return nested, notes + ["posterior by nested sampling (dynesty): weighted samples, "

@@ -5,7 +5,6 @@ mean", and each subcommand's arguments made from :data:`rvkep.options.OPTIONS`.
 from __future__ import annotations
 
 import argparse
-import difflib
 import re
 import sys
 from collections.abc import Callable
@@ -14,7 +13,7 @@ from typing import Any
 
 from rvkep.errors import OptionError
 from rvkep.option_checks import from_text
-from rvkep.options import OPTIONS, Option, options_of
+from rvkep.options import OPTIONS, Option, did_you_mean, options_of
 
 __all__ = ["Parser", "add_arguments"]
 
@@ -48,10 +47,7 @@ class Parser(argparse.ArgumentParser):
                 verb = "takes" if len(elsewhere) == 1 else "take"
                 return (f"unknown option {first}: rvkep {command} has no {flag} (rvkep "
                         f"{', rvkep '.join(elsewhere)} {verb} it)")  # fmt: skip
-            close = difflib.get_close_matches(flag, flags, n=1, cutoff=0.75)
-            if close:
-                return f"unknown option {first}; did you mean {close[0]}?"
-            return f"unknown option {first}"
+            return f"unknown option {first}{did_you_mean(flag, flags, cutoff=0.75)}"
         return f"unexpected argument {first!r}"
 
 

@@ -62,9 +62,9 @@ def test_help_of_every_subcommand_shows_defaults_and_no_doubled_percent(capsys):
 
 @pytest.mark.parametrize("argv, message", [
     (["analyze", "x.txt", "--star-mas", "1"],
-     "rvkep analyze: error: unknown option --star-mas; did you mean --star-mass?"),
+     "rvkep analyze: error: unknown option --star-mas (did you mean --star-mass?)"),
     (["periodogram", "x.txt", "--max-signal", "1"],
-     "rvkep periodogram: error: unknown option --max-signal; did you mean --max-signals?"),
+     "rvkep periodogram: error: unknown option --max-signal (did you mean --max-signals?)"),
     (["demo", "--model", "m.toml"],
      "rvkep demo: error: unknown option --model: rvkep demo has no --model (rvkep analyze "
      "takes it)"),

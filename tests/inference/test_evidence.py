@@ -12,7 +12,8 @@ from scipy import stats
 
 from rvkep.data import RVData
 from rvkep.eccentricity import eccentricity_tests, lucy_sweeney
-from rvkep.model_choice import EVIDENCE_THRESHOLD, choose_model
+from rvkep.evidence import EVIDENCE_THRESHOLD
+from rvkep.model_choice import choose_model
 from rvkep.orbit import radial_velocity
 from rvkep.pipeline import AnalyzeOptions
 
