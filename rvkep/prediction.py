@@ -128,10 +128,10 @@ def _measured_noise(columns, instrument, idx, typical_error, shape, rng):
     if f"offset.{instrument}" not in columns:
         known = sorted(k.removeprefix("offset.") for k in columns if k.startswith("offset."))
         raise ValueError(f"unknown instrument {instrument!r}; known: {', '.join(known)}")
-    n_all = len(next(iter(columns.values())))
     offset = np.asarray(columns[f"offset.{instrument}"], float)[idx, None]
-    jitter = np.asarray(columns.get(f"jitter.{instrument}", np.zeros(n_all)), float)[idx, None]
-    var = jitter**2 + float(typical_error) ** 2
+    var = np.full(offset.shape, float(typical_error) ** 2)
+    if f"jitter.{instrument}" in columns:
+        var = var + np.asarray(columns[f"jitter.{instrument}"], float)[idx, None] ** 2
     if "noise.amplitude" in columns:
         var = var + np.asarray(columns["noise.amplitude"], float)[idx, None] ** 2
     return offset, np.sqrt(var) * rng.standard_normal(shape)

@@ -51,49 +51,59 @@ def _summary_differs(new, old, path):
     return found
 
 
-def loose_differences(new, old, path=""):
-    """Differences that matter between two machines (see the module docstring)."""
-    summary = {"median", "minus", "plus"}
+def _walk(new, old, path, leaf, node=None):
+    """Paths where two JSON trees differ: dicts and lists walked alike, ``leaf(new,
+    old, path)`` compares the rest; ``node`` may take a subtree first (None: walk on)."""
+    found = node(new, old, path) if node is not None else None
+    if found is not None:
+        return found
     if isinstance(old, dict) and isinstance(new, dict):
-        numbers = all(isinstance(old.get(k), (int, float)) for k in summary)
-        if path.startswith(POSTERIOR) and summary <= set(old) and summary <= set(new) and numbers:
-            rest = {k: v for k, v in old.items() if k not in summary}
-            return _summary_differs(new, old, path) + loose_differences(
-                {k: v for k, v in new.items() if k not in summary}, rest, path
-            )
         found = [f"{path}.{k}: only in one" for k in sorted(set(old) ^ set(new))]
         for key in sorted(set(old) & set(new)):
-            found += loose_differences(new[key], old[key], f"{path}.{key}")
+            found += _walk(new[key], old[key], f"{path}.{key}", leaf, node)
         return found
     if isinstance(old, list) and isinstance(new, list):
         if len(old) != len(new):
             return [f"{path}: {len(new)} items, golden {len(old)}"]
         pairs = enumerate(zip(new, old, strict=True))
-        return [d for i, (a, b) in pairs for d in loose_differences(a, b, f"{path}[{i}]")]
-    floats = isinstance(old, float) and isinstance(new, (int, float))
-    if floats and path.startswith(POSTERIOR):
-        return differences(new, old, path, rtol=0.3) if abs(old) > 1e-6 else []
-    return differences(new, old, path, rtol=1e-4 if floats else 1e-9)
+        return [d for i, (a, b) in pairs for d in _walk(a, b, f"{path}[{i}]", leaf, node)]
+    return leaf(new, old, path)
 
 
-def differences(new, old, path="", rtol=1e-9):
-    """Paths where two JSON trees differ (floats within ``rtol`` are equal)."""
-    if isinstance(old, dict) and isinstance(new, dict):
-        found = [f"{path}.{k}: only in one" for k in sorted(set(old) ^ set(new))]
-        for key in sorted(set(old) & set(new)):
-            found += differences(new[key], old[key], f"{path}.{key}", rtol)
-        return found
-    if isinstance(old, list) and isinstance(new, list):
-        if len(old) != len(new):
-            return [f"{path}: {len(new)} items, golden {len(old)}"]
-        pairs = enumerate(zip(new, old, strict=True))
-        return [d for i, (a, b) in pairs for d in differences(a, b, f"{path}[{i}]", rtol)]
+def _leaf(new, old, path, rtol):
     numbers = (int, float)
     if isinstance(old, numbers) and isinstance(new, numbers) and not isinstance(old, bool):
         if math.isclose(new, old, rel_tol=rtol, abs_tol=1e-12):
             return []
         return [f"{path}: {new!r}, golden {old!r}"]
     return [] if new == old else [f"{path}: {new!r}, golden {old!r}"]
+
+
+def differences(new, old, path="", rtol=1e-9):
+    """Paths where two JSON trees differ (floats within ``rtol`` are equal)."""
+    return _walk(new, old, path, lambda a, b, p: _leaf(a, b, p, rtol))
+
+
+def loose_differences(new, old, path=""):
+    """Differences that matter between two machines (see the module docstring)."""
+    summary = {"median", "minus", "plus"}
+
+    def posterior_summary(new, old, path):
+        if not (isinstance(old, dict) and isinstance(new, dict) and path.startswith(POSTERIOR)):
+            return None
+        numbers = all(isinstance(old.get(k), (int, float)) for k in summary)
+        if not (summary <= set(old) and summary <= set(new) and numbers):
+            return None
+        rest = [{k: v for k, v in d.items() if k not in summary} for d in (new, old)]
+        return _summary_differs(new, old, path) + _walk(*rest, path, leaf, posterior_summary)
+
+    def leaf(new, old, path):
+        floats = isinstance(old, float) and isinstance(new, (int, float))
+        if floats and path.startswith(POSTERIOR):
+            return _leaf(new, old, path, 0.3) if abs(old) > 1e-6 else []
+        return _leaf(new, old, path, 1e-4 if floats else 1e-9)
+
+    return _walk(new, old, path, leaf, posterior_summary)
 
 
 def test_differences_sees_a_change():
