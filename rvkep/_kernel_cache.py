@@ -33,7 +33,7 @@ from pathlib import Path
 __all__ = ["cache_folder", "jit", "missing", "prepare", "KERNEL_MODULES"]
 
 #: the modules holding compiled kernels, each with its SIGNATURES table
-KERNEL_MODULES = ("rvkep._kepler_numba", "rvkep._power_numba")
+KERNEL_MODULES = ("rvkep._kepler_numba", "rvkep._posterior_numba", "rvkep._power_numba")
 
 
 @functools.cache
@@ -82,7 +82,14 @@ _FOLDER: Path | None | bool = False  # False: not looked up yet
 
 
 def cache_folder() -> Path | None:
-    """The folder the compiled kernels are cached in, or None when nothing is writable."""
+    """The folder the compiled kernels are cached in, or None when nothing is writable.
+
+    Returns
+    -------
+    Path or None
+        ``$RVKEP_CACHE_DIR`` if set, else the first writable candidate of the module
+        text, created if need be; None when none is writable.
+    """
     global _FOLDER
     if _FOLDER is False:
         _FOLDER = next((c for c in _candidates() if _writable(c)), None)
@@ -128,6 +135,16 @@ def jit(**options):
 
     Only the cache's location differs from ``njit(cache=True)``: what numba keys on and
     how it loads are numba's own.
+
+    Parameters
+    ----------
+    **options
+        Passed to :func:`numba.njit` (``cache`` is set here).
+
+    Returns
+    -------
+    callable
+        The compiled dispatcher, or a decorator when called without a function.
     """
     import numba
 
@@ -149,7 +166,18 @@ def jit(**options):
 
 def missing(module=None) -> list[tuple[str, str]]:
     """The (kernel, signature) pairs of ``module.SIGNATURES`` (default: of every kernel
-    module) that the cache lacks (every pair when nothing is cached)."""
+    module) that the cache lacks (every pair when nothing is cached).
+
+    Parameters
+    ----------
+    module : module, optional
+        A kernel module with ``SIGNATURES``; default every kernel module.
+
+    Returns
+    -------
+    list of (str, str)
+        (kernel name, signature) pairs that would compile on first use.
+    """
     from numba.core import sigutils
 
     if module is None:
@@ -248,6 +276,18 @@ def prepare(say=None, workers: int = 2) -> int:
     then loads them as a warm run does); otherwise, or when a worker fails, they compile
     here, one after the other. ``say(text, done, total)`` reports progress. Returns how
     many kernels were missing.
+
+    Parameters
+    ----------
+    say : callable, optional
+        ``say(text, done, total)`` for progress; None prints nothing.
+    workers : int, optional
+        Processes that compile side by side (2 by default).
+
+    Returns
+    -------
+    int
+        Number of kernels that were missing (0: all cached already).
     """
     jobs = sorted(missing(), key=lambda j: -_COST.get(j[0], 0.5))
     if not jobs:

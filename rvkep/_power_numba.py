@@ -33,6 +33,34 @@ def keplerian_power(t, y, w, starts, X, n_inst, G, freq, ecc, n_phase, table):
     -sin(nu) at mean anomalies 2 pi k / L (L a power of two), read with linear
     interpolation; e = 0 uses cos and sin directly. Returns (drop, best eccentricity
     index, best phase) per frequency.
+
+    Parameters
+    ----------
+    t, y, w : ndarray, shape (n,)
+        Times (days), velocities with the linear part removed (m/s), weights 1/sigma^2.
+    starts : ndarray of int, shape (n_inst + 1,)
+        First point of each instrument's group, and n.
+    X : ndarray, shape (n, m)
+        The linear part's columns (instrument indicators first, then the trend).
+    n_inst : int
+        Number of instruments.
+    G : ndarray, shape (m, m)
+        (D^T W D)^-1 of the linear part.
+    freq : ndarray, shape (F,)
+        Trial frequencies (1/day).
+    ecc : ndarray, shape (E,)
+        Trial eccentricities.
+    n_phase : ndarray of int, shape (E,)
+        Periastron phases tried at each eccentricity.
+    table : ndarray, shape (E, L + 1, 2)
+        Tabulated cos(nu) + e and -sin(nu) over mean anomaly.
+
+    Returns
+    -------
+    drop : ndarray, shape (F,)
+        Largest chi-square drop at each frequency.
+    best_e, best_phase : ndarray of int, shape (F,)
+        Index of the eccentricity and the phase that gave it.
     """
     F = freq.size
     npts = t.size

@@ -92,6 +92,22 @@ def read_targets(path: str | Path) -> list[Target]:
     name, its numbers, listed twice) only makes that target fail: it comes back with
     ``problem`` set, and the batch runs the others. Data patterns that match no file
     are not checked here either: that target fails when it runs.
+
+    Parameters
+    ----------
+    path : str or Path
+        The target list (CSV with ``name``, ``data``, ``star_mass``, ``star_mass_err`` and
+        any analyze option as a column).
+
+    Returns
+    -------
+    list of Target
+        One per row, in the list's order (paths resolved against the list's folder).
+
+    Raises
+    ------
+    DataError
+        When the list itself cannot be read or its header is wrong.
     """
     path = Path(path)
     rows = _list_rows(path)
@@ -207,6 +223,22 @@ def run_target(target: Target, out: str, seed: int = 0, quick: bool = False) -> 
     Returns {"name", "status" ("done", "failed", "skipped", "interrupted"), "seconds",
     "error"}. A KeyboardInterrupt while the target runs leaves its checkpoint flushed
     and returns status "interrupted" (the next run resumes it).
+
+    Parameters
+    ----------
+    target : Target
+        The row to run.
+    out : str
+        The batch's output folder.
+    seed : int, optional
+        The target's seed.
+    quick : bool, optional
+        A quick run (short chains, marked as such in every output).
+
+    Returns
+    -------
+    dict
+        The target's info (see above).
     """
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         os.environ.setdefault(var, "1")
@@ -336,7 +368,22 @@ def _summary_rows(targets: list[Target], out: Path, infos: dict[str, dict]) -> l
 
 def write_summary(targets: list[Target], out: str | Path, infos: dict[str, dict]) -> Path:
     """Write DIR/summary.csv and DIR/index.html (each atomically) from every target's
-    outputs."""
+    outputs.
+
+    Parameters
+    ----------
+    targets : list of Target
+        Every target of the list, in order.
+    out : str or Path
+        The batch's output folder.
+    infos : dict
+        {name: info} as :func:`run_target` returns.
+
+    Returns
+    -------
+    Path
+        The summary.csv written.
+    """
     import io
 
     out = Path(out)
@@ -371,6 +418,30 @@ def run_batch(
     flushed, status "interrupted"), the summary of what finished is written and the
     KeyboardInterrupt is re-raised. Tasks already running on a Dask cluster finish
     there; queued ones are cancelled.
+
+    Parameters
+    ----------
+    targets_file : str or Path
+        The target list (:func:`read_targets`).
+    out : str or Path
+        Output folder; each target gets ``out/<name>/``.
+    workers : int, optional
+        Local worker processes (default: one per core, at most the number of targets).
+    scheduler : str, optional
+        A Dask scheduler address; the targets then run on that cluster.
+    seed : int, optional
+        Base seed; each target's seed is derived from it and the target's name.
+    quiet : bool, optional
+        No progress on the terminal.
+    quick : bool, optional
+        Quick runs for every target.
+    executor : object, optional
+        Anything with ``submit`` in place of the local pool or the Dask client.
+
+    Returns
+    -------
+    dict
+        {name: info} (see :func:`run_target`).
     """
     from rvkep.outputs import check_output_folder, folder_lock, make_output_folder
 

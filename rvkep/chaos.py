@@ -40,7 +40,32 @@ def megno(period, tp_rel, ecc, omega, K, star_mass: float, inclination=0.5 * mat
     """<Y> after ``orbits`` periods of the outermost companion (inf if a companion
     escapes or the integration fails). Arguments as :func:`rvkep.nbody.simulation`;
     ``seed`` sets the variational orbit's random start (REBOUND draws one from the clock
-    otherwise), so a draw's value is the same wherever it runs."""
+    otherwise), so a draw's value is the same wherever it runs.
+
+    Parameters
+    ----------
+    period, tp_rel, ecc, omega, K : sequence of float
+        Per companion: period (days), time of periastron relative to the start, eccentricity,
+        argument of periastron (radians) and semi-amplitude (m/s).
+    star_mass : float
+        Stellar mass (solar masses).
+    inclination, node : float, optional
+        Orbital inclination and ascending node (radians; default edge-on, 0).
+    orbits : float, optional
+        Length of the integration in periods of the outermost companion.
+    seed : int, optional
+        Seed of the variational orbit's start.
+
+    Returns
+    -------
+    float
+        The mean exponential growth factor of nearby orbits; about 2 for a regular system,
+        inf when the integration fails.
+
+    References
+    ----------
+    .. [1] Cincotta, P. M. & Simo, C. (2000), A&AS 147, 205.
+    """
     from rvkep import nbody
 
     rebound = nbody.require_rebound()
@@ -119,7 +144,30 @@ def run_stability(run_dir: str | Path, draws: int = 100, orbits: float = 5000.0,
                   quiet: bool = False) -> dict:  # fmt: skip
     """MEGNO of ``draws`` posterior draws of the run in ``run_dir``; writes
     stability.json and stability.csv there and returns the summary (``fraction_regular``,
-    ``megno_median``, per-draw values)."""
+    ``megno_median``, per-draw values).
+
+    Parameters
+    ----------
+    run_dir : str or Path
+        A finished run's folder (it must hold the posterior samples and a stellar mass).
+    draws : int, optional
+        Posterior draws integrated.
+    orbits : float, optional
+        Integration length in periods of the outermost companion.
+    workers : int, optional
+        Local worker processes.
+    scheduler : str, optional
+        A Dask scheduler address to run the draws on.
+    seed : int, optional
+        Seed of the draws and of each integration.
+    quiet : bool, optional
+        No progress bar.
+
+    Returns
+    -------
+    dict
+        The summary written to stability.json.
+    """
     from rvkep import nbody
     from rvkep.errors import DataError
     from rvkep.outputs import folder_lock, write_text

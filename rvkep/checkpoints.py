@@ -54,6 +54,18 @@ def BufferedHDFBackend(filename, name: str = "mcmc"):  # noqa: N802 - behaves as
     file); ``flush`` appends the buffered steps, the acceptance counts, the random
     state after the last step and the new iteration count in one open of the file.
     (Built on first use so that importing rvkep does not import emcee.)
+
+    Parameters
+    ----------
+    filename : str or Path
+        The HDF5 file.
+    name : str, optional
+        The group of the chain in the file.
+
+    Returns
+    -------
+    emcee.backends.HDFBackend
+        A backend whose ``flush()`` writes the buffered steps.
     """
     global _BACKEND_CLASS
     if _BACKEND_CLASS is None:
@@ -267,7 +279,24 @@ _MOVES_VERSION = 2
 def checkpoint_key(model: SystemModel, options: SamplerOptions, walkers: int) -> tuple[str, str]:
     """(digest, canonical JSON) of everything that shapes a chain: the model's
     canonical dump (priors with their parameters, fixed values, trend, noise model,
-    instruments, data digest) and the sampler settings that change the steps."""
+    instruments, data digest) and the sampler settings that change the steps.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model being sampled.
+    options : SamplerOptions
+        The sampler's settings.
+    walkers : int
+        The number of walkers.
+
+    Returns
+    -------
+    digest : str
+        SHA-256 of ``text``.
+    text : str
+        The canonical JSON that was hashed.
+    """
     import hashlib
     import json
 
@@ -290,6 +319,24 @@ def open_checkpoint(path: Path, key: str, post, nwalkers: int, ndim: int):
     A file that cannot be read, has the wrong shape, or whose last step's stored
     log-posterior differs from the model's value there is damaged: it is kept as
     ``<name>.damaged-<time>`` and a new chain starts.
+
+    Parameters
+    ----------
+    path : Path
+        The checkpoint file (it may not exist yet).
+    key : str
+        :func:`checkpoint_key`'s digest of this run.
+    post : callable
+        The log posterior, to check the last stored step.
+    nwalkers, ndim : int
+        The chain's shape.
+
+    Returns
+    -------
+    backend : BufferedHDFBackend
+        The checkpoint to resume, or an empty one.
+    stored : tuple or None
+        (chain, log_prob, last state) of a resumed chain.
     """
     import time
 
@@ -339,6 +386,18 @@ def _stored_key(backend) -> str | None:
 
 
 def store_key(backend, key: str, text: str) -> None:
+    """Write the run's key and canonical model into the checkpoint's attributes, so a later
+    run can tell whether the chain is its own.
+
+    Parameters
+    ----------
+    backend : BufferedHDFBackend
+        The open checkpoint.
+    key : str
+        :func:`checkpoint_key`'s digest.
+    text : str
+        The canonical JSON it was made from.
+    """
     with backend.open("a") as f:
         f[backend.name].attrs["rvkep_key"] = key
         f[backend.name].attrs["rvkep_model"] = text

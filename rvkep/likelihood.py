@@ -112,8 +112,8 @@ class LogPosterior:
 
     def _compiled_parts(self):
         """(tables, data, flags) for the compiled passes (the log posterior
-        :func:`rvkep._kepler_numba.white_noise_logpost` and the best fit's
-        :func:`~rvkep._kepler_numba.white_noise_profile_grad`): the model's coordinate
+        :func:`rvkep._posterior_numba.white_noise_logpost` and the best fit's
+        :func:`~rvkep._posterior_numba.white_noise_profile_grad`): the model's coordinate
         and prior tables (:meth:`SystemModel.compiled_plan`), its data arrays and this
         posterior's (marginalized?, with prior?, normalizing constant); None
         when they do not apply (another noise model or prior kind, or no numba).
@@ -133,7 +133,7 @@ class LogPosterior:
     def gradient_function(self):
         """A function theta (ndim,) -> (log posterior, its gradient) for best fits: the
         profiled log posterior with the prior, in one compiled pass
-        (:func:`rvkep._kepler_numba.white_noise_profile_grad`); None where that pass
+        (:func:`rvkep._posterior_numba.white_noise_profile_grad`); None where that pass
         does not apply (another noise model or prior, a marginalized linear part, or
         the likelihood alone)."""
         parts = self._compiled_parts()

@@ -7,7 +7,7 @@ instruments, the noise model's and the dynamics' own parameters, in the model's
 order). :func:`prior_table` packs every prior over V into one
 :class:`rvkep.priors.PriorTable`, which :func:`log_prior` evaluates in numpy and
 :func:`compiled_plan` hands to the compiled log posterior
-(:func:`rvkep._kepler_numba.white_noise_logpost`): one table, one implementation of
+(:func:`rvkep._posterior_numba.white_noise_logpost`): one table, one implementation of
 each density, one enumeration of kinds (:class:`rvkep.priors.PriorCode`).
 :class:`rvkep.model.SystemModel`'s ``log_prior``, ``prior_transform``,
 ``compiled_plan``, ``coordinate_bounds`` and ``coordinate_log_jacobian`` are these.
@@ -143,7 +143,7 @@ def log_prior(model: SystemModel, theta: np.ndarray, arrays: dict | None = None)
 
 def compiled_plan(model: SystemModel) -> tuple | None:
     """The coordinate and prior tables of the compiled log posterior
-    (:func:`rvkep._kepler_numba.white_noise_logpost`, arguments ``cols`` to
+    (:func:`rvkep._posterior_numba.white_noise_logpost`, arguments ``cols`` to
     ``epoch``), or None when the model needs the general path: a prior without a
     packed form (truncated normal, beta), a noise model's own parameters, or N-body
     dynamics. The prior columns are the packed table's rows over

@@ -81,7 +81,7 @@ def _normal_density(x, a, b, c):
 
 #: the packed kinds' log densities: ``f(x, a, b, c) -> (log density, inside)``,
 #: broadcasting x (..., m) against rows a, b, c (m,); the compiled kernel
-#: ``_kepler_numba._row_elements`` is their loop twin
+#: ``_posterior_numba._row_elements`` is their loop twin
 PACKED_DENSITY = {
     PriorCode.UNIFORM: _uniform_density,
     PriorCode.LOGUNIFORM: _loguniform_density,

@@ -15,8 +15,8 @@ from rvkep.noise.base import NoiseModel
 
 if BACKEND == "numba":
     from rvkep._kepler_numba import white_noise_loglike as _fused_loglike
-    from rvkep._kepler_numba import white_noise_logpost as _fused_logpost
-    from rvkep._kepler_numba import white_noise_profile_grad as _fused_profile_grad
+    from rvkep._posterior_numba import white_noise_logpost as _fused_logpost
+    from rvkep._posterior_numba import white_noise_profile_grad as _fused_profile_grad
 else:  # pragma: no cover - exercised with RVKEP_PURE_NUMPY=1
     _fused_loglike = _fused_logpost = _fused_profile_grad = None
 

@@ -118,13 +118,14 @@ def test_every_kernel_index_is_stamped_with_all_kernel_sources():
     import hashlib
     from pathlib import Path
 
-    from rvkep import _kepler_numba, _power_numba
+    from rvkep import _kepler_numba, _posterior_numba, _power_numba
     from rvkep import _kernel_cache as kc
 
     if kc.cache_folder() is None:
         pytest.skip("no writable cache folder")
     want = hashlib.sha256(b"".join(Path(m.__file__).read_bytes()
-                                   for m in (_kepler_numba, _power_numba))).hexdigest()  # fmt: skip
-    kernels = (_kepler_numba.white_noise_logpost, _power_numba.keplerian_power)
+                                   for m in (_kepler_numba, _posterior_numba,
+                                             _power_numba))).hexdigest()  # fmt: skip
+    kernels = (_posterior_numba.white_noise_logpost, _power_numba.keplerian_power)
     stamps = {f.__name__: f._cache._impl.locator.get_source_stamp() for f in kernels}
     assert set(stamps.values()) == {want}
