@@ -220,6 +220,22 @@ def white_noise_profile_grad(theta, cols, fill, circular, steep, steep_k, jit_co
     (tp = tc - P M_c(e, omega) / 2 pi, M_c the mean anomaly at nu = pi/2 - omega),
     then through the sampled coordinates (ln P; the sqrt(e) or stretched pair; K or
     K sqrt(1 - e^2)); the prior's own terms added likewise.
+
+    Parameters
+    ----------
+    theta : ndarray, shape (ndim,)
+        One point of the sampled coordinates.
+    cols, fill, circular, steep, steep_k, jit_cols, jit_fill, kind, pa, pb, pc
+        The layout and the packed prior table, as :func:`white_noise_logpost`.
+    period_jac, epoch, t, y, err2, inst, n_inst, X, const
+        As :func:`white_noise_logpost`.
+
+    Returns
+    -------
+    value : float
+        The profile log posterior.
+    grad : ndarray, shape (ndim,)
+        Its derivatives with respect to ``theta``.
     """
     ndim = theta.size
     nc = cols.shape[1]

@@ -143,7 +143,22 @@ def _check_range(opt: Option, x: float, where: str) -> None:
 
 def from_text(opt: Option, text: str, where: str | None = None):
     """The value of ``opt`` written as ``text`` (command line, target-list cell),
-    checked; OptionError naming ``where`` otherwise."""
+    checked; OptionError naming ``where`` otherwise.
+
+    Parameters
+    ----------
+    opt : Option
+        The option.
+    text : str
+        Its value as written.
+    where : str, optional
+        What to name in an error (a flag, a column); default the option's flag.
+
+    Returns
+    -------
+    object
+        The parsed, checked value.
+    """
     where = where or opt.spelled
     s = text.strip()
     k = opt.kind
@@ -179,7 +194,20 @@ def from_text(opt: Option, text: str, where: str | None = None):
 
 
 def from_cell(opt: Option, text: str):
-    """A target-list cell: empty means the default."""
+    """A target-list cell: empty means the default.
+
+    Parameters
+    ----------
+    opt : Option
+        The column's option.
+    text : str
+        The cell as read.
+
+    Returns
+    -------
+    object
+        The checked value, or the option's default for an empty cell.
+    """
     if not text.strip():
         return opt.default
     return from_text(opt, text, opt.name)
@@ -188,7 +216,25 @@ def from_cell(opt: Option, text: str):
 def check(values: dict, command: str) -> dict:
     """Every value of ``values`` (names of ``command``'s options) checked, then the
     rules between options; returns the checked values (the given dict untouched).
-    OptionError names the flag and the problem."""
+    OptionError names the flag and the problem.
+
+    Parameters
+    ----------
+    values : dict
+        {option name: value}.
+    command : str
+        The subcommand the names belong to.
+
+    Returns
+    -------
+    dict
+        The checked values.
+
+    Raises
+    ------
+    OptionError
+        For an unknown name, a bad value or options that contradict each other.
+    """
     known = {o.name: o for o in options_of(command)}
     out = {}
     for name, value in values.items():

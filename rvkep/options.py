@@ -92,7 +92,18 @@ def say(opts: Any, text: str) -> None:
 
 def parse_trend(value) -> int | str:
     """``"auto"`` or a trend degree (from text, as on the command line and in target
-    lists, or a number); ValueError naming the value otherwise."""
+    lists, or a number); ValueError naming the value otherwise.
+
+    Parameters
+    ----------
+    value : str or int
+        ``"auto"``, or 0, 1 or 2.
+
+    Returns
+    -------
+    int or str
+        The degree, or ``"auto"``.
+    """
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         if value in TREND_DEGREES:
             return int(value)
@@ -438,12 +449,34 @@ OPTIONS: tuple[Option, ...] = (
 
 
 def options_of(command: str) -> list[Option]:
-    """The options ``command`` takes, in the table's order."""
+    """The options ``command`` takes, in the table's order.
+
+    Parameters
+    ----------
+    command : str
+        A subcommand (or ``"batch-row"`` for the target-list columns).
+
+    Returns
+    -------
+    list of Option
+        Its options.
+    """
     return [o for o in OPTIONS if command in o.commands]
 
 
 def option(command: str, name: str) -> Option:
-    """The option ``name`` of ``command`` (KeyError when it has none)."""
+    """The option ``name`` of ``command`` (KeyError when it has none).
+
+    Parameters
+    ----------
+    command, name : str
+        The subcommand and the option's Python name.
+
+    Returns
+    -------
+    Option
+        The declaration.
+    """
     for o in OPTIONS:
         if o.name == name and command in o.commands:
             return o
@@ -452,7 +485,13 @@ def option(command: str, name: str) -> Option:
 
 def columns() -> list[Option]:
     """The target-list columns besides ``name`` and ``data``: analyze's options a target
-    may set (the batch's own --out, --seed, --quick, --quiet apply to every target)."""
+    may set (the batch's own --out, --seed, --quick, --quiet apply to every target).
+
+    Returns
+    -------
+    list of Option
+        The options that have a column.
+    """
     return [o for o in options_of("analyze") if o.column]
 
 
@@ -461,7 +500,20 @@ def columns() -> list[Option]:
 
 def as_flags(values: dict, command: str = "analyze") -> str:
     """The options that differ from their defaults, written as flags (the outputs'
-    "how this was run" when the run did not come from a command line)."""
+    "how this was run" when the run did not come from a command line).
+
+    Parameters
+    ----------
+    values : dict
+        {option name: value} of a run.
+    command : str, optional
+        The subcommand the names belong to.
+
+    Returns
+    -------
+    str
+        The flags, e.g. ``--star-mass 0.9 --noise gp`` (empty when all are defaults).
+    """
     parts = []
     for opt in options_of(command):
         if opt.name not in values:
@@ -498,7 +550,20 @@ def python_options(command: str) -> list[Option]:
 
 def signature(command: str, leading: Iterable[inspect.Parameter] = ()) -> inspect.Signature:
     """The keyword signature of ``command``'s Python entry point: ``leading``
-    parameters, then one keyword-only parameter per option, its default the table's."""
+    parameters, then one keyword-only parameter per option, its default the table's.
+
+    Parameters
+    ----------
+    command : str
+        The subcommand.
+    leading : iterable of inspect.Parameter, optional
+        Positional parameters before the options (e.g. the data files).
+
+    Returns
+    -------
+    inspect.Signature
+        The signature given to the entry point (``help()`` and completion show it).
+    """
     params = list(leading)
     for o in python_options(command):
         kind = inspect.Parameter.KEYWORD_ONLY
@@ -508,7 +573,20 @@ def signature(command: str, leading: Iterable[inspect.Parameter] = ()) -> inspec
 
 
 def numpydoc(command: str, indent: str = "    ") -> str:
-    """The options of ``command`` as numpydoc ``Parameters`` entries."""
+    """The options of ``command`` as numpydoc ``Parameters`` entries.
+
+    Parameters
+    ----------
+    command : str
+        The subcommand.
+    indent : str, optional
+        Prefix of each line.
+
+    Returns
+    -------
+    str
+        The entries (name, type, default and help of each option).
+    """
     lines = []
     for o in python_options(command):
         lines.append(f"{indent}{o.name} : {_PY_TYPES[o.kind]}")

@@ -24,7 +24,13 @@ __all__ = ["main", "build_parser", "BATCH_FAILED_EXIT", "demo_folder", "demo_fil
 
 
 def build_parser() -> argparse.ArgumentParser:
-    """The argument parser with every subcommand (options from :mod:`rvkep.options`)."""
+    """The argument parser with every subcommand (options from :mod:`rvkep.options`).
+
+    Returns
+    -------
+    argparse.ArgumentParser
+        The ``rvkep`` parser; each subcommand's ``run`` is set as its default.
+    """
     parser = Parser(
         prog="rvkep",
         description=(
@@ -77,7 +83,19 @@ def _check_outputs(args: argparse.Namespace) -> None:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
-    """Entry point of the ``rvkep`` console script; returns the exit status."""
+    """Entry point of the ``rvkep`` console script; returns the exit status.
+
+    Parameters
+    ----------
+    argv : sequence of str, optional
+        The arguments after ``rvkep`` (default: the command line's).
+
+    Returns
+    -------
+    int
+        0 on success, 2 for a usage or input error (one line on standard error), 3 when
+        targets of a batch failed, 130 when interrupted.
+    """
     parser = build_parser()
     argv = list(sys.argv[1:] if argv is None else argv)
     try:

@@ -65,7 +65,17 @@ def _argparse_type(opt: Option) -> Callable[[str], Any]:
 def add_arguments(p: argparse.ArgumentParser, command: str,
                   shown_defaults: dict[str, str] | None = None) -> None:  # fmt: skip
     """Add ``command``'s options to ``p`` (help from the table; ``shown_defaults``
-    replaces how a default is described, e.g. the demo star's mass)."""
+    replaces how a default is described, e.g. the demo star's mass).
+
+    Parameters
+    ----------
+    p : argparse.ArgumentParser
+        The subcommand's parser.
+    command : str
+        The subcommand, whose options (:func:`rvkep.options.options_of`) are added.
+    shown_defaults : dict, optional
+        {option name: text} shown as the default instead of the table's.
+    """
     groups: dict[str, Any] = {}
     for opt in options_of(command):
         if shown_defaults and opt.name in shown_defaults:
