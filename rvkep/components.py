@@ -141,7 +141,20 @@ def dynamics_parameters(kind: str, labels=()) -> list:
     (nearly edge-on, where the N-body model is closest to the Keplerian one); for
     ``"nbody-inclined"`` a ``cos_inc.<label>`` per companion (the same prior) and a
     ``node.<label>`` (radians, uniform on [-pi, pi], start 0: coplanar) for each but
-    the first of ``labels``."""
+    the first of ``labels``.
+
+    Parameters
+    ----------
+    kind : str
+        ``"keplerian"``, ``"nbody"`` or ``"nbody-inclined"``.
+    labels : sequence of str, optional
+        The companions' labels (for the per-companion parameters).
+
+    Returns
+    -------
+    list of NoiseParameter
+        The added parameters, in the sampled vector's order.
+    """
     from rvkep.noise.base import NoiseParameter
 
     if kind == "keplerian":
@@ -160,7 +173,22 @@ def dynamics_parameters(kind: str, labels=()) -> list:
 
 def default_instrument(data: RVData, name: str, jitter: Prior | None = None) -> Instrument:
     """An instrument with ``jitter`` as its prior (default: :func:`defaults.jitter_prior`)
-    and a start jitter inside it."""
+    and a start jitter inside it.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities (the start jitter comes from this instrument's scatter).
+    name : str
+        The instrument.
+    jitter : Prior, optional
+        The jitter's prior.
+
+    Returns
+    -------
+    Instrument
+        The instrument's model part.
+    """
     prior = jitter if jitter is not None else defaults.jitter_prior(data, name)
     return Instrument(name, prior, start_jitter=defaults.start_jitter(data, name, prior))
 
@@ -177,7 +205,28 @@ def default_companion(
     circular: bool = False,
 ) -> Companion:
     """A companion with the default priors (:mod:`rvkep.defaults`) around start values
-    (tc in data time)."""
+    (tc in data time).
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities (the priors scale with their span and spread).
+    label : str
+        The companion's label (``b``, ``c``, ...).
+    period, tc, K : float
+        Start period (days), time of conjunction (days) and semi-amplitude (m/s).
+    ecc, omega : float, optional
+        Start eccentricity and argument of periastron (radians).
+    period_range : (float, float), optional
+        The searched period range the period prior must cover.
+    circular : bool, optional
+        Hold e at 0.
+
+    Returns
+    -------
+    Companion
+        The companion's model part.
+    """
     return Companion(
         label=label,
         period=defaults.period_prior(data, period, period_range),
@@ -192,7 +241,22 @@ def decorrelation_columns(
     data: RVData, instruments: list[Instrument], decorrelate: tuple[str, ...]
 ) -> list[tuple[str, str, np.ndarray]]:
     """(indicator, instrument, design column) for each decorrelation coefficient:
-    the indicator minus its median over the instrument's points, zero elsewhere."""
+    the indicator minus its median over the instrument's points, zero elsewhere.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities with their indicator columns.
+    instruments : list of Instrument
+        The model's instruments.
+    decorrelate : tuple of str
+        The indicator columns to decorrelate against.
+
+    Returns
+    -------
+    list of (str, str, ndarray)
+        One entry per coefficient, in the linear part's order.
+    """
     d = data
     out = []
     for name in decorrelate:

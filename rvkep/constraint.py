@@ -32,7 +32,20 @@ def _width(x: np.ndarray, log: bool) -> float:
 
 def prior_notes(model, columns: dict) -> list[str]:
     """Notes on each companion's period and K whose posterior (``columns``, physical
-    samples by name) is mostly its prior, or piles up at one of its ends."""
+    samples by name) is mostly its prior, or piles up at one of its ends.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The sampled model (its priors).
+    columns : dict
+        Physical posterior samples by name.
+
+    Returns
+    -------
+    list of str
+        One note per parameter the data barely constrain (empty when none).
+    """
     notes = []
     for c in model.companions:
         for key, (what, unit) in _WHAT.items():

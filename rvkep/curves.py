@@ -24,7 +24,23 @@ _BAND = [15.87, 84.13]
 
 
 def trend_curve(params: dict, t: np.ndarray, epoch: float) -> np.ndarray:
-    """The fitted trend at times ``t`` (years from the epoch, as in the model)."""
+    """The fitted trend at times ``t`` (years from the epoch, as in the model).
+
+    Parameters
+    ----------
+    params : dict
+        Parameter values by name (``trend.slope`` in m/s/yr, ``trend.curvature`` in
+        m/s/yr^2; missing ones are 0).
+    t : ndarray
+        Times (days).
+    epoch : float
+        The model's reference epoch (days).
+
+    Returns
+    -------
+    ndarray
+        The trend (m/s) at ``t``.
+    """
     x = (np.asarray(t, float) - epoch) / 365.25
     return params.get("trend.slope", 0.0) * x + params.get("trend.curvature", 0.0) * x * x
 
@@ -76,7 +92,24 @@ def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) ->
     conditional mean when there is one), ``activity`` (None for white noise; else the
     correlated signal given the best fit: ``time``, ``mean``, ``band`` (mean +- one
     standard deviation) on the grid, ``at_data`` and ``data``: the velocities minus
-    offsets, trend and companions)."""
+    offsets, trend and companions).
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+    n_grid : int, optional
+        Points of the time grid.
+    n_draws : int, optional
+        Posterior draws for the band.
+    rng : int or numpy.random.Generator, optional
+        Seed of the draws.
+
+    Returns
+    -------
+    dict
+        The curves (keys above).
+    """
     data, fit = results.data, results.fit
     model, epoch = fit.model, data.epoch
     offsets, own, off = _zero_points(results)
@@ -102,7 +135,27 @@ def timeseries_curves(results, n_grid: int = 3000, n_draws: int = 300, rng=0) ->
 def phase_curves(results, label: str, n_grid: int = 400, n_draws: int = 300, rng=0) -> dict:
     """Keys: ``phase`` and ``velocity`` of the points (phase 0 at conjunction),
     ``grid`` and ``curve`` (best fit over one period), ``band`` ((low, high) or None),
-    ``period``."""
+    ``period``.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+    label : str
+        The companion.
+    n_grid : int, optional
+        Points over one period.
+    n_draws : int, optional
+        Posterior draws for the band.
+    rng : int or numpy.random.Generator, optional
+        Seed of the draws.
+
+    Returns
+    -------
+    dict
+        The curves (keys above); the other companions and the trend are removed from the
+        points.
+    """
     data, fit = results.data, results.fit
     model, p = fit.model, fit.params
     comp = next(c for c in model.companions if c.label == label)

@@ -296,7 +296,20 @@ class RVData:
 
 
 def check_size(data: RVData, max_points: int = MAX_POINTS) -> None:
-    """Refuse a data set larger than the analysis takes, saying what to do instead."""
+    """Refuse a data set larger than the analysis takes, saying what to do instead.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    max_points : int, optional
+        The largest number of points accepted.
+
+    Raises
+    ------
+    DataError
+        When ``data`` has more points.
+    """
     if len(data) > max_points:
         raise DataError(
             f"{', '.join(data.files)}: {len(data):,} points, more than the {max_points:,} "

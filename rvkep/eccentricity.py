@@ -43,6 +43,22 @@ def lucy_sweeney(e_hat: float, sigma: float) -> float:
 
     >>> round(lucy_sweeney(0.1, 0.05), 4)  # 2 sigma: exp(-2)
     0.1353
+
+    Parameters
+    ----------
+    e_hat : float
+        The fitted eccentricity.
+    sigma : float
+        The error of each of e cos omega and e sin omega.
+
+    Returns
+    -------
+    float
+        The probability p = exp(-e_hat^2 / 2 sigma^2).
+
+    References
+    ----------
+    .. [1] Lucy, L. B. & Sweeney, M. A. (1971), AJ 76, 544.
     """
     if not sigma > 0:
         return 0.0 if e_hat > 0 else 1.0
@@ -50,7 +66,20 @@ def lucy_sweeney(e_hat: float, sigma: float) -> float:
 
 
 def circular_model(model, labels):
-    """``model`` with the companions named in ``labels`` held circular (e fixed at 0)."""
+    """``model`` with the companions named in ``labels`` held circular (e fixed at 0).
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model (not changed).
+    labels : iterable of str
+        The companions to hold circular.
+
+    Returns
+    -------
+    SystemModel
+        The new model.
+    """
     from rvkep.priors import Fixed
 
     comps = [replace(c, ecc=Fixed(0.0), start={**c.start, "ecc": 0.0})
@@ -61,7 +90,21 @@ def circular_model(model, labels):
 def eccentricity_tests(fit, posterior) -> dict[str, dict]:
     """For each eccentric companion of the best fit ``fit``: the Lucy & Sweeney
     probability (e_hat from the fit, sigma from the ``posterior`` samples: columns
-    ``<label>.ecc`` and ``.omega_deg``) and Delta BIC of a circular refit."""
+    ``<label>.ecc`` and ``.omega_deg``) and Delta BIC of a circular refit.
+
+    Parameters
+    ----------
+    fit : FitResult
+        The best fit.
+    posterior : PosteriorSamples
+        The posterior samples.
+
+    Returns
+    -------
+    dict
+        {label: {"e_best_fit", "sigma_e_components", "lucy_sweeney_p", "bic_circular",
+        "bic_eccentric", "delta_bic_circular_minus_eccentric", "consistent_with_circular"}}.
+    """
     from rvkep.optimize import fit as refit
 
     out = {}

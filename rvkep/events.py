@@ -79,6 +79,22 @@ def event_times(columns: Mapping, labels: list[str], start: float, end: float,
 
     ``columns`` are posterior samples by name (``<label>.period``, ``.tc``, ``.ecc``,
     ``.omega_deg``), as :class:`rvkep.posterior.PosteriorSamples` holds them.
+
+    Parameters
+    ----------
+    columns : mapping
+        Posterior samples by name.
+    labels : list of str
+        The companions.
+    start, end : float
+        The window (days, the data's time system).
+    transit_probability : mapping, optional
+        {label: probability} for the conjunctions.
+
+    Returns
+    -------
+    list of dict
+        The events (keys above).
     """
     if not (np.isfinite(start) and np.isfinite(end) and end > start):
         raise ValueError("the window needs finite times with end > start")

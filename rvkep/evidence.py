@@ -35,7 +35,20 @@ def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
     companions (every number fitted, with ``choose_by="evidence"``), kept in
     ``choice.evidence``; with ``choose_by="evidence"`` the number of companions is
     chosen by it (a larger number must raise ln Z by more than EVIDENCE_THRESHOLD).
-    The nested run of the chosen model is kept for its posterior (``choice.nested``)."""
+    The nested run of the chosen model is kept for its posterior (``choice.nested``).
+
+    Parameters
+    ----------
+    choice : ModelChoice
+        The model choice; ``evidence``, ``nested``, ``fit``, ``comparison`` and
+        ``extra_notes`` are updated in place.
+    opts : AnalyzeOptions
+        The run's options (``evidence``, ``choose_by``, ``sampler``, ``quick``, ``seed``).
+    spec : ModelSpec, optional
+        The model file.
+    folder : Path, optional
+        Where the nested runs keep their checkpoints.
+    """
 
     by_n = {len(f.model.companions): f for f in choice.fits}
     n = len(choice.fit.model.companions)
@@ -84,7 +97,20 @@ def compute_evidence(choice: ModelChoice, opts: AnalyzeOptions, spec=None,
 
 
 def run_seed(opts: AnalyzeOptions, spec=None) -> int:
-    """The run's seed: the option, else the model file's ``[sampling]`` seed, else 0."""
+    """The run's seed: the option, else the model file's ``[sampling]`` seed, else 0.
+
+    Parameters
+    ----------
+    opts : AnalyzeOptions
+        The run's options.
+    spec : ModelSpec, optional
+        The model file.
+
+    Returns
+    -------
+    int
+        The seed.
+    """
     if opts.seed is not None:
         return opts.seed
     return spec.sampling.get("seed", 0) if spec else 0
@@ -92,7 +118,26 @@ def run_seed(opts: AnalyzeOptions, spec=None) -> int:
 
 def run_nested(fit, opts: AnalyzeOptions, seed: int, checkpoint: Path | None, notes: list[str]):
     """One nested run of ``fit.model`` (checked against the best fit ``fit.theta``); a
-    checkpoint it could not resume is said on the terminal and kept in ``notes``."""
+    checkpoint it could not resume is said on the terminal and kept in ``notes``.
+
+    Parameters
+    ----------
+    fit : FitResult
+        The model's best fit.
+    opts : AnalyzeOptions
+        The run's options.
+    seed : int
+        The run's seed.
+    checkpoint : Path or None
+        The checkpoint file.
+    notes : list of str
+        Appended to.
+
+    Returns
+    -------
+    SamplerRun
+        The nested run (``extra`` holds ``ln_z`` and ``ln_z_err``).
+    """
     from rvkep.likelihood import LogPosterior
     from rvkep.samplers import get_sampler
     from rvkep.samplers.nested import NestedOptions

@@ -91,7 +91,22 @@ def read_batch(folder: str | Path, include_quick: bool = False,
                include_unconverged: bool = False,
                ) -> tuple[list[StarRecord], list[dict]]:  # fmt: skip
     """The finished targets of a batch folder, and the skipped ones with the reason.
-    DataError when the folder is no batch (no summary.csv) or holds no finished target."""
+    DataError when the folder is no batch (no summary.csv) or holds no finished target.
+
+    Parameters
+    ----------
+    folder : str or Path
+        The batch's output folder.
+    include_quick, include_unconverged : bool, optional
+        Keep quick runs, unconverged chains (left out by default).
+
+    Returns
+    -------
+    stars : list of StarRecord
+        The finished targets.
+    skipped : list of dict
+        {"name", "reason"} of the others.
+    """
     from rvkep.priors import prior_from_dict
 
     folder = Path(folder)
@@ -143,7 +158,22 @@ def read_batch(folder: str | Path, include_quick: bool = False,
 def importance_loglike(log_ratio: list[np.ndarray]) -> np.ndarray:
     """sum_j ln[(1/K_j) sum_k exp(log_ratio_j[..., k])]: the importance-reweighted
     population likelihood from, per member j, ln p(theta_jk | alpha) - ln pi_j(theta_jk)
-    (arrays (..., K_j), the leading axes over parameter sets)."""
+    (arrays (..., K_j), the leading axes over parameter sets).
+
+    Parameters
+    ----------
+    log_ratio : list of ndarray
+        Per member, the log ratios (..., K_j).
+
+    Returns
+    -------
+    ndarray
+        The log likelihood over the leading axes.
+
+    References
+    ----------
+    .. [1] Hogg, D. W., Myers, A. D. & Bovy, J. (2010), ApJ 725, 2166.
+    """
     total = 0.0
     for r in log_ratio:
         m = np.max(r, axis=-1, keepdims=True)
@@ -175,7 +205,22 @@ def _sample(log_prob, start: np.ndarray, rng: np.random.Generator, steps: int) -
 def beta_population(stars: list[StarRecord], rng=0, steps: int = 800) -> dict:
     """The Beta(a, b) eccentricity population: posterior samples of (a, b) and of the
     mean a / (a + b), and each companion's shrunk eccentricity (median of its samples
-    reweighted by the population at the posterior median)."""
+    reweighted by the population at the posterior median).
+
+    Parameters
+    ----------
+    stars : list of StarRecord
+        The batch's stars.
+    rng : int or numpy.random.Generator, optional
+        Seed.
+    steps : int, optional
+        Sampler steps.
+
+    Returns
+    -------
+    dict
+        ``a``, ``b``, ``mean`` (samples) and ``shrunk`` ({companion: e}).
+    """
     from scipy.special import betaln
 
     rng = np.random.default_rng(rng)
@@ -222,7 +267,22 @@ def beta_population(stars: list[StarRecord], rng=0, steps: int = 800) -> dict:
 
 def histogram_population(stars: list[StarRecord], rng=0, steps: int = 800) -> dict:
     """The histogram population: N_BINS equal bins on [0, 1), heights sampled with the
-    smoothness prior; returns the edges and the density samples (n, N_BINS)."""
+    smoothness prior; returns the edges and the density samples (n, N_BINS).
+
+    Parameters
+    ----------
+    stars : list of StarRecord
+        The batch's stars.
+    rng : int or numpy.random.Generator, optional
+        Seed.
+    steps : int, optional
+        Sampler steps.
+
+    Returns
+    -------
+    dict
+        ``edges`` (N_BINS + 1) and ``density`` (samples, N_BINS).
+    """
     rng = np.random.default_rng(rng)
     arrays = _ecc_arrays(stars)
     edges = np.linspace(0.0, 1.0, N_BINS + 1)
@@ -262,7 +322,23 @@ def occurrence(stars: list[StarRecord], period_range=DEFAULT_PERIOD_RANGE,
                mass_range=DEFAULT_MASS_RANGE) -> dict:  # fmt: skip
     """The fraction f of stars hosting at least one companion in the box (see the
     module text): its posterior on a grid, the hosts, each star's completeness and the
-    stars counted with completeness 1 (no limits over the box)."""
+    stars counted with completeness 1 (no limits over the box).
+
+    Parameters
+    ----------
+    stars : list of StarRecord
+        The batch's stars.
+    period_range : (float, float), optional
+        The box's periods (days).
+    mass_range : (float, float), optional
+        The box's minimum masses (Jupiter masses).
+
+    Returns
+    -------
+    dict
+        ``fraction`` (median, minus, plus), ``interval95``, ``grid`` and ``posterior``,
+        ``hosts``, ``completeness`` by star and ``without_limits``.
+    """
     hosts, comp, without = [], [], []
     for s in stars:
         inside = any(period_range[0] <= np.median(c["period"]) <= period_range[1]
@@ -300,7 +376,28 @@ def run_population(batch_dir: str | Path, out: str | Path, *, period_range=None,
                    mass_range=None, seed: int = 0, include_quick: bool = False,
                    quiet: bool = False) -> dict:  # fmt: skip
     """Read a batch, infer both populations, write population.json, population.md and
-    the figures into ``out``; returns the JSON content."""
+    the figures into ``out``; returns the JSON content.
+
+    Parameters
+    ----------
+    batch_dir : str or Path
+        The batch's output folder.
+    out : str or Path
+        Where the population files go.
+    period_range, mass_range : (float, float), optional
+        The occurrence box.
+    seed : int, optional
+        Seed of the samplers.
+    include_quick : bool, optional
+        Keep quick runs.
+    quiet : bool, optional
+        No progress.
+
+    Returns
+    -------
+    dict
+        What population.json holds.
+    """
     from rvkep.outputs import check_output_folder, make_output_folder, write_text
 
     period_range = tuple(period_range or DEFAULT_PERIOD_RANGE)

@@ -24,7 +24,18 @@ __all__ = ["to_inference_data", "pointwise_log_likelihood"]
 
 def pointwise_log_likelihood(results) -> np.ndarray:
     """(n_samples, n_points): log N(v_i; model_i + offset, err_i^2 + jitter^2) per
-    posterior sample, the model being the companions and the trend of that sample."""
+    posterior sample, the model being the companions and the trend of that sample.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+
+    Returns
+    -------
+    ndarray, shape (n_samples, n_points)
+        The log likelihood of each point under each sample.
+    """
     from rvkep.prediction import predict
 
     data = results.data
@@ -46,7 +57,18 @@ def pointwise_log_likelihood(results) -> np.ndarray:
 
 
 def to_inference_data(results):
-    """The run as ``arviz.InferenceData`` (see the module text)."""
+    """The run as ``arviz.InferenceData`` (see the module text).
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+
+    Returns
+    -------
+    arviz.InferenceData
+        Posterior (chains kept), observed data and pointwise log likelihood.
+    """
     try:
         import arviz as az
     except ImportError:

@@ -20,7 +20,22 @@ __all__ = ["read_bytes", "read_text"]
 def read_bytes(path: str | Path, error: type[RvkepError] = DataError,
                what: str = "a data file") -> bytes:  # fmt: skip
     """The bytes of ``path``; ``error`` (a RvkepError class) naming the path and the
-    problem otherwise. ``what`` names the kind of file in the message."""
+    problem otherwise. ``what`` names the kind of file in the message.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file.
+    error : type, optional
+        The exception raised.
+    what : str, optional
+        The kind of file, for the message.
+
+    Returns
+    -------
+    bytes
+        The file's contents.
+    """
     path = Path(path)
     try:
         info = os.stat(path)
@@ -40,7 +55,22 @@ def read_bytes(path: str | Path, error: type[RvkepError] = DataError,
 
 def read_text(path: str | Path, error: type[RvkepError] = DataError,
               what: str = "a text file") -> str:  # fmt: skip
-    """The UTF-8 text of ``path`` (a byte-order mark dropped); ``error`` otherwise."""
+    """The UTF-8 text of ``path`` (a byte-order mark dropped); ``error`` otherwise.
+
+    Parameters
+    ----------
+    path : str or Path
+        The file.
+    error : type, optional
+        The exception raised (also for text that is not UTF-8).
+    what : str, optional
+        The kind of file, for the message.
+
+    Returns
+    -------
+    str
+        The text.
+    """
     raw = read_bytes(path, error, what)
     try:
         return raw.decode("utf-8-sig")
