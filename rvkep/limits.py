@@ -149,7 +149,20 @@ def _screen_prefers(setup, y, peak_power, freq, P_true) -> bool:
 
 def row_injections(setup: LimitsSetup, row: int) -> dict:
     """Inject and recover every cell of one period row (see the module text). Returns
-    {"row", "tried", "recovered", "K_mps" (median K per cell), "key", "seconds"}."""
+    {"row", "tried", "recovered", "K_mps" (median K per cell), "key", "seconds"}.
+
+    Parameters
+    ----------
+    setup : LimitsSetup
+        The injection grid.
+    row : int
+        The period row.
+
+    Returns
+    -------
+    dict
+        The row's counts (keys above); ``key`` ties the saved row to the setup.
+    """
     from rvkep.orbit import radial_velocity
     from rvkep.periodogram import PowerBasis
     from rvkep.physics import semi_amplitude
@@ -254,7 +267,24 @@ def completeness_curves(periods, masses, completeness, star_mass: float) -> list
     """Per period: the M sin i (Earth masses) at 50% and 95% completeness (running
     maximum along mass, interpolated in log mass; None where never reached) and the
     circular-orbit K of each (``period_d``, ``k50_mps``, ``k95_mps``,
-    ``msini50_mearth``, ``msini95_mearth``)."""
+    ``msini50_mearth``, ``msini95_mearth``).
+
+    Parameters
+    ----------
+    periods : ndarray
+        The grid's periods (days).
+    masses : ndarray
+        The grid's minimum masses (Earth masses).
+    completeness : ndarray, shape (n_periods, n_masses)
+        Fraction recovered per cell.
+    star_mass : float
+        Stellar mass (solar masses).
+
+    Returns
+    -------
+    list of dict
+        One row per period (keys above).
+    """
     from rvkep.physics import semi_amplitude
 
     out = []
@@ -296,6 +326,29 @@ def k50_white_noise(sigma: float, n: int, threshold_power: float, n_linear: int 
     and half the injections pass when D* is the median of the noncentral chi-square:
     lambda_50 solves F(D*; 2, lambda_50) = 1/2, and K_50 = sigma sqrt(2 lambda_50 / n).
     (Taking R's spread into account, a noncentral F law, moves K_50 by 0.5% at n = 60.)
+
+    Parameters
+    ----------
+    sigma : float
+        The noise (m/s).
+    n : int
+        Number of epochs.
+    threshold_power : float
+        The periodogram power at the detection threshold.
+    n_linear : int, optional
+        Linear parameters fitted beside the sinusoid (offsets, trend).
+    leftover : float, optional
+        The chi-square left by the fit, when one noise series is given.
+
+    Returns
+    -------
+    float
+        K_50 (m/s).
+
+    References
+    ----------
+    .. [1] Zechmeister, M. & Kuerster, M. (2009), A&A 496, 577.
+    .. [2] Baluev, R. V. (2008), MNRAS 385, 1279.
     """
     from scipy.optimize import brentq
     from scipy.stats import ncx2
@@ -313,7 +366,28 @@ def setup_from_results(results, *, n_injections: int = 20, periods: tuple | None
     star's mass; periods from ``periods`` (min, max days; default the search's range,
     1.2 d to the baseline), masses from ``masses`` (min, max Earth masses; default from
     a third to five times the 50% semi-amplitude of white noise at the period range's
-    ends)."""
+    ends).
+
+    Parameters
+    ----------
+    results : Results
+        A finished run (with a stellar mass).
+    n_injections : int, optional
+        Injections per cell.
+    periods, masses : (float, float), optional
+        Ranges of the grid (days; Earth masses).
+    n_periods, n_masses : int, optional
+        Grid size.
+    seed : int, optional
+        Seed of the injections.
+    fap : float, optional
+        The false-alarm probability a recovered signal must beat.
+
+    Returns
+    -------
+    LimitsSetup
+        The grid and everything a row needs.
+    """
     from rvkep.period_search import residual_velocities
     from rvkep.periodogram import frequency_grid, periodogram
     from rvkep.physics import minimum_mass
@@ -353,7 +427,26 @@ def setup_from_results(results, *, n_injections: int = 20, periods: tuple | None
 def run_limits(setup: LimitsSetup, folder: str | Path, *, workers: int = 1,
                scheduler: str | None = None, quiet: bool = False) -> Limits:  # fmt: skip
     """Run every period row not already done (``folder/limits_parts/``) on ``workers``
-    local processes (1: in this process) or a Dask scheduler, and gather the grid."""
+    local processes (1: in this process) or a Dask scheduler, and gather the grid.
+
+    Parameters
+    ----------
+    setup : LimitsSetup
+        The injection grid.
+    folder : str or Path
+        The run folder (the rows are saved under ``limits_parts/`` as they finish).
+    workers : int, optional
+        Local worker processes.
+    scheduler : str, optional
+        A Dask scheduler address.
+    quiet : bool, optional
+        No progress bar.
+
+    Returns
+    -------
+    Limits
+        The counts per cell.
+    """
     from rvkep.workers import INTERRUPTED, run_tasks
 
     start = time.perf_counter()

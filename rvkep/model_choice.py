@@ -54,6 +54,30 @@ def choose_companions(search_result, data, base, period_range, max_companions: i
     (:func:`rvkep.choice.long_period_stage`, its notes appended to ``notes``).
 
     Returns (fits, n_chosen, comparison rows).
+
+    Parameters
+    ----------
+    search_result : SearchResult
+        The iterative search at one trend degree.
+    data : RVData
+        The velocities.
+    base : SystemModel
+        The model without companions.
+    period_range : (float, float)
+        The searched periods (days).
+    max_companions : int
+        The most companions tried.
+    notes : list of str, optional
+        Appended to.
+
+    Returns
+    -------
+    fits : list of FitResult
+        By number of companions.
+    n_chosen : int
+        The chosen number.
+    rows : list of dict
+        The comparison table.
     """
     from rvkep.choice import long_period_stage
     from rvkep.optimize import fit_companions
@@ -88,6 +112,22 @@ def select_companions(data, base, opts: AnalyzeOptions, spec=None):
 
     Returns (search result, chosen fit, companion-number comparison rows, message,
     the fits by number of companions, notes).
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    base : SystemModel
+        The model without companions (its trend degree is the one tried).
+    opts : AnalyzeOptions
+        The run's options.
+    spec : ModelSpec, optional
+        The model file.
+
+    Returns
+    -------
+    tuple
+        The six values above.
     """
     from rvkep.choice import long_period_stage
     from rvkep.optimize import fit_companions
@@ -143,7 +183,24 @@ def choose_across(outcomes: list, data, fixed: bool, spec=None):
     ``outcomes`` are :func:`select_companions`' results per degree; ``fixed``: the
     number of companions is given (model file or ``--companions``). Returns (search
     result, fit, companion-number rows, message, fits by count, model rows, notes, the
-    harmonic tests' records)."""
+    harmonic tests' records).
+
+    Parameters
+    ----------
+    outcomes : list of tuple
+        :func:`select_companions` per trend degree.
+    data : RVData
+        The velocities.
+    fixed : bool
+        The number of companions is given.
+    spec : ModelSpec, optional
+        The model file.
+
+    Returns
+    -------
+    tuple
+        The eight values above.
+    """
     from rvkep import choice as rules
 
     per_degree = [list(o[4]) for o in outcomes]
@@ -321,7 +378,24 @@ def choose_model(data: RVData, opts: AnalyzeOptions, spec=None,
                  folder: Path | None = None) -> ModelChoice:  # fmt: skip
     """Stage 3: the trend degree(s) to try, the search and the number of companions for
     each, and the choice between them (see the module text); with evidences asked for,
-    their nested runs (checkpointed in ``folder`` when given)."""
+    their nested runs (checkpointed in ``folder`` when given).
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    opts : AnalyzeOptions
+        The run's options.
+    spec : ModelSpec, optional
+        The model file.
+    folder : Path, optional
+        The run folder (nested runs' checkpoints).
+
+    Returns
+    -------
+    ModelChoice
+        The choice, its tables and notes.
+    """
     from rvkep.model import SystemModel
 
     columns = tuple(dict.fromkeys([*(spec.decorrelate if spec else ()), *opts.decorrelate]))

@@ -28,7 +28,18 @@ def canonical(model: SystemModel) -> dict:
     """A canonical description of everything that shapes the posterior: every
     companion's priors (fixed values included), every instrument's jitter prior,
     the trend degree, the noise model and a digest of the data. Equal dumps mean
-    the same posterior; checkpoints are keyed on it."""
+    the same posterior; checkpoints are keyed on it.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model.
+
+    Returns
+    -------
+    dict
+        JSON-able; sorted keys make equal models dump equal text.
+    """
     h = hashlib.sha256()
     d = model.data
     for arr in (d.time, d.rv, d.err):
@@ -59,7 +70,18 @@ def canonical(model: SystemModel) -> dict:
 def to_dict(model: SystemModel) -> dict:
     """Everything but the data and the star, as plain JSON-able values (priors,
     start values, trend, noise model, decorrelation): :func:`from_dict` rebuilds
-    the same model on the same data."""
+    the same model on the same data.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model.
+
+    Returns
+    -------
+    dict
+        JSON-able description.
+    """
 
     def start(values: dict) -> dict:
         return {k: float(v) for k, v in values.items()}
@@ -84,7 +106,24 @@ def to_dict(model: SystemModel) -> dict:
 def from_dict(
     cls: type[SystemModel], d: dict, data: RVData, star: StarProperties | None = None
 ) -> SystemModel:
-    """The model :func:`to_dict` described, bound to ``data``."""
+    """The model :func:`to_dict` described, bound to ``data``.
+
+    Parameters
+    ----------
+    cls : type
+        :class:`SystemModel` (or a subclass).
+    d : dict
+        What :func:`to_dict` wrote.
+    data : RVData
+        The velocities to bind it to.
+    star : StarProperties, optional
+        The star.
+
+    Returns
+    -------
+    SystemModel
+        The model.
+    """
     from rvkep.noise import get_noise_model
     from rvkep.priors import prior_from_dict
 

@@ -531,7 +531,18 @@ def _read_dynamics(table, spec: ModelSpec, path: str) -> None:
 
 
 def read_model_file(path: str | Path) -> ModelSpec:
-    """Read and validate a model file. Raises ModelFileError naming the key."""
+    """Read and validate a model file. Raises ModelFileError naming the key.
+
+    Parameters
+    ----------
+    path : str or Path
+        The model file (TOML).
+
+    Returns
+    -------
+    ModelSpec
+        Companions, instruments, star, trend, noise and sampling settings as given.
+    """
     from rvkep.inputs import read_text
 
     path = Path(path)

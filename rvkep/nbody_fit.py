@@ -18,13 +18,41 @@ __all__ = ["dynamics_kind", "check_dynamics", "NBODY_STARTS", "fit_dynamics"]
 
 
 def dynamics_kind(opts: AnalyzeOptions, spec=None) -> str:
-    """``--dynamics`` over the model file's ``[dynamics] kind``, else keplerian."""
+    """``--dynamics`` over the model file's ``[dynamics] kind``, else keplerian.
+
+    Parameters
+    ----------
+    opts : AnalyzeOptions
+        The run's options.
+    spec : ModelSpec, optional
+        The model file.
+
+    Returns
+    -------
+    str
+        ``"keplerian"``, ``"nbody"`` or ``"nbody-inclined"``.
+    """
     return opts.dynamics or (spec.dynamics if spec is not None else None) or "keplerian"
 
 
 def check_dynamics(opts: AnalyzeOptions, spec, star) -> None:
     """Refuse an N-body run that cannot start, before any folder is made: REBOUND
-    missing, or no stellar mass (the masses, and so the interactions, scale with it)."""
+    missing, or no stellar mass (the masses, and so the interactions, scale with it).
+
+    Parameters
+    ----------
+    opts : AnalyzeOptions
+        The run's options.
+    spec : ModelSpec or None
+        The model file.
+    star : StarProperties or None
+        The star.
+
+    Raises
+    ------
+    OptionError
+        When no stellar mass is given (or REBOUND's missing-extra error).
+    """
     if dynamics_kind(opts, spec) == "keplerian":
         return
     from rvkep.nbody import require_rebound
@@ -44,7 +72,24 @@ def fit_dynamics(choice: ModelChoice, opts: AnalyzeOptions, spec=None, star=None
     N-body one (:mod:`rvkep.nbody`), from the Keplerian optimum at several
     inclinations; the two are compared (ln L, BIC) in ``dynamics_rows`` and the
     N-body fit becomes the chosen one. Without companions there is nothing to
-    integrate and the Keplerian model stays, with a note."""
+    integrate and the Keplerian model stays, with a note.
+
+    Parameters
+    ----------
+    choice : ModelChoice
+        The Keplerian choice (its ``fit``, ``notes`` and ``dynamics_rows`` are updated).
+    opts : AnalyzeOptions
+        The run's options.
+    spec : ModelSpec, optional
+        The model file.
+    star : StarProperties, optional
+        The star (its mass sets the companions' masses).
+
+    Returns
+    -------
+    ModelChoice
+        ``choice``.
+    """
     from rvkep.optimize import fit as best_fit
 
     kind = dynamics_kind(opts, spec)

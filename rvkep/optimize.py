@@ -245,6 +245,20 @@ def fit(
     Returns the best optimum found, by log-posterior (offsets solved). ``ftol`` is
     L-BFGS-B's relative tolerance on the objective (:data:`FTOL`; the trial fits of
     a candidate companion use :data:`SCREEN_FTOL`).
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model.
+    starts : list of ndarray, optional
+        Start vectors in the sampled coordinates.
+    ftol : float, optional
+        Relative tolerance.
+
+    Returns
+    -------
+    FitResult
+        The best optimum.
     """
     post = LogPosterior(model, linear="profile")
     bounds = model.coordinate_bounds()
@@ -298,6 +312,28 @@ def grid_starts(data: RVData, residual: np.ndarray, weights: np.ndarray, design:
     1 / (err^2 + jitter^2), ``design`` the offset/trend columns. Returns up to
     ``n_best`` dicts with ``period, tp, tc`` (minus the epoch), ``ecc``, ``omega``,
     ``K`` and ``chi2``, best first.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    residual, weights : ndarray
+        As above.
+    design : ndarray
+        The linear columns.
+    period : float
+        The trial period (days).
+    n_best : int, optional
+        How many grid points to return.
+    ecc_grid : sequence of float, optional
+        The eccentricities tried.
+    n_phase : int, optional
+        Periastron phases tried per eccentricity.
+
+    Returns
+    -------
+    list of dict
+        The best starts.
     """
     from rvkep.kepler import eccentric_anomaly
 
@@ -351,6 +387,26 @@ def fit_orbits(
     """Best fit of ``data`` with one companion per entry of ``periods`` (a period, or
     a list of candidate periods); see :func:`fit_companions`. Chain ``.sample()``.
 
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+    periods : list
+        For each companion, a period or a list of candidate periods (days).
+    trend : int, optional
+        Trend degree.
+    base : SystemModel, optional
+        A model whose instruments, trend and star to keep.
+    period_range : (float, float), optional
+        Bounds of the period prior.
+    n_starts : int, optional
+        Grid starts per candidate.
+
+    Returns
+    -------
+    FitResult
+        The best fit.
+
     Examples
     --------
     >>> import rvkep
@@ -396,6 +452,11 @@ def fit_companions(
     specs : list of rvkep.modelfile.CompanionSpec, optional
         Priors (and start values) per companion, from a model file; their start
         values are tried as one more start.
+
+    Returns
+    -------
+    FitResult
+        The best fit found.
     """
     if base is None:
         base = SystemModel(data, [], trend=trend)

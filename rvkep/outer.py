@@ -82,7 +82,20 @@ def open_orbit_note(label: str, entry: dict, span: float) -> str:
 
 
 def jitter_notes(model, columns: dict) -> list[str]:
-    """Notes on instruments whose jitter may be hiding a signal (see the module text)."""
+    """Notes on instruments whose jitter may be hiding a signal (see the module text).
+
+    Parameters
+    ----------
+    model : SystemModel
+        The sampled model.
+    columns : dict
+        Physical posterior samples by name.
+
+    Returns
+    -------
+    list of str
+        The notes (empty when no jitter is suspect).
+    """
     notes = []
     for inst in model.instruments:
         x = np.asarray(columns.get(f"jitter.{inst.name}", ()), float)

@@ -37,19 +37,47 @@ _INSTANCES: dict[str, NoiseModel] = {}
 
 def default_noise_model(data) -> str:
     """The noise model a run uses when none is asked for: ``night`` when an instrument
-    has dense nights (:func:`rvkep.noise.night.dense_instruments`), else ``white``."""
+    has dense nights (:func:`rvkep.noise.night.dense_instruments`), else ``white``.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+
+    Returns
+    -------
+    str
+        The noise model's name.
+    """
     from rvkep.noise.night import dense_instruments
 
     return "night" if dense_instruments(data) else "white"
 
 
 def available_noise_models() -> list[str]:
-    """The registered noise models' names."""
+    """The registered noise models' names.
+
+    Returns
+    -------
+    list of str
+        In registration order.
+    """
     return list(NOISE_MODELS)
 
 
 def get_noise_model(name: str) -> NoiseModel:
-    """The noise model registered as ``name`` (one shared, stateless instance)."""
+    """The noise model registered as ``name`` (one shared, stateless instance).
+
+    Parameters
+    ----------
+    name : str
+        A registered name.
+
+    Returns
+    -------
+    NoiseModel
+        The model.
+    """
     if name not in _INSTANCES:
         try:
             module, cls = NOISE_MODELS[name].split(":")

@@ -117,7 +117,26 @@ def covariance_power(solve, X: np.ndarray, t: np.ndarray, r: np.ndarray,
     the fraction of chi^2 = r^T C^-1 r (after the linear columns ``X``) it removes.
     ``solve(V)`` returns C^-1 V for a matrix V (n, k). The generalized Lomb-Scargle
     power (Zechmeister & Kuerster 2009, A&A 496, 577) is the special case of a
-    diagonal C."""
+    diagonal C.
+
+    Parameters
+    ----------
+    solve : callable
+        ``solve(V) -> C^-1 V``.
+    X : ndarray, shape (n, m)
+        The linear columns (offsets, trend).
+    t : ndarray, shape (n,)
+        Times (days).
+    r : ndarray, shape (n,)
+        Residuals (m/s).
+    frequency : ndarray
+        Trial frequencies (1/day).
+
+    Returns
+    -------
+    ndarray
+        The power at each frequency, in [0, 1].
+    """
     Z = solve(np.column_stack([r, X]))
     A = X.T @ Z[:, 1:]
     A_inv = np.linalg.inv(0.5 * (A + A.T))

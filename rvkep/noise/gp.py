@@ -115,7 +115,24 @@ class _Factor:
 def covariance(tau: np.ndarray, amplitude: float, rotation_period: float,
                evolution_time: float, harmonic_fraction: float) -> np.ndarray:  # fmt: skip
     """The activity covariance C(tau) of the module text, directly (no celerite2): the
-    dense reference the O(N) path is checked against."""
+    dense reference the O(N) path is checked against.
+
+    Parameters
+    ----------
+    tau : ndarray
+        Time lags (days).
+    amplitude : float
+        Amplitude (m/s).
+    rotation_period, evolution_time : float
+        The star's rotation and the spots' lifetime (days).
+    harmonic_fraction : float
+        Share of the first harmonic.
+
+    Returns
+    -------
+    ndarray
+        C(tau) (m^2/s^2), shaped like ``tau``.
+    """
     tau = np.abs(np.asarray(tau, float))
     P, L, f = rotation_period, evolution_time, harmonic_fraction
     out = np.zeros_like(tau)

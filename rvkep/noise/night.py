@@ -50,7 +50,20 @@ _LOG_2PI = float(np.log(2.0 * np.pi))
 
 def nights(time: np.ndarray, inst_index: np.ndarray) -> np.ndarray:
     """The night of every point: an integer label, the same for one instrument's points
-    whose gaps stay below NIGHT_GAP."""
+    whose gaps stay below NIGHT_GAP.
+
+    Parameters
+    ----------
+    time : ndarray
+        Times (days).
+    inst_index : ndarray of int
+        Each point's instrument.
+
+    Returns
+    -------
+    ndarray of int
+        The night label of each point.
+    """
     time = np.asarray(time, float)
     inst_index = np.asarray(inst_index)
     order = np.lexsort((time, inst_index))
@@ -63,7 +76,18 @@ def nights(time: np.ndarray, inst_index: np.ndarray) -> np.ndarray:
 
 
 def dense_instruments(data) -> list[str]:
-    """The instruments with at least two nights of DENSE_NIGHT or more points."""
+    """The instruments with at least two nights of DENSE_NIGHT or more points.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities.
+
+    Returns
+    -------
+    list of str
+        The instruments' names.
+    """
     label = nights(data.time, data.instrument_index)
     out = []
     for k, name in enumerate(data.instruments):

@@ -28,12 +28,25 @@ _LOG_2PI = float(np.log(2.0 * np.pi))
 def linear_solve(model, resid: np.ndarray, w: np.ndarray):
     """Solve the linear part for each row with diagonal weights ``w``.
 
+    Parameters
+    ----------
+    model : SystemModel
+        The model (its linear columns).
+    resid : ndarray, shape (n_rows, n)
+        Residuals after the companions.
+    w : ndarray, shape (n_rows, n)
+        Weights 1 / (err^2 + jitter^2).
+
     Returns
     -------
-    beta : (n_rows, m) best linear parameters A^-1 b (offsets on the centred scale)
-    chi2_reduction : (n_rows,) b^T A^-1 b
-    logdet_A : (n_rows,)
-    chol : (n_rows, m, m) lower Cholesky factor of A
+    beta : ndarray, shape (n_rows, m)
+        Best linear parameters A^-1 b (offsets on the centred scale).
+    chi2_reduction : ndarray, shape (n_rows,)
+        b^T A^-1 b.
+    logdet_A : ndarray, shape (n_rows,)
+        ln |A|.
+    chol : ndarray, shape (n_rows, m, m)
+        Lower Cholesky factor of A.
     """
     X = model.design
     if X.shape[1] == len(model.instruments):
