@@ -182,6 +182,24 @@ def candidate_periods(
     are dropped, near-duplicates (0.5%) merged. The joint fit's likelihood decides.
     ``known_aliases`` is (period, its :func:`alias_candidates`) when already computed;
     they are reused if that period is the top peak.
+
+    Parameters
+    ----------
+    pg : Periodogram
+        The residual periodogram.
+    t : ndarray
+        The data's times (days; the window comes from them).
+    period_range : (float, float)
+        The searched periods (days).
+    n_peaks : int, optional
+        Highest peaks kept.
+    known_aliases : tuple, optional
+        As above.
+
+    Returns
+    -------
+    list of float
+        Candidate periods (days), the highest peak first.
     """
     lo, hi = period_range
     peaks = [p for p, _ in pg.peaks(n_peaks)]
@@ -205,7 +223,18 @@ def candidate_periods(
 
 
 def residual_velocities(fit_result: FitResult) -> tuple[np.ndarray, np.ndarray]:
-    """Residuals of a fit (offsets and trend removed) and errors with jitter added."""
+    """Residuals of a fit (offsets and trend removed) and errors with jitter added.
+
+    Parameters
+    ----------
+    fit_result : FitResult
+        A best fit.
+
+    Returns
+    -------
+    residuals, errors : ndarray
+        Per point (m/s).
+    """
     model = fit_result.model
     phys = model.to_physical(np.asarray(fit_result.theta, float)[None, :])
     dy = np.sqrt(model.noise_model.effective_variance(model, phys, np.array([0]))[0])
@@ -216,7 +245,22 @@ def residual_periodogram(fit_result: FitResult, frequency: np.ndarray, label: st
     """The periodogram of a fit's residuals on ``frequency``: the generalized
     Lomb-Scargle periodogram weighted by the effective errors, or, for a noise model
     with correlated noise, the power measured through its covariance (the noise
-    model's ``periodogram_power``; Baluev false-alarm levels over the same grid)."""
+    model's ``periodogram_power``; Baluev false-alarm levels over the same grid).
+
+    Parameters
+    ----------
+    fit_result : FitResult
+        A best fit.
+    frequency : ndarray
+        Trial frequencies (1/day).
+    label : str
+        The periodogram's name in figures.
+
+    Returns
+    -------
+    Periodogram
+        Power and false-alarm levels.
+    """
     data = fit_result.model.data
     resid, dy = residual_velocities(fit_result)
     pg = periodogram(data.time, resid, dy, data.instrument, frequency, label=label)
@@ -248,7 +292,26 @@ def keplerian_residual_periodogram(fit_result: FitResult, frequency: np.ndarray,
                                    n_bootstrap: int = 0, rng=0):  # fmt: skip
     """The Keplerian periodogram (:mod:`rvkep.keplerian_periodogram`) of a fit's
     residuals, weighted by the effective errors, with ``n_bootstrap`` redraws
-    calibrating its false-alarm probability."""
+    calibrating its false-alarm probability.
+
+    Parameters
+    ----------
+    fit_result : FitResult
+        A best fit.
+    frequency : ndarray
+        Trial frequencies (1/day).
+    label : str
+        The periodogram's name in figures.
+    n_bootstrap : int, optional
+        Redraws (0: the Bonferroni bound, :func:`bounded_fap`).
+    rng : int or numpy.random.Generator, optional
+        Seed of the redraws.
+
+    Returns
+    -------
+    Periodogram
+        Power and false-alarm levels.
+    """
     from rvkep.keplerian_periodogram import keplerian_periodogram
 
     data = fit_result.model.data
@@ -262,7 +325,22 @@ def bounded_fap(pg, power: float) -> tuple[float, int]:
     """An upper bound on a Keplerian periodogram peak's false-alarm probability with no
     redraws: the number of grid points times the single-trial probability (Bonferroni's
     inequality; conservative, since neighbouring trials are correlated). Returns the
-    bound and the number of trials."""
+    bound and the number of trials.
+
+    Parameters
+    ----------
+    pg : Periodogram
+        A Keplerian periodogram.
+    power : float
+        The peak's power.
+
+    Returns
+    -------
+    fap : float
+        The bound (at most 1).
+    trials : int
+        The number of trials.
+    """
     from rvkep.keplerian_periodogram import KEPLER_ECC, phase_counts
 
     trials = int(pg.frequency.size * phase_counts(KEPLER_ECC).sum())

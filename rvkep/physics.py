@@ -426,6 +426,18 @@ def derive_companion(
     known, are drawn the same way for the transit probability, the equilibrium
     temperature and the insolation.
 
+    Parameters
+    ----------
+    period, K, ecc, omega : array_like
+        Posterior samples: period (days), semi-amplitude (m/s), eccentricity and the star's
+        argument of periastron (radians).
+    star : StarProperties
+        The star (mass with its error; radius and temperature when known).
+    rng : numpy.random.Generator or int, optional
+        Seed of the stellar draws.
+    star_mass : ndarray, optional
+        Stellar-mass draws (solar masses), shared between companions.
+
     Returns
     -------
     dict

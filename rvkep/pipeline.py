@@ -460,7 +460,24 @@ def figure_set(choice: bool | str) -> str:
 def write_figures(results, out: str | Path, fmt: str = "png", which: str = "all") -> list[Path]:
     """Save the time series, phase curves, periodograms and corner plots of a result
     (drawn by the figure functions of :mod:`rvkep.plots` from the Results); ``which``
-    names a set of :data:`FIGURE_SETS` (``summary``: time series and phase curves)."""
+    names a set of :data:`FIGURE_SETS` (``summary``: time series and phase curves).
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+    out : str or Path
+        The folder.
+    fmt : str, optional
+        File format (``png``, ``pdf``, ``svg``).
+    which : str, optional
+        The set of figures.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+    """
     from rvkep import __version__
     from rvkep.outputs import save_figure as _save
     from rvkep.plots import corner_figure, phase_figure, plot_periodograms, timeseries_figure

@@ -132,7 +132,20 @@ def choose_epochs(cov_vv: np.ndarray, noise_var: float, night: np.ndarray, *,
 def default_aim(columns: Mapping[str, np.ndarray], labels: list[str]) -> str:
     """The least-constrained companion's period or K: of the ``<label>.period`` and
     ``<label>.K`` columns, the one with the largest posterior standard deviation relative
-    to its median."""
+    to its median.
+
+    Parameters
+    ----------
+    columns : mapping
+        Posterior samples by name.
+    labels : list of str
+        The companions.
+
+    Returns
+    -------
+    str
+        The column's name, e.g. ``"c.K"``.
+    """
     if not labels:
         raise ValueError("no companion to plan for")
     rel = {}

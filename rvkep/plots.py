@@ -96,6 +96,11 @@ def plot_periodograms(result, fig=None, activity: bool = True):
         Drawn into instead of a new one.
     activity : bool
         Add one panel per activity indicator.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
     """
     pgs = list(result.periodograms)
     extra = list(result.activity.values()) if activity else []
@@ -261,6 +266,32 @@ def plot_phase(data, phase, velocity, curve_phase, curve, label, period, band=No
     ``curve_phase``/``curve`` the model; binned weighted means are drawn over the
     points as bars with their error strokes, in the companion's ``colour``. Given
     ``ax``, draws the upper panel alone into it.
+
+    Parameters
+    ----------
+    data : RVData
+        The velocities (instruments' markers).
+    phase, velocity : ndarray
+        The points.
+    curve_phase, curve : ndarray
+        The model over one period.
+    label : str
+        The companion.
+    period : float
+        Its period (days), for the axis label.
+    band : (ndarray, ndarray), optional
+        The 68% band of the model.
+    n_bins : int, optional
+        Bins of the binned means.
+    fig, ax : optional
+        Drawn into instead of a new figure.
+    colour : str, optional
+        The companion's colour.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
     """
     colour = colour or companion_colour(0)
     if ax is None:
@@ -314,6 +345,26 @@ def plot_corner(samples: dict, names: list[str], labels: list[str], truths=None,
     alone) have no distribution to draw: they are left out of the panels and listed
     with their value in the figure's title line instead. With fewer than one varying
     column the figure holds only that line.
+
+    Parameters
+    ----------
+    samples : dict
+        Posterior samples by name.
+    names : list of str
+        The columns drawn.
+    labels : list of str
+        Their axis labels.
+    truths : sequence of float, optional
+        Values marked on the panels.
+    fig : matplotlib Figure, optional
+        Drawn into instead of a new one.
+    colour : str, optional
+        The histograms' colour.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
     """
     import logging
 
@@ -378,7 +429,20 @@ def _removed(results) -> str:
 def timeseries_figure(results, fig=None):
     """The time series of a :class:`rvkep.results.Results`: data, model, 68% band, the
     band's width and the residuals (O-C) (:func:`rvkep.curves.timeseries_curves`,
-    :func:`plot_timeseries`); a fitted trend is removed from the points and said."""
+    :func:`plot_timeseries`); a fitted trend is removed from the points and said.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+    fig : matplotlib Figure, optional
+        Drawn into instead of a new one.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
+    """
     from rvkep.curves import timeseries_curves
 
     ts = timeseries_curves(results)
@@ -389,7 +453,22 @@ def timeseries_figure(results, fig=None):
 
 def phase_figure(results, label: str, fig=None, ax=None):
     """One companion's phase-folded curve from a Results (:func:`plot_phase`), in the
-    companion's own colour."""
+    companion's own colour.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+    label : str
+        The companion.
+    fig, ax : optional
+        Drawn into instead of a new figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
+    """
     from rvkep.curves import phase_curves
 
     ph = phase_curves(results, label)
@@ -407,7 +486,22 @@ CORNER_COLUMNS = [("period", r"$P$ [d]"), ("K", r"$K$ [m s$^{-1}$]"), ("ecc", r"
 
 def corner_figure(results, label: str, fig=None):
     """One companion's posterior (P, K, e, omega, m sin i) from a Results, in the
-    companion's own colour."""
+    companion's own colour.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+    label : str
+        The companion.
+    fig : matplotlib Figure, optional
+        Drawn into instead of a new one.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
+    """
     post = results.posterior
     chosen = [(f"{label}.{c}", text) for c, text in CORNER_COLUMNS if f"{label}.{c}" in post]
     colour = companion_colour(results.labels.index(label))
@@ -423,7 +517,20 @@ def plan_figure(plan, fig=None):
     """An observing plan (:class:`rvkep.plan.Plan`): above, the score of every
     observable time before any epoch is chosen, night by night, with the chosen epochs
     marked; below, the posterior's spread of the velocity the instrument would see
-    (its standard deviation), which the chosen epochs sample."""
+    (its standard deviation), which the chosen epochs sample.
+
+    Parameters
+    ----------
+    plan : Plan
+        The observing plan.
+    fig : matplotlib Figure, optional
+        Drawn into instead of a new one.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
+    """
     fig, axes = _figure(fig, 2, height_ratios=[3, 2], figsize=(8, 5.5))
     g, c = plan.grid, plan.choice
     x = g.utc_jd - math.floor(g.utc_jd[0] + 0.5) + 0.5  # days since the start date, 0h UTC
@@ -481,7 +588,22 @@ def trend_companion_figure(results, fig=None):
 def plot_limits(limits, companions=(), fig=None):
     """A completeness map (:class:`rvkep.limits.Limits`): the share of injected
     companions recovered in each period and M sin i cell, the 50% and 95% curves, and
-    the run's companions as (period, M sin i, label)."""
+    the run's companions as (period, M sin i, label).
+
+    Parameters
+    ----------
+    limits : Limits
+        The completeness grid.
+    companions : iterable of (float, float, str), optional
+        The run's companions.
+    fig : matplotlib Figure, optional
+        Drawn into instead of a new one.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
+    """
     from matplotlib.colors import ListedColormap
 
     fig, axes = _figure(fig, 1, figsize=(7.5, 5.0))

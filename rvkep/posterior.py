@@ -22,7 +22,18 @@ __all__ = ["PosteriorSamples", "percentiles"]
 
 
 def percentiles(x: np.ndarray) -> dict[str, float]:
-    """{"median", "minus", "plus"} from the 16th, 50th and 84th percentiles."""
+    """{"median", "minus", "plus"} from the 16th, 50th and 84th percentiles.
+
+    Parameters
+    ----------
+    x : ndarray
+        Samples.
+
+    Returns
+    -------
+    dict
+        The median and the distances to the 16th and 84th percentiles.
+    """
     lo, med, hi = np.percentile(np.asarray(x, float), [15.865525393145708, 50.0, 84.13447460685429])
     return {"median": float(med), "minus": float(med - lo), "plus": float(hi - med)}
 

@@ -40,7 +40,18 @@ def coordinate_bounds(model: SystemModel) -> list[tuple[float | None, float | No
     """(low, high) of each sampled coordinate (None where open), as L-BFGS-B takes
     them: ln P from the period prior's bounds, tc minus the epoch, the sqrt(e) pair in
     the unit square (a steep pair within the radius of the prior's largest e), K and
-    jitter from zero."""
+    jitter from zero.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model.
+
+    Returns
+    -------
+    list of (float or None, float or None)
+        One pair per sampled coordinate.
+    """
     out = []
     for kind, i, f in model._slots:
         if kind == "instrument":
@@ -75,7 +86,20 @@ def coordinate_bounds(model: SystemModel) -> list[tuple[float | None, float | No
 
 def prior_table(model: SystemModel) -> tuple[PriorTable, np.ndarray]:
     """The packed priors over V (see the module) and the companions whose period is
-    sampled (their ln P Jacobian), built once per model."""
+    sampled (their ln P Jacobian), built once per model.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model (the result is cached on it).
+
+    Returns
+    -------
+    table : PriorTable
+        The packed priors.
+    period_jac : ndarray of bool
+        Which periods are sampled.
+    """
     if model._plan is not None:
         return model._plan
     nc, ni = len(model.companions), len(model.instruments)
@@ -113,6 +137,20 @@ def log_prior(model: SystemModel, theta: np.ndarray, arrays: dict | None = None)
     K < 0, a negative jitter or a noise parameter outside its domain are invalid
     whatever the priors say. ``arrays`` (from :meth:`SystemModel.orbit_arrays`) saves
     recomputing them.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model.
+    theta : ndarray, shape (n_sets, ndim)
+        Sampled coordinates.
+    arrays : dict, optional
+        The orbit arrays of ``theta``.
+
+    Returns
+    -------
+    ndarray, shape (n_sets,)
+        The log prior.
     """
     arr = model.orbit_arrays(theta) if arrays is None else arrays
     table, jac = prior_table(model)
@@ -147,7 +185,18 @@ def compiled_plan(model: SystemModel) -> tuple | None:
     ``epoch``), or None when the model needs the general path: a prior without a
     packed form (truncated normal, beta), a noise model's own parameters, or N-body
     dynamics. The prior columns are the packed table's rows over
-    [period | tc | ecc | K | jitter]."""
+    [period | tc | ecc | K | jitter].
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model (the result is cached on it).
+
+    Returns
+    -------
+    tuple or None
+        The tables, in the kernel's argument order.
+    """
     if model._compiled is not None:
         return model._compiled or None
     nc, ni = len(model.companions), len(model.instruments)
@@ -184,6 +233,18 @@ def prior_transform(model: SystemModel, u: np.ndarray) -> np.ndarray:
     (uniform, as in :meth:`log_prior`); K, jitter and the noise model's own
     parameters: ppf(u). Uniform points give
     draws of the prior that :meth:`log_prior` states.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model.
+    u : ndarray, shape (n_sets, ndim) or (ndim,)
+        Points of the unit cube.
+
+    Returns
+    -------
+    ndarray
+        Sampled coordinates, shaped like ``u``.
     """
     u = np.asarray(u, dtype=float)
     single = u.ndim == 1
@@ -221,7 +282,20 @@ def coordinate_log_jacobian(model: SystemModel, ecc: np.ndarray) -> np.ndarray:
     stretched pair (det d(h, k)/d(a, b) = 1 - e exactly) and -ln sqrt(1 - e^2) for
     K sqrt(1 - e^2) (dK/d(K sqrt(1 - e^2)) at fixed e); zeros without steep
     companions. The log posterior of the same point in another model's
-    coordinates differs by the difference of the two models' values."""
+    coordinates differs by the difference of the two models' values.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model.
+    ecc : ndarray, shape (n_sets, n_companions)
+        Eccentricities.
+
+    Returns
+    -------
+    ndarray, shape (n_sets,)
+        The log Jacobian.
+    """
     ecc = np.atleast_2d(np.asarray(ecc, float))
     with np.errstate(invalid="ignore", divide="ignore"):
         out = np.log1p(-ecc[:, model._steep]).sum(axis=1)

@@ -380,6 +380,18 @@ def prior_from_dict(spec: dict, where: str = "prior") -> Prior:
     """Build a prior from a model-file table such as ``{prior = "normal", mean = 1, sd = 2}``.
 
     Raises ValueError naming ``where`` and the problem.
+
+    Parameters
+    ----------
+    spec : dict
+        The table (``prior`` names the kind; ``value`` alone fixes the parameter).
+    where : str, optional
+        The key named in errors.
+
+    Returns
+    -------
+    Prior
+        The prior.
     """
     if "hold" in spec and "prior" not in spec:  # a held (fixed) value: { hold = 2.0 }
         if set(spec) != {"hold"}:
