@@ -44,10 +44,11 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 from rvkep.errors import DataError, OptionError, RvkepError
+from rvkep.messages import did_you_mean
 from rvkep.names import csv_cell, name_problem, shown
 from rvkep.option_checks import check as check_options
 from rvkep.option_checks import from_cell
-from rvkep.options import TARGET_REQUIRED, columns, did_you_mean, option
+from rvkep.options import TARGET_REQUIRED, columns, option
 from rvkep.outputs import LOCK_NAME, clean_temporaries, write_text
 from rvkep.workers import INTERRUPTED, run_tasks
 

@@ -14,7 +14,7 @@ import warnings
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from rvkep.options import say as _say
+from rvkep.messages import say as _say
 
 if TYPE_CHECKING:
     from rvkep.model_choice import ModelChoice

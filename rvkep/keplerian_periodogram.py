@@ -73,7 +73,18 @@ N_BOOTSTRAP = 50
 
 
 def phase_counts(ecc) -> np.ndarray:
-    """Periastron phases tried at each eccentricity (see :data:`PHASE_DENSITY`)."""
+    """Periastron phases tried at each eccentricity (see :data:`PHASE_DENSITY`).
+
+    Parameters
+    ----------
+    ecc : ndarray
+        Trial eccentricities.
+
+    Returns
+    -------
+    ndarray of int
+        Phases per eccentricity (1 for a circular orbit, else at least 4).
+    """
     ecc = np.asarray(ecc, float)
     n = np.ceil(PHASE_DENSITY / (1.0 - ecc) ** 1.5).astype(np.int64)
     return np.where(ecc == 0.0, 1, np.maximum(n, 4))

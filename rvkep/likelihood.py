@@ -209,7 +209,22 @@ class LogPosterior:
 def curvature_scales(post: LogPosterior, x: np.ndarray, lo, hi) -> np.ndarray:
     """Per-coordinate scales 1 / sqrt(d2f/dx2) from one vectorized call (the diagonal
     of the Hessian by central differences), so the optimizer sees a well-conditioned
-    problem: a period known to 1e-5 and an offset known to 1 m/s become steps of one."""
+    problem: a period known to 1e-5 and an offset known to 1 m/s become steps of one.
+
+    Parameters
+    ----------
+    post : LogPosterior
+        The posterior.
+    x : ndarray, shape (ndim,)
+        The point (a best fit).
+    lo, hi : ndarray
+        The coordinates' bounds (the difference steps stay inside them).
+
+    Returns
+    -------
+    ndarray, shape (ndim,)
+        The scales, clipped to [1e-9, 1e3].
+    """
     ndim = x.size
     h = 1e-5 * np.maximum(np.abs(x), 1.0)
     pts = np.repeat(x[None, :], 2 * ndim + 1, axis=0)

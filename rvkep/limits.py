@@ -129,9 +129,9 @@ def _screen_prefers(setup, y, peak_power, freq, P_true) -> bool:
     period: is the injected one among them, and does the joint fit's linear start grid
     fit it best?"""
     from rvkep.data import RVData
-    from rvkep.optimize import grid_starts
     from rvkep.period_search import candidate_periods
     from rvkep.periodogram import Periodogram
+    from rvkep.start_grid import grid_starts
 
     t0 = setup.time - np.round(np.mean(setup.time))
     pg = Periodogram(freq, peak_power, t0, y, setup.dy)
@@ -487,8 +487,8 @@ def run_limits(setup: LimitsSetup, folder: str | Path, *, workers: int = 1,
 def write_limits(limits: Limits, results, folder: str | Path) -> list[Path]:
     """limits.csv, limits_curves.csv and limits.png in ``folder``; results.json gains
     ``limits`` (the curves and how they were made) and summary.md shows them."""
+    from rvkep.extra_plots import plot_limits
     from rvkep.outputs import save_figure, write_csv, write_text
-    from rvkep.plots import plot_limits
 
     folder = Path(folder)
     s = limits.setup

@@ -26,8 +26,8 @@ import numpy as np
 from rvkep.data import RVData
 from rvkep.errors import OptionError, RvkepError
 from rvkep.evidence import compute_evidence, run_seed
+from rvkep.messages import say as _say
 from rvkep.options import TREND_DEGREES, parse_trend
-from rvkep.options import say as _say
 from rvkep.rotation import near_rotation, rotation_notes, rotation_prior, star_rotation
 
 if TYPE_CHECKING:

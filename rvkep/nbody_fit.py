@@ -8,7 +8,7 @@ from dataclasses import replace
 from typing import TYPE_CHECKING
 
 from rvkep.errors import OptionError
-from rvkep.options import say as _say
+from rvkep.messages import say as _say
 
 if TYPE_CHECKING:
     from rvkep.model_choice import ModelChoice

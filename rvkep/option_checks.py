@@ -9,10 +9,10 @@ from __future__ import annotations
 import math
 
 from rvkep.errors import OptionError
+from rvkep.messages import did_you_mean
 from rvkep.options import (
     DEFAULT_MIN_PERIOD,
     Option,
-    did_you_mean,
     number_text,
     options_of,
     parse_trend,

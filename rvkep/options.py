@@ -29,7 +29,6 @@ __all__ = [
     "Option", "OPTIONS", "options_of", "option", "columns", "signature", "numpydoc", "as_flags",
     "DEFAULT_MIN_PERIOD", "TREND_DEGREES", "SEARCH_KINDS", "FIGURE_SETS", "parse_trend",
     "MIN_STEPS", "MAX_STEPS", "MIN_BOOTSTRAP", "MAX_SEED", "ANALYSIS", "TARGET_REQUIRED",
-    "did_you_mean", "say",
 ]  # fmt: skip
 
 #: shortest period searched by default (days)
@@ -51,43 +50,6 @@ MAX_SEED = 2**32 - 1
 ANALYSIS = frozenset({"analyze", "demo", "sample"})
 #: target-list columns every row must have
 TARGET_REQUIRED = ("name", "data", "star_mass", "star_mass_err")
-
-
-def did_you_mean(name: str, known: Iterable[str], cutoff: float = 0.6) -> str:
-    """The hint an unknown name's error ends with.
-
-    Parameters
-    ----------
-    name : str
-        The name that was not recognised (an option, a column, a flag).
-    known : iterable of str
-        The names it may have been meant as.
-    cutoff : float, optional
-        How alike the two must be (:func:`difflib.get_close_matches`' ratio, 0 to 1).
-
-    Returns
-    -------
-    str
-        ``" (did you mean X?)"`` for the closest known name, or ``""`` when none is close.
-    """
-    import difflib
-
-    close = difflib.get_close_matches(name, list(known), n=1, cutoff=cutoff)
-    return f" (did you mean {close[0]}?)" if close else ""
-
-
-def say(opts: Any, text: str) -> None:
-    """Print one line of progress on the terminal unless the run is quiet.
-
-    Parameters
-    ----------
-    opts : object
-        The run's options (anything with a boolean ``quiet``).
-    text : str
-        The line to print.
-    """
-    if not opts.quiet:
-        print(text, flush=True)
 
 
 def parse_trend(value) -> int | str:

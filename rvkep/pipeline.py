@@ -24,10 +24,11 @@ from rvkep.errors import OptionError, RvkepError
 from rvkep.evidence import run_nested, run_seed
 from rvkep.formatting import p_relation
 from rvkep.kepler import prepare_kernels
+from rvkep.messages import did_you_mean
+from rvkep.messages import say as _say
 from rvkep.model_choice import BIC_THRESHOLD, ModelChoice, choose_companions, choose_model
 from rvkep.names import name_problem
 from rvkep.nbody_fit import check_dynamics, fit_dynamics
-from rvkep.options import say as _say
 from rvkep.outputs import (
     check_output_folder,
     clean_temporaries,
@@ -150,7 +151,7 @@ def _options_from(opts: AnalyzeOptions | None, keywords: dict) -> AnalyzeOptions
     unknown = [k for k in keywords if k not in _OPTION_NAMES]
     if unknown:
         raise TypeError(f"analyze() got an unexpected keyword argument {unknown[0]!r}"
-                        f"{options.did_you_mean(unknown[0], _OPTION_NAMES)}")  # fmt: skip
+                        f"{did_you_mean(unknown[0], _OPTION_NAMES)}")  # fmt: skip
     return AnalyzeOptions(**keywords)
 
 
@@ -513,7 +514,7 @@ def write_figures(results, out: str | Path, fmt: str = "png", which: str = "all"
     if "periodogram" in kinds and results.search is not None:
         written.append(save_figure(plot_periodograms(results.search), out / f"periodogram.{fmt}"))
     if "timeseries" in kinds and results.trend_degree >= 1:
-        from rvkep.plots import trend_companion_figure
+        from rvkep.extra_plots import trend_companion_figure
 
         written.append(save_figure(trend_companion_figure(results),
                                    out / f"trend_companion.{fmt}"))  # fmt: skip

@@ -16,7 +16,26 @@ __all__ = ["load_fit", "data_csv", "read_data_csv", "clean"]
 
 def load_fit(folder: Path, data, star, saved: dict, posterior: PosteriorSamples):
     """The best fit of a saved run rebuilt from ``model.json`` on its data (None when
-    the folder has no model.json); the posterior's sampler coordinates restored."""
+    the folder has no model.json); the posterior's sampler coordinates restored.
+
+    Parameters
+    ----------
+    folder : Path
+        The run folder.
+    data : RVData
+        The run's data.
+    star : StarProperties or None
+        The run's star.
+    saved : dict
+        results.json's content.
+    posterior : PosteriorSamples
+        The saved posterior (its sampler coordinates are set here).
+
+    Returns
+    -------
+    FitResult or None
+        The best fit.
+    """
     from rvkep.errors import DataError
     from rvkep.model import Elements, SystemModel
     from rvkep.optimize import _result
@@ -44,7 +63,18 @@ def load_fit(folder: Path, data, star, saved: dict, posterior: PosteriorSamples)
 
 
 def data_csv(data) -> str:
-    """The data a run used, exactly (shortest round-trip reprs), for Results.load."""
+    """The data a run used, exactly (shortest round-trip reprs), for Results.load.
+
+    Parameters
+    ----------
+    data : RVData
+        The data.
+
+    Returns
+    -------
+    str
+        The CSV text.
+    """
     import csv
     import io
 
@@ -61,7 +91,20 @@ def data_csv(data) -> str:
 
 def read_data_csv(path: Path, epoch: float):
     """The RVData written by :func:`data_csv` (extras may hold NaN where a file had
-    no such column)."""
+    no such column).
+
+    Parameters
+    ----------
+    path : Path
+        The data.csv of a run folder.
+    epoch : float
+        The run's reference epoch (days).
+
+    Returns
+    -------
+    RVData
+        The data.
+    """
     import csv
 
     from rvkep.data import RVData
@@ -77,7 +120,18 @@ def read_data_csv(path: Path, epoch: float):
 
 
 def clean(x):
-    """JSON-safe copy: numpy scalars to floats, NaN/inf to None."""
+    """JSON-safe copy: numpy scalars to floats, NaN/inf to None.
+
+    Parameters
+    ----------
+    x : object
+        Any nesting of dicts, lists, tuples, numpy arrays and scalars.
+
+    Returns
+    -------
+    object
+        The copy.
+    """
     if isinstance(x, dict):
         return {str(k): clean(v) for k, v in x.items()}
     if isinstance(x, (list, tuple)):

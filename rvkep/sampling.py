@@ -50,6 +50,7 @@ from rvkep.checkpoints import (
 from rvkep.errors import RvkepError
 from rvkep.likelihood import LogPosterior
 from rvkep.model import SystemModel
+from rvkep.moves import MOVES, moves
 
 __all__ = [
     "SamplerOptions",
@@ -69,63 +70,6 @@ __all__ = [
 
 class UnconvergedWarning(UserWarning):
     """The chain stopped at the step cap before meeting the convergence criterion."""
-
-
-def snooker_proposal(s, z, z1, z2, gamma: float):
-    """The differential-evolution snooker update of walkers ``s`` (n, ndim) from the
-    chosen walkers ``z`` (the snooker's centre) and ``z1``, ``z2`` (the difference),
-    with emcee's arithmetic (``emcee.moves.DESnookerMove``; ter Braak & Vrugt 2008):
-    u = (s - z) / sqrt|s - z|, q = s + gamma u (u.z1 - u.z2), and the log Metropolis
-    factor (ndim - 1)/2 ln(|q - z| / |s - z|). Returns (q, factors)."""
-    delta = s - z
-    norm = np.sqrt(np.einsum("ij,ij->i", delta, delta))
-    u = delta / np.sqrt(norm)[:, None]
-    q = s + u * (gamma * (np.einsum("ij,ij->i", u, z1) - np.einsum("ij,ij->i", u, z2)))[:, None]
-    d = q - z
-    ratio = np.log(np.sqrt(np.einsum("ij,ij->i", d, d))) - np.log(norm)
-    return q, 0.5 * (s.shape[1] - 1.0) * ratio
-
-
-_SNOOKER_CLASS = None
-
-
-def _snooker():
-    """emcee's snooker move with its proposals drawn for all walkers at once: for each
-    walker one walker from each of the three other quarters of the ensemble, their
-    roles (centre, first, second) in a uniformly random order, as emcee draws them one
-    walker at a time; the same proposal distribution, about 8x fewer Python steps."""
-    global _SNOOKER_CLASS
-    if _SNOOKER_CLASS is None:
-        from emcee.moves import DESnookerMove
-
-        class _Snooker(DESnookerMove):
-            def get_proposal(self, s, c, random):
-                n = len(s)
-                picks = np.stack([cj[random.randint(len(cj), size=n)] for cj in c])
-                order = np.argsort(random.rand(n, 3), axis=1)  # a uniform permutation each
-                z = picks[order.T, np.arange(n)]  # z[r, i] = picks[order[i, r], i]
-                return snooker_proposal(s, z[0], z[1], z[2], self.gammas)
-
-        _SNOOKER_CLASS = _Snooker
-    return _SNOOKER_CLASS()
-
-
-def _moves(kind: str):
-    import emcee
-
-    if kind == "stretch":
-        return emcee.moves.StretchMove()
-    if kind == "de":
-        return [(emcee.moves.DEMove(), 0.8), (_snooker(), 0.2)]
-    if kind == "de+stretch":
-        return [(emcee.moves.DEMove(), 0.8), (emcee.moves.StretchMove(), 0.2)]
-    raise ValueError(f"unknown moves {kind!r}; choose from {', '.join(MOVES)}")
-
-
-#: Move mixtures on offer. "de" (differential evolution 80% + its snooker variant 20%)
-#: is the default: on the demo star it gives about 3x the effective samples per second
-#: of the stretch move (scripts/bench_sampling.py).
-MOVES = ("de", "de+stretch", "stretch")
 
 
 @dataclass
@@ -236,6 +180,24 @@ def initial_ball(
     width), reflected into the coordinate's bounds (a best fit on a bound, such as a
     noise amplitude of zero, starts its walkers on the inside), redrawn until every
     walker is inside the prior.
+
+    Parameters
+    ----------
+    post : LogPosterior
+        The posterior.
+    center : ndarray, shape (ndim,)
+        The best fit.
+    n : int
+        Number of points.
+    rng : numpy.random.Generator
+        Random numbers.
+    scale : ndarray, optional
+        Width per coordinate (default: the curvature scales).
+
+    Returns
+    -------
+    ndarray, shape (n, ndim)
+        The starting points.
     """
     from rvkep.likelihood import curvature_scales
 
@@ -380,7 +342,7 @@ def run_sampler(model: SystemModel, start: np.ndarray, options: SamplerOptions |
     rng = np.random.default_rng(opts.seed)
     backend, stored = _checkpoint(model, post, opts, nwalkers)
     sampler = emcee.EnsembleSampler(
-        nwalkers, ndim, post, vectorize=True, moves=_moves(opts.moves), backend=backend
+        nwalkers, ndim, post, vectorize=True, moves=moves(opts.moves), backend=backend
     )
     state, chains, logps = _start(sampler, post, start, nwalkers, rng, stored)
     steps = chains[0].shape[0] if chains else 0
@@ -476,7 +438,26 @@ def steep_coordinates(post, start: np.ndarray, threshold: float | None):
     the start mapped to them and the posterior rebuilt alike; unchanged when none
     qualifies, ``threshold`` is None, or ``post`` is not a :class:`LogPosterior` with
     its prior (a likelihood alone, flat in whatever coordinates are sampled, would
-    be another distribution in others)."""
+    be another distribution in others).
+
+    Parameters
+    ----------
+    post : LogPosterior
+        The posterior.
+    start : ndarray
+        The start in ``post``'s coordinates.
+    threshold : float or None
+        The eccentricity from which the steep coordinates are used.
+
+    Returns
+    -------
+    model : SystemModel
+        The model sampled.
+    start : ndarray
+        The start in its coordinates.
+    post : LogPosterior
+        Its posterior.
+    """
     from dataclasses import replace
 
     model = post.model
@@ -557,5 +538,18 @@ def _converged(tau, tau_prev, steps, opts) -> bool:
 
 def sample(fit, **options) -> SamplingResult:
     """Sample the posterior from a best fit (``fit.sample(**options)``); the options
-    are those of :class:`SamplerOptions`."""
+    are those of :class:`SamplerOptions`.
+
+    Parameters
+    ----------
+    fit : FitResult
+        The best fit.
+    **options
+        :class:`SamplerOptions` fields.
+
+    Returns
+    -------
+    SamplingResult
+        The chains and the posterior.
+    """
     return fit.sample(**options)

@@ -65,7 +65,22 @@ class SkyGrid:
 def altitudes(utc_jd: np.ndarray, site: tuple[float, float, float], ra_deg: float,
               dec_deg: float) -> tuple[np.ndarray, np.ndarray]:  # fmt: skip
     """Altitudes (degrees, no refraction) of the Sun and of the ICRS target at UTC
-    Julian dates ``utc_jd`` from ``site`` (latitude, longitude east, height m)."""
+    Julian dates ``utc_jd`` from ``site`` (latitude, longitude east, height m).
+
+    Parameters
+    ----------
+    utc_jd : ndarray
+        UTC Julian dates.
+    site : (float, float, float)
+        Latitude (deg), longitude east (deg), height (m).
+    ra_deg, dec_deg : float
+        The target's ICRS coordinates (degrees).
+
+    Returns
+    -------
+    sun, target : ndarray
+        Altitudes (degrees).
+    """
     from astropy import units as u
     from astropy.coordinates import AltAz, SkyCoord, get_body
     from astropy.time import Time
@@ -92,6 +107,29 @@ def observing_grid(
 ) -> SkyGrid:
     """The grid of candidate times of ``nights`` nights from the evening of ``start``
     (an ISO date), every ``step_minutes``, with the Sun's and the target's altitudes.
+
+    Parameters
+    ----------
+    site : (float, float, float)
+        Latitude (deg), longitude east (deg), height (m).
+    ra_deg, dec_deg : float
+        The target's ICRS coordinates (degrees).
+    start : str
+        The first night's date (ISO, local evening).
+    nights : int
+        Number of nights.
+    step_minutes : float, optional
+        Spacing of the candidate times.
+    sun_limit : float, optional
+        The Sun's altitude (degrees) below which it is night.
+    max_airmass : float, optional
+        The highest airmass observable.
+
+    Returns
+    -------
+    SkyGrid
+        Times (UTC, BJD), night labels and dates, altitudes, airmass and which times are
+        observable.
 
     Raises
     ------

@@ -51,6 +51,15 @@ def hill_margin(a1, a2, e1, e2, m1, m2, star_mass) -> np.ndarray:
         Eccentricities.
     m1, m2, star_mass : array_like
         Masses in one unit.
+
+    Returns
+    -------
+    ndarray
+        The margin (scalar for scalar input).
+
+    References
+    ----------
+    .. [1] Gladman, B. (1993), Icarus 106, 247.
     """
     a1, a2, e1, e2, m1, m2, M = np.broadcast_arrays(*(np.asarray(x, float) for x in (
         a1, a2, e1, e2, m1, m2, star_mass)))  # fmt: skip
@@ -64,7 +73,18 @@ def hill_margin(a1, a2, e1, e2, m1, m2, star_mass) -> np.ndarray:
 
 
 def hill_stable_pair(a1, a2, e1, e2, m1, m2, star_mass) -> bool | np.ndarray:
-    """True where Gladman's criterion holds (see :func:`hill_margin`)."""
+    """True where Gladman's criterion holds (see :func:`hill_margin`).
+
+    Parameters
+    ----------
+    a1, a2, e1, e2, m1, m2, star_mass : array_like
+        As :func:`hill_margin`.
+
+    Returns
+    -------
+    bool or ndarray
+        Hill stable (scalar for scalar input).
+    """
     out = hill_margin(a1, a2, e1, e2, m1, m2, star_mass) > 0.0
     return bool(out) if out.ndim == 0 else out
 
@@ -87,7 +107,24 @@ def _collision_e1(alpha: np.ndarray, gamma: np.ndarray) -> np.ndarray:
 def critical_amd(alpha, gamma) -> np.ndarray:
     """C_c(alpha, gamma): the least relative AMD (in units of the outer Lambda) at
     which orbits with semi-major axis ratio ``alpha`` = a1/a2 < 1 and mass ratio
-    ``gamma`` = m1/m2 can cross (Laskar & Petit 2017, eqs. 29-35)."""
+    ``gamma`` = m1/m2 can cross (Laskar & Petit 2017, eqs. 29-35).
+
+    Parameters
+    ----------
+    alpha : array_like
+        a1 / a2 (< 1).
+    gamma : array_like
+        m1 / m2.
+
+    Returns
+    -------
+    ndarray
+        C_c.
+
+    References
+    ----------
+    .. [1] Laskar, J. & Petit, A. C. (2017), A&A 605, A72.
+    """
     alpha, gamma = np.broadcast_arrays(np.asarray(alpha, float), np.asarray(gamma, float))
     e1 = _collision_e1(alpha, gamma)
     e2 = 1.0 - alpha - alpha * e1

@@ -56,12 +56,34 @@ _RC = {
 
 
 def companion_colour(index: int) -> str:
-    """The colour of the companion with this index (b = 0, c = 1, ...)."""
+    """The colour of the companion with this index (b = 0, c = 1, ...).
+
+    Parameters
+    ----------
+    index : int
+        The companion's index.
+
+    Returns
+    -------
+    str
+        A colour (hex).
+    """
     return COMPANION_COLOURS[index % len(COMPANION_COLOURS)]
 
 
 def instrument_style(index: int) -> dict:
-    """Marker and ink of the instrument with this index (stable across figures)."""
+    """Marker and ink of the instrument with this index (stable across figures).
+
+    Parameters
+    ----------
+    index : int
+        The instrument's index.
+
+    Returns
+    -------
+    dict
+        ``color``, ``marker`` and the other matplotlib keywords of its points.
+    """
     return {
         "color": INSTRUMENT_INKS[index % len(INSTRUMENT_INKS)],
         "marker": INSTRUMENT_MARKERS[index % len(INSTRUMENT_MARKERS)],

@@ -26,6 +26,22 @@ def keplerian_velocity(
 
     ``phys`` holds physical columns (:meth:`SystemModel.to_physical`); the curves are
     evaluated at the data times by default, or at ``t`` (in the data's time system).
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model.
+    phys : dict
+        Physical columns.
+    rows : ndarray of int, optional
+        The rows of ``phys`` used (default all).
+    t : ndarray, optional
+        Times (days).
+
+    Returns
+    -------
+    ndarray, shape (n_rows, n_times)
+        Velocities (m/s).
     """
     if rows is None:
         rows = np.arange(next(iter(phys.values())).shape[0]) if phys else np.arange(1)
@@ -51,7 +67,22 @@ def orbit_velocity(model: SystemModel, arr: dict, t_rel: np.ndarray | None = Non
     """Sum of the companions' Keplerian curves, (n_sets, n_times), from the matrices of
     :meth:`SystemModel.orbit_arrays` (rows already chosen), at the times ``t_rel``
     (minus the epoch; default the data's): the likelihood's path, free of any round
-    trip through absolute times."""
+    trip through absolute times.
+
+    Parameters
+    ----------
+    model : SystemModel
+        The model (its star and dynamics).
+    arr : dict
+        The orbit arrays.
+    t_rel : ndarray, optional
+        Times minus the epoch (days).
+
+    Returns
+    -------
+    ndarray, shape (n_sets, n_times)
+        Velocities (m/s).
+    """
     t = model.t if t_rel is None else np.asarray(t_rel, float)
     if model.dynamics != "keplerian":
         from rvkep.nbody import orientation, star_velocity_rows

@@ -96,7 +96,18 @@ def _in_worker(fn: Callable, *args):
 def local_pool(workers: int):
     """A pool of ``workers`` spawned processes. Their thread counts (BLAS, OpenMP,
     numba) default to one, set in each worker as it starts (a count the user set is
-    kept); this process's environment is not changed."""
+    kept); this process's environment is not changed.
+
+    Parameters
+    ----------
+    workers : int
+        Number of processes.
+
+    Returns
+    -------
+    concurrent.futures.ProcessPoolExecutor
+        The pool.
+    """
     import multiprocessing as mp
     from concurrent.futures import ProcessPoolExecutor
 
@@ -111,7 +122,18 @@ _ADDRESS = re.compile(r"^((tcp|tls|inproc|ucx|ws|wss)://)?[\w.\-\[\]:]+:\d{1,5}$
 
 def dask_client(address: str):
     """A ``dask.distributed`` client of the scheduler at ``address`` (OptionError with
-    one line when the address is malformed, the extra is missing or nobody answers)."""
+    one line when the address is malformed, the extra is missing or nobody answers).
+
+    Parameters
+    ----------
+    address : str
+        ``host:port`` or ``tcp://host:port``.
+
+    Returns
+    -------
+    distributed.Client
+        The client.
+    """
     if not _ADDRESS.match(address):
         raise OptionError(
             f"--scheduler {address!r}: not a scheduler address (expected tcp://HOST:PORT, "
@@ -130,7 +152,18 @@ def dask_client(address: str):
 
 
 def is_dask(executor) -> bool:
-    """Whether ``executor`` is a ``dask.distributed`` client."""
+    """Whether ``executor`` is a ``dask.distributed`` client.
+
+    Parameters
+    ----------
+    executor : object
+        A pool or client.
+
+    Returns
+    -------
+    bool
+        True for a Dask client.
+    """
     return type(executor).__module__.split(".")[0] == "distributed"
 
 

@@ -15,9 +15,10 @@ import sys  # noqa: E402
 import time  # noqa: E402
 from pathlib import Path  # noqa: E402
 
+from rvkep.moves import MOVES  # noqa: E402
 from rvkep.period_search import search  # noqa: E402
 from rvkep.reading import load_rv  # noqa: E402
-from rvkep.sampling import MOVES, SamplerOptions, run_sampler  # noqa: E402
+from rvkep.sampling import SamplerOptions, run_sampler  # noqa: E402
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_data"
 

@@ -12,8 +12,9 @@ from dataclasses import replace
 from typing import Any
 
 from rvkep.errors import OptionError
+from rvkep.messages import did_you_mean
 from rvkep.option_checks import from_text
-from rvkep.options import OPTIONS, Option, did_you_mean, options_of
+from rvkep.options import OPTIONS, Option, options_of
 
 __all__ = ["Parser", "add_arguments"]
 

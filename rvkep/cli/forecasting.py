@@ -227,8 +227,8 @@ def _run_plan(args: argparse.Namespace) -> int:
     figure = args.figure or (str(Path(args.out).with_suffix(".png")) if args.out else None)
     if figure:
         from rvkep import __version__
+        from rvkep.extra_plots import plan_figure
         from rvkep.outputs import save_figure
-        from rvkep.plots import plan_figure
 
         fig = plan_figure(plan)
         fig.text(0.995, 0.003, f"rvkep {__version__} | {res.run_label()}", ha="right",

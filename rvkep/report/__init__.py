@@ -21,11 +21,31 @@ RENDERERS = {
 
 
 def available_formats() -> list[str]:
+    """The report formats :func:`render` writes.
+
+    Returns
+    -------
+    list of str
+        Their names (``markdown``, ``latex``, ``csv``, ...).
+    """
     return list(RENDERERS)
 
 
 def render(results, fmt: str) -> str:
-    """``results`` rendered in format ``fmt``."""
+    """``results`` rendered in format ``fmt``.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+    fmt : str
+        One of :func:`available_formats`.
+
+    Returns
+    -------
+    str
+        The document.
+    """
     try:
         module = RENDERERS[fmt]
     except KeyError:

@@ -16,6 +16,20 @@ SUFFIX = ".csv"
 
 
 def render(results) -> str:
+    """The parameter table of ``results`` as CSV: one row per parameter (object,
+    parameter, median, minus, plus, unit), after a comment line saying what kind of run
+    made it.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+
+    Returns
+    -------
+    str
+        The CSV text.
+    """
     buf = io.StringIO()
     buf.write(f"# rvkep {__version__}: {results.run_label()}\n")
     w = csv.writer(buf, lineterminator="\n")

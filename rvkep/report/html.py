@@ -50,7 +50,13 @@ _NAMES = {
 
 
 def environment():
-    """The jinja2 environment of the package's templates (autoescaped)."""
+    """The jinja2 environment of the package's templates (autoescaped).
+
+    Returns
+    -------
+    jinja2.Environment
+        The environment (made once).
+    """
     try:
         import jinja2
     except ImportError:  # pragma: no cover - a dependency
@@ -87,7 +93,20 @@ def shown_value(value, key: str = "") -> str:
 
 
 def figure_files(results, folder: Path) -> list[tuple[str, Path]]:
-    """(caption, path) of the figures in ``folder``, in :data:`FIGURE_ORDER`."""
+    """(caption, path) of the figures in ``folder``, in :data:`FIGURE_ORDER`.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run (its companions name the phase and corner figures).
+    folder : Path
+        The run folder.
+
+    Returns
+    -------
+    list of (str, Path)
+        The figures found.
+    """
     out = []
     for pattern, caption in FIGURE_ORDER:
         labels = results.labels if "{L}" in pattern else [None]
@@ -164,7 +183,22 @@ def _context(results, folder: Path | None, name: str | None) -> dict:
 def render(results, folder: str | Path | None = None, name: str | None = None) -> str:
     """The report of ``results`` as one HTML page; the figures are those found in
     ``folder`` (none without it); ``name`` titles the page (default: the star's name,
-    else the folder's)."""
+    else the folder's).
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+    folder : str or Path, optional
+        The run folder.
+    name : str, optional
+        The page's title.
+
+    Returns
+    -------
+    str
+        The HTML page.
+    """
     folder = Path(folder) if folder is not None else None
     if name is None:
         name = results.star_name or results.to_dict()["star"].get("name")

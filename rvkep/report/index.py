@@ -20,7 +20,22 @@ def render_index(out: str | Path, rows: list[dict], title: str | None = None) ->
     """The index page of a batch folder ``out`` from the summary's rows
     (:func:`rvkep.batch.write_summary`): each ``target`` row (``name``, ``status``,
     ``n_planets``, ``seconds``, ``error``, ``converged``) with the periods and M sin i of
-    its ``companion`` rows."""
+    its ``companion`` rows.
+
+    Parameters
+    ----------
+    out : str or Path
+        The batch folder.
+    rows : list of dict
+        The summary's rows.
+    title : str, optional
+        The page's title (default: the folder's name).
+
+    Returns
+    -------
+    str
+        The HTML page.
+    """
     from rvkep import __version__
     from rvkep.report.html import environment
 

@@ -14,6 +14,19 @@ SUFFIX = ".tex"
 
 
 def render(results) -> str:
+    """The parameter table of ``results`` as a LaTeX ``table`` (values with asymmetric
+    errors, text cells escaped), after a comment line saying what kind of run made it.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+
+    Returns
+    -------
+    str
+        The LaTeX text.
+    """
     lines = [f"% rvkep {__version__}: {results.run_label()}"]
     lines += [
         r"\begin{table}",

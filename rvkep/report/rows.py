@@ -44,7 +44,18 @@ TEQ_ASSUMPTIONS = (
 
 
 def plain_unit(unit: str) -> str:
-    """A LaTeX unit as plain text (``m s$^{-1}$`` -> ``m/s``)."""
+    """A LaTeX unit as plain text (``m s$^{-1}$`` -> ``m/s``).
+
+    Parameters
+    ----------
+    unit : str
+        The unit as LaTeX.
+
+    Returns
+    -------
+    str
+        Plain text.
+    """
     return (unit.replace("$", "").replace("^{-1}", "^-1").replace("\\mathrm{J}", "Jup")
             .replace("_\\oplus", "_Earth").replace("_\\odot", "_Sun").replace(" s^-1", "/s")
             .replace("m s^-1", "m/s"))  # fmt: skip
@@ -74,7 +85,18 @@ _NOISE_UNITS = {
 def parameter_rows(results) -> list[ParameterRow]:
     """Every companion's elements and derived quantities, every instrument's offset and
     jitter, the noise model's own parameters and the trend terms, in the order the
-    tables show them."""
+    tables show them.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run.
+
+    Returns
+    -------
+    list of ParameterRow
+        The rows.
+    """
     rows = []
     for L in results.labels:
         for key, col, unit, sym in PLANET_COLUMNS:

@@ -23,12 +23,29 @@ SAMPLERS = {
 
 
 def available_samplers() -> list[str]:
-    """The registered samplers' names."""
+    """The registered samplers' names.
+
+    Returns
+    -------
+    list of str
+        In registration order.
+    """
     return list(SAMPLERS)
 
 
 def get_sampler(name: str) -> Sampler:
-    """A new instance of the sampler registered as ``name``."""
+    """A new instance of the sampler registered as ``name``.
+
+    Parameters
+    ----------
+    name : str
+        A registered name.
+
+    Returns
+    -------
+    Sampler
+        The sampler.
+    """
     try:
         module, cls = SAMPLERS[name].split(":")
     except KeyError:

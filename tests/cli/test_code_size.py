@@ -20,14 +20,9 @@ def test_no_module_over_the_limit_and_few_long_functions():
     assert len(functions) <= 5, f"{len(functions)} functions over 60 lines: {functions}"
 
 
-#: public functions still without numpydoc Parameters/Returns (2026-12-04); lower it as
-#: they are written, never raise it
-UNDOCUMENTED_AT_MOST = 33
-
-
-def test_no_new_public_function_without_numpydoc_sections():
+def test_every_public_function_has_numpydoc_sections():
     missing = _script().undocumented()
-    assert len(missing) <= UNDOCUMENTED_AT_MOST, missing[:10]
+    assert missing == [], missing[:10]
 
 
 def test_the_docstring_scan_sees_a_missing_section(tmp_path, monkeypatch):

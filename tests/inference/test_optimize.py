@@ -6,8 +6,9 @@ import numpy as np
 import pytest
 
 from rvkep.data import RVData
-from rvkep.optimize import fit_companions, grid_starts
+from rvkep.optimize import fit_companions
 from rvkep.orbit import radial_velocity
+from rvkep.start_grid import grid_starts
 
 
 def nightly_times(rng, n, span):

@@ -405,7 +405,7 @@ def test_snooker_update_is_emcees():
     # the three quarters, no shuffle)
     from emcee.moves import DESnookerMove
 
-    from rvkep.sampling import snooker_proposal
+    from rvkep.moves import snooker_proposal
 
     class Forced:
         def __init__(self):
@@ -434,7 +434,7 @@ def test_snooker_picks_one_walker_of_each_other_quarter_in_random_roles(monkeypa
     # against uniform, scipy.stats)
     from scipy import stats
 
-    from rvkep.sampling import _snooker
+    from rvkep.moves import _snooker
 
     move = _snooker()
     c = [np.full((4, 2), float(j)) + np.arange(4)[:, None] * 0.1 for j in range(3)]
@@ -446,7 +446,7 @@ def test_snooker_picks_one_walker_of_each_other_quarter_in_random_roles(monkeypa
         captured["member"] = np.round((z[:, 0] % 1) * 10)
         return s_, np.zeros(len(s_))
 
-    monkeypatch.setattr("rvkep.sampling.snooker_proposal", spy)
+    monkeypatch.setattr("rvkep.moves.snooker_proposal", spy)
     move.get_proposal(s, c, np.random.RandomState(0))
     roles = captured["roles"]
     assert (np.sort(roles, axis=1) == [0, 1, 2]).all()  # one walker of each quarter
