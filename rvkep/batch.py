@@ -427,7 +427,7 @@ def run_batch(
     out : str or Path
         Output folder; each target gets ``out/<name>/``.
     workers : int, optional
-        Local worker processes (default: one per core, at most the number of targets).
+        Local worker processes (default: one per core; 1 runs in this process).
     scheduler : str, optional
         A Dask scheduler address; the targets then run on that cluster.
     seed : int, optional

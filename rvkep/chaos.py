@@ -45,8 +45,8 @@ def megno(period, tp_rel, ecc, omega, K, star_mass: float, inclination=0.5 * mat
     Parameters
     ----------
     period, tp_rel, ecc, omega, K : sequence of float
-        Per companion: period (days), time of periastron relative to the start, eccentricity,
-        argument of periastron (radians) and semi-amplitude (m/s).
+        Per companion: period (days), periastron time minus the epoch (days), eccentricity,
+        the star's argument of periastron (radians) and semi-amplitude (m/s).
     star_mass : float
         Stellar mass (solar masses).
     inclination, node : float, optional

@@ -82,7 +82,7 @@ def instrument_style(index: int) -> dict:
     Returns
     -------
     dict
-        ``color``, ``marker`` and the other matplotlib keywords of its points.
+        ``color`` and ``marker``, as matplotlib's keywords.
     """
     return {
         "color": INSTRUMENT_INKS[index % len(INSTRUMENT_INKS)],
