@@ -38,7 +38,8 @@ import numpy as np
 
 __all__ = ["BIC_THRESHOLD", "LNL_CLOSE", "nested_refits", "occam_choice", "harmonic_check",
            "alternatives", "periods_of", "HARMONICS", "instrument_support",
-           "support_check", "long_period_stage", "LONG_PERIOD_GRID"]  # fmt: skip
+           "season_support", "season_notes", "seasons", "SEASON_GAP", "support_check",
+           "long_period_stage", "LONG_PERIOD_GRID"]  # fmt: skip
 
 BIC_THRESHOLD = 10.0
 #: periods of the long-period stage's grid (log-spaced over [span / 2, 10 spans])
@@ -255,6 +256,81 @@ def alternatives(candidates: list, chosen) -> list[str]:
 SUPPORT_P = 0.0027
 
 
+#: the data are split into observing seasons where they pause for longer than this
+#: (days; a star's conjunction with the Sun stops a season for months; common practice,
+#: no source)
+SEASON_GAP = 60.0
+
+
+def seasons(time: np.ndarray) -> np.ndarray:
+    """The observing season of every point: 0, 1, ... in time order, a new season after
+    each pause longer than :data:`SEASON_GAP`.
+
+    Parameters
+    ----------
+    time : ndarray
+        Times (days), in any order.
+
+    Returns
+    -------
+    ndarray of int
+        The season of each point, in the given order.
+    """
+    time = np.asarray(time, float)
+    order = np.argsort(time, kind="stable")
+    starts = np.concatenate([[0], np.diff(time[order]) > SEASON_GAP]).cumsum()
+    out = np.empty(time.size, dtype=int)
+    out[order] = starts
+    return out
+
+
+def _k_by_group(fit, label: str, groups: np.ndarray) -> tuple[dict, float]:
+    """K of ``label`` solved in each group of points (integer labels ``groups``) by
+    weighted least squares with the other elements fixed and one offset per instrument
+    present in the group (weights 1 / (err^2 + jitter^2)); groups with fewer than three
+    points, or where K is not determined, are left out. Also returns the fit's K."""
+    from rvkep.orbit import radial_velocity
+
+    model, p = fit.model, fit.params
+    t = model.data.time
+    shape = radial_velocity(t, p[f"{label}.period"], p[f"{label}.tp"], p[f"{label}.ecc"],
+                            p[f"{label}.omega"], 1.0)  # fmt: skip
+    r = fit.residuals + p[f"{label}.K"] * shape
+    jit = np.array([p[f"jitter.{inst.name}"] for inst in model.instruments])
+    w_all = 1.0 / (model.data.err**2 + jit[model.inst_index] ** 2)
+    rows = {}
+    for g in np.unique(groups):
+        m = groups == g
+        if m.sum() < 3:
+            continue
+        present = np.unique(model.inst_index[m])
+        X = np.column_stack([shape[m], *(model.inst_index[m] == k for k in present)])
+        w = w_all[m]
+        try:
+            cov = np.linalg.inv(X.T @ (w[:, None] * X))
+        except np.linalg.LinAlgError:
+            continue
+        if not np.isfinite(cov[0, 0]) or cov[0, 0] <= 0:
+            continue
+        beta = cov @ (X.T @ (w * r[m]))
+        rows[int(g)] = {"K": float(beta[0]), "sd": float(np.sqrt(cov[0, 0])),
+                        "n": int(m.sum())}  # fmt: skip
+    return rows, float(p[f"{label}.K"])
+
+
+def _consistency(values: list[dict], fallback_K: float) -> dict:
+    """The weighted mean of per-group K and the chi-square of the groups about it."""
+    from scipy.stats import chi2 as chi2_dist
+
+    if len(values) < 2:
+        return {"K": fallback_K, "chi2": 0.0, "p": 1.0}
+    K = np.array([v["K"] for v in values])
+    sd = np.array([v["sd"] for v in values])
+    joint = float(np.sum(K / sd**2) / np.sum(1 / sd**2))
+    chi2 = float(np.sum(((K - joint) / sd) ** 2))
+    return {"K": joint, "chi2": chi2, "p": float(chi2_dist.sf(chi2, len(values) - 1))}
+
+
 def instrument_support(fit, label: str) -> dict:
     """Companion ``label``'s semi-amplitude fitted per instrument with every other
     element fixed at the fit (its offset re-solved): ``K`` and ``sd`` per instrument
@@ -273,41 +349,40 @@ def instrument_support(fit, label: str) -> dict:
     Returns
     -------
     dict
-        ``instruments`` (each one's ``K`` and ``sd``), the joint ``K``, and ``chi2`` and
-        ``p`` of the consistency test.
+        ``instruments`` (each one's ``K``, ``sd`` and ``n``), the joint ``K``, and
+        ``chi2`` and ``p`` of the consistency test.
     """
-    from scipy.stats import chi2 as chi2_dist
+    rows, K = _k_by_group(fit, label, fit.model.inst_index)
+    names = [inst.name for inst in fit.model.instruments]
+    by_name = {names[k]: v for k, v in rows.items()}
+    return {"instruments": by_name, **_consistency(list(by_name.values()), K)}
 
-    from rvkep.orbit import radial_velocity
 
-    model, p = fit.model, fit.params
-    t = model.data.time
-    shape = radial_velocity(t, p[f"{label}.period"], p[f"{label}.tp"], p[f"{label}.ecc"],
-                            p[f"{label}.omega"], 1.0)  # fmt: skip
-    r = fit.residuals + p[f"{label}.K"] * shape
-    rows = {}
-    for k, inst in enumerate(model.instruments):
-        m = model.inst_index == k
-        if m.sum() < 3:
-            continue
-        w = 1.0 / (model.data.err[m] ** 2 + p[f"jitter.{inst.name}"] ** 2)
-        X = np.column_stack([shape[m], np.ones(m.sum())])
-        A = X.T @ (w[:, None] * X)
-        try:
-            cov = np.linalg.inv(A)
-        except np.linalg.LinAlgError:
-            continue
-        beta = cov @ (X.T @ (w * r[m]))
-        rows[inst.name] = {"K": float(beta[0]), "sd": float(np.sqrt(cov[0, 0])),
-                           "n": int(m.sum())}  # fmt: skip
-    if len(rows) < 2:
-        return {"instruments": rows, "K": p[f"{label}.K"], "chi2": 0.0, "p": 1.0}
-    K = np.array([v["K"] for v in rows.values()])
-    sd = np.array([v["sd"] for v in rows.values()])
-    joint = float(np.sum(K / sd**2) / np.sum(1 / sd**2))
-    chi2 = float(np.sum(((K - joint) / sd) ** 2))
-    return {"instruments": rows, "K": joint, "chi2": chi2,
-            "p": float(chi2_dist.sf(chi2, len(rows) - 1))}  # fmt: skip
+def season_support(fit, label: str) -> dict:
+    """Companion ``label``'s semi-amplitude fitted per observing season (:func:`seasons`)
+    as :func:`instrument_support` fits it per instrument (each instrument's offset
+    re-solved within the season): a real companion's K agrees from season to season,
+    a passing activity signal's does not.
+
+    Parameters
+    ----------
+    fit : FitResult
+        The fit holding the companion.
+    label : str
+        The companion.
+
+    Returns
+    -------
+    dict
+        ``seasons`` (``start`` and ``end`` in the data's time, ``n``, ``K``, ``sd``), the
+        joint ``K``, and ``chi2`` and ``p`` of the consistency test.
+    """
+    t = fit.model.data.time
+    groups = seasons(t)
+    rows, K = _k_by_group(fit, label, groups)
+    out = [{"start": float(t[groups == g].min()), "end": float(t[groups == g].max()), **v}
+           for g, v in sorted(rows.items())]  # fmt: skip
+    return {"seasons": out, **_consistency(out, K)}
 
 
 def support_check(fit) -> tuple[object, list[str]]:
@@ -341,6 +416,46 @@ def support_check(fit) -> tuple[object, list[str]]:
                      f"{s['p']:.2g}); {', '.join(testers)} could see it and do not")  # fmt: skip
         fit = _without(fit, c.label)
     return fit, notes
+
+
+def season_notes(fit) -> list[str]:
+    """Notes on signals that come and go, as stellar activity does, rather than orbits:
+    each companion whose semi-amplitude differs between observing seasons beyond
+    :data:`SUPPORT_P` (3 sigma; :func:`season_support`), and each pair of companions
+    closer in frequency than 1 / span (the data cannot resolve them; a fading signal
+    is fitted as two such beating sinusoids, each of constant K).
+
+    Parameters
+    ----------
+    fit : FitResult
+        The chosen fit.
+
+    Returns
+    -------
+    list of str
+        The notes (empty when none applies).
+    """
+    notes = []
+    span = float(np.ptp(fit.model.data.time))
+    comps = [(c.label, fit.params[f"{c.label}.period"]) for c in fit.model.companions]
+    for i, (a, Pa) in enumerate(comps):
+        for b, Pb in comps[i + 1:]:
+            if span > 0 and abs(1.0 / Pa - 1.0 / Pb) < 1.0 / span:
+                notes.append(f"{a} ({Pa:.5g} d) and {b} ({Pb:.5g} d) are closer in frequency "
+                             f"than the data resolve (1 / span = {1.0 / span:.3g} per day): "
+                             "together they describe one signal whose amplitude changes "
+                             "over the data, as stellar activity does, not two orbits")  # fmt: skip
+    for c in fit.model.companions:
+        s = season_support(fit, c.label)
+        if s["p"] >= SUPPORT_P:
+            continue
+        text = ", ".join(f"{v['K']:.3g} +- {v['sd']:.2g}" for v in s["seasons"])
+        P = fit.params[f"{c.label}.period"]
+        notes.append(f"the semi-amplitude of {c.label} ({P:.5g} d) differs between "
+                     f"observing seasons (K per season {text} m/s; chi2 {s['chi2']:.1f}, "
+                     f"p = {s['p']:.2g}): a signal that comes and goes may be stellar "
+                     "activity")  # fmt: skip
+    return notes
 
 
 #: the long-period stage fits this many grid periods in full, from this many starts each

@@ -100,12 +100,14 @@ class Results:
                                     posterior[f"{L}.ecc"], star_mass)  # fmt: skip
                 posterior.add(f"{L}.mass_mjup", mass)
         out = cls(data, posterior, fit, sampling, star=star, star_assumed=assumed, **kwargs)
+        from rvkep.choice import season_notes
         from rvkep.outer import jitter_notes, open_orbit_note, open_orbits
 
         span = float(np.ptp(data.time)) if len(data) else 0.0
         out.open_orbits = open_orbits(posterior.columns, out.labels, span)
         out.notes += [open_orbit_note(L, e, span) for L, e in out.open_orbits.items()]
         out.notes += jitter_notes(fit.model, posterior.columns)
+        out.notes += season_notes(fit)
         if len(fit.model.companions) > 1:
             out.stability = posterior_stability(fit.model, posterior)
             if not (out.stability["median_hill_stable"] and out.stability["median_amd_stable"]):

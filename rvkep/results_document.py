@@ -89,11 +89,27 @@ def _planets(res: Results) -> list[dict]:
                 entry[key] = res.estimate(f"{L}.{col}")
         if L in res.ecc_tests:
             entry["ecc_test"] = dict(res.ecc_tests[L])
+        if res.fit is not None and L in {c.label for c in res.fit.model.companions}:
+            entry["support"] = _support(res.fit, L)
         entry["orbit_closed"] = L not in res.open_orbits
         if L in res.open_orbits:
             entry["lower_limits"] = dict(res.open_orbits[L]["lower_limits"])
         planets.append(entry)
     return planets
+
+
+def _support(fit, label: str) -> dict:
+    """K of one companion fitted per instrument and per observing season at the best
+    fit (:func:`rvkep.choice.instrument_support`, :func:`rvkep.choice.season_support`)."""
+    from rvkep.choice import instrument_support, season_support
+
+    inst, season = instrument_support(fit, label), season_support(fit, label)
+    return {
+        "instruments": [{"name": n, **v} for n, v in inst["instruments"].items()],
+        "chi2_instruments": inst["chi2"], "p_instruments": inst["p"],
+        "seasons": season["seasons"],
+        "chi2_seasons": season["chi2"], "p_seasons": season["p"],
+    }  # fmt: skip
 
 
 def _instruments(res: Results) -> list[dict]:

@@ -261,3 +261,24 @@ def quadratic_instead_of_brown_dwarf(seed: int = 7) -> RVData:
     v = v + np.where(late, 40.0, 0.0) + rng.normal(0, 5.0, t.size)
     inst = np.where(late, "eagle-2", "eagle-1")
     return RVData(t, v, np.full(t.size, 5.0), inst)
+
+
+def signal_in_one_season(seed: int = 19, fading: bool = True) -> RVData:
+    """Three observing seasons (110 nights over 800 days, 250 of every 365 observable)
+    from two spectrographs (2 m/s and 4 m/s errors, offsets 0 and 25 m/s): a 17.3-d
+    circular signal of K 9 m/s that, with ``fading``, lives only in the first season
+    (as a rotation signal of one active-region complex does) and is absent after it;
+    without ``fading`` it is an orbit present throughout.
+
+    Truth: with ``fading`` no companion (the signal's K per season is 9, 0, 0 m/s);
+    without, one companion of K 9 m/s in every season.
+    """
+    rng = np.random.default_rng(seed)
+    t = _season_times(rng, 110, 800)
+    inst = np.where(rng.random(t.size) < 0.6, "alder", "birch")
+    err = np.where(inst == "alder", 2.0, 4.0)
+    v = radial_velocity(t, 17.3, 2459003.0, 0.0, 0.0, 9.0)
+    if fading:
+        v = np.where(t < 2459000.0 + 365.0, v, 0.0)
+    v = v + np.where(inst == "birch", 25.0, 0.0) + rng.normal(0.0, err)
+    return RVData(t, v, err, inst)
