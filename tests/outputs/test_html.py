@@ -100,6 +100,12 @@ def test_report_opens_offline_and_shows_results_json(browser, demo):
             assert cell.text.replace("\n", "") == _shown(p[key]), (cell.text, p[key])
             checked += 1
     assert checked == 12
+    # K per instrument and per season, as results.json's planets[*].support has them
+    support = [e.text for e in d.find_elements(By.CSS_SELECTOR, "p.support")]
+    assert [line.split(" at the best fit")[0] for line in support] == ["K of b", "K of c"]
+    for p, line in zip(saved["planets"], support, strict=True):
+        seasons = p["support"]["seasons"]
+        assert len(seasons) == 3 and f"{seasons[0]['K']:.3g} +- {seasons[0]['sd']:.2g}" in line
     warnings = d.find_element(By.ID, "warnings").text
     assert "QUICK MODE" in warnings and "NOT CONVERGED" in warnings
     imgs = d.find_elements(By.CSS_SELECTOR, "#figures img")
