@@ -1,5 +1,6 @@
 """The figures beyond the fit, in rvkep's look (:mod:`rvkep.plots`): an observing
-plan, a completeness map and the companions a trend allows. Each function returns a
+plan, a completeness map, the companions a trend allows and the stacked
+periodograms. Each function returns a
 matplotlib Figure and can draw into a given one.
 """
 
@@ -11,7 +12,7 @@ import numpy as np
 
 from rvkep.plots import INSTRUMENT_COLOURS, MODEL_COLOUR, _figure, _styled
 
-__all__ = ["plan_figure", "trend_companion_figure", "plot_limits"]
+__all__ = ["plan_figure", "trend_companion_figure", "plot_limits", "stacked_figure"]
 
 
 @_styled
@@ -147,4 +148,44 @@ def plot_limits(limits, companions=(), fig=None):
     ax.set_xlabel("period [d]")
     ax.set_ylabel("M sin i [Earth masses]")
     ax.legend(loc="upper left", fontsize=8, frameon=False)
+    return fig
+
+
+@_styled
+def stacked_figure(results, fig=None):
+    """Each companion's stacked periodogram (:func:`rvkep.choice.stacked_power`, in
+    results.json's ``planets[*].support.stacked_power``): the Lomb-Scargle power at its
+    period of the first N observations against N, in the companion's colour. A
+    coherent orbit's curve rises or holds; one that falls is a signal that faded.
+
+    Parameters
+    ----------
+    results : Results
+        A finished run with companions.
+    fig : matplotlib Figure, optional
+        Drawn into instead of a new one.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The figure.
+    """
+    from rvkep.style import companion_colour
+
+    fig, axes = _figure(fig, 1, figsize=(6.5, 4.0))
+    ax = axes[0]
+    for k, p in enumerate(results.to_dict()["planets"]):
+        rows = p.get("support", {}).get("stacked_power", [])
+        if not rows:
+            continue
+        n = [r["n"] for r in rows]
+        ax.plot(n, [r["power"] for r in rows], marker="o", ms=3.5, lw=1.4,
+                color=companion_colour(k),
+                label=f"{p['label']} ({p['period_d']['median']:.4g} d)")  # fmt: skip
+    ax.set_xscale("log")
+    ax.set_ylim(0, 1)
+    ax.set_xlabel("number of observations (in time order)")
+    ax.set_ylabel("power at the period")
+    ax.set_title("each signal's power as the observations accumulate", fontsize=10)
+    ax.legend(loc="lower right", fontsize=8, frameon=False)
     return fig

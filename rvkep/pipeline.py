@@ -513,6 +513,10 @@ def write_figures(results, out: str | Path, fmt: str = "png", which: str = "all"
             written.append(save_figure(corner_figure(results, L), out / f"corner_{L}.{fmt}"))
     if "periodogram" in kinds and results.search is not None:
         written.append(save_figure(plot_periodograms(results.search), out / f"periodogram.{fmt}"))
+    if "periodogram" in kinds and results.labels and results.fit is not None:
+        from rvkep.extra_plots import stacked_figure
+
+        written.append(save_figure(stacked_figure(results), out / f"stacked.{fmt}"))
     if "timeseries" in kinds and results.trend_degree >= 1:
         from rvkep.extra_plots import trend_companion_figure
 

@@ -100,8 +100,9 @@ def _planets(res: Results) -> list[dict]:
 
 def _support(fit, label: str) -> dict:
     """K of one companion fitted per instrument and per observing season at the best
-    fit (:func:`rvkep.choice.instrument_support`, :func:`rvkep.choice.season_support`)."""
-    from rvkep.choice import instrument_support, season_support
+    fit, and its stacked periodogram (:func:`rvkep.choice.instrument_support`,
+    :func:`~rvkep.choice.season_support`, :func:`~rvkep.choice.stacked_power`)."""
+    from rvkep.choice import instrument_support, season_support, stacked_power
 
     inst, season = instrument_support(fit, label), season_support(fit, label)
     return {
@@ -109,6 +110,7 @@ def _support(fit, label: str) -> dict:
         "chi2_instruments": inst["chi2"], "p_instruments": inst["p"],
         "seasons": season["seasons"],
         "chi2_seasons": season["chi2"], "p_seasons": season["p"],
+        "stacked_power": stacked_power(fit, label),
     }  # fmt: skip
 
 

@@ -31,6 +31,7 @@ FIGURE_ORDER = (
     ("timeseries.png", "The velocities and the model"),
     ("phase_{L}.png", "Companion {L}, folded on its period"),
     ("periodogram.png", "The search's periodograms"),
+    ("stacked.png", "Each signal's power as the observations accumulate (stacked periodogram)"),
     ("limits.png", "Detection limits"),
     ("trend_companion.png", "What the trend implies: the least mass of its cause"),
     ("corner_{L}.png", "Companion {L}: posterior"),

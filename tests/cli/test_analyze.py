@@ -62,7 +62,7 @@ def test_demo_results_json(demo_run):
 def test_demo_files_and_figures(demo_run):
     for name in ("summary.md", "parameters.tex", "parameters.csv", "samples.csv", "samples.npz",
                  "timeseries.png", "periodogram.png", "phase_b.png", "phase_c.png",
-                 "corner_b.png", "corner_c.png"):  # fmt: skip
+                 "corner_b.png", "corner_c.png", "stacked.png"):  # fmt: skip
         assert (demo_run / name).stat().st_size > 500, name
     md = (demo_run / "summary.md").read_text()
     assert "Quick mode" in md and "| b |" in md

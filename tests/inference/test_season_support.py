@@ -89,3 +89,18 @@ def test_the_summary_gives_K_per_instrument_and_season():
     assert line == ("K of b at the best fit, per instrument alder 8.04 +- 0.51, birch 9.3 +- 1.2 "
                     "m/s (p = 0.34); per observing season 8 +- 0.5, 8.8 +- 0.5 m/s (p = 0.25).")
     assert blank == ""
+
+
+def test_the_stacked_periodogram_falls_for_a_fading_signal_and_holds_for_an_orbit():
+    # Mortier & Collier Cameron 2017, A&A 601, A110: a coherent signal's power grows (or
+    # holds) with the number of observations; one that fades loses it
+    for fading in (True, False):
+        _, fit = _fit(fading)
+        rows = choice.stacked_power(fit, "b")
+        n = [r["n"] for r in rows]
+        power = np.array([r["power"] for r in rows])
+        assert n == sorted(set(n)) and n[0] == 8 and n[-1] == 110
+        if fading:
+            assert power[-1] < 0.5 * power.max()
+        else:
+            assert power[-1] > 0.9 * power.max()
