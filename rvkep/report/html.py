@@ -128,8 +128,7 @@ def _estimate(e: dict | None, key: str) -> dict | None:
 
 def _context(results, folder: Path | None, name: str | None) -> dict:
     from rvkep import __version__
-    from rvkep.report.markdown import _support_lines
-    from rvkep.report.rows import TEQ_ASSUMPTIONS, parameter_rows
+    from rvkep.report.rows import TEQ_ASSUMPTIONS, parameter_rows, support_lines
 
     d = results.to_dict()
     planets = []
@@ -179,7 +178,7 @@ def _context(results, folder: Path | None, name: str | None) -> dict:
                                               "inputs": []},
         "verdict_heads": [(h, u) for _, h, u in _VERDICT], "n_points": len(results.data),
         "epoch": f"{results.data.epoch:.1f}", "teq_note": TEQ_ASSUMPTIONS,
-        "support": [line for line in _support_lines(d["planets"]) if line],
+        "support": [line for line in support_lines(d["planets"]) if line],
     }  # fmt: skip
 
 

@@ -4,7 +4,7 @@ search, companion-number and trend comparisons, sampler and priors."""
 from __future__ import annotations
 
 from rvkep.formatting import p_relation, text_estimate
-from rvkep.report.rows import TEQ_ASSUMPTIONS
+from rvkep.report.rows import TEQ_ASSUMPTIONS, support_lines
 
 __all__ = ["render"]
 
@@ -97,7 +97,7 @@ def _companion_lines(results, d: dict) -> list[str]:
                          f"{t['delta_bic_circular_minus_eccentric']:.1f}).")  # fmt: skip
         if any("ecc_test" in p for p in d["planets"]):
             lines.append("")
-        lines += _support_lines(d["planets"])
+        lines += support_lines(d["planets"])
         for p in d["planets"]:
             derived = [f"{name} {text_estimate(p[k])}{unit}" for k, name, unit in (
                 ("transit_probability", "a priori transit probability", ""),
@@ -112,25 +112,6 @@ def _companion_lines(results, d: dict) -> list[str]:
     else:
         lines += ["No significant companion.", ""]
     return lines
-
-
-def _support_lines(planets: list[dict]) -> list[str]:
-    """Each companion's K fitted per instrument and per observing season."""
-    lines = []
-    for p in planets:
-        s = p.get("support")
-        if not s:
-            continue
-        parts = []
-        if len(s["instruments"]) > 1:
-            each = ", ".join(f"{i['name']} {i['K']:.3g} +- {i['sd']:.2g}" for i in s["instruments"])
-            parts.append(f"per instrument {each} m/s (p {p_relation(s['p_instruments'])})")
-        if len(s["seasons"]) > 1:
-            each = ", ".join(f"{v['K']:.3g} +- {v['sd']:.2g}" for v in s["seasons"])
-            parts.append(f"per observing season {each} m/s (p {p_relation(s['p_seasons'])})")
-        if parts:
-            lines.append(f"K of {p['label']} at the best fit, " + "; ".join(parts) + ".")
-    return lines + [""] if lines else lines
 
 
 def _instrument_lines(results, d: dict) -> list[str]:

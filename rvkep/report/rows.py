@@ -9,9 +9,11 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+from rvkep.formatting import p_relation
 from rvkep.names import latex_escape
 
-__all__ = ["ParameterRow", "parameter_rows", "PLANET_COLUMNS", "plain_unit", "TEQ_ASSUMPTIONS"]
+__all__ = ["ParameterRow", "parameter_rows", "PLANET_COLUMNS", "plain_unit", "TEQ_ASSUMPTIONS",
+           "support_lines"]
 
 PLANET_COLUMNS = [
     # (results.json key, posterior column, unit, LaTeX symbol)
@@ -133,3 +135,34 @@ def parameter_rows(results) -> list[ParameterRow]:
                                  results.estimate("trend.curvature"), "m s$^{-1}$ yr$^{-2}$",
                                  "m/s/yr^2"))  # fmt: skip
     return rows
+
+
+def support_lines(planets: list[dict]) -> list[str]:
+    """Each companion's K fitted per instrument and per observing season, one line per
+    companion (summary.md and report.html).
+
+    Parameters
+    ----------
+    planets : list of dict
+        results.json's ``planets`` (their ``support`` entries).
+
+    Returns
+    -------
+    list of str
+        The lines, then one blank line; empty when no companion has support values.
+    """
+    lines = []
+    for p in planets:
+        s = p.get("support")
+        if not s:
+            continue
+        parts = []
+        if len(s["instruments"]) > 1:
+            each = ", ".join(f"{i['name']} {i['K']:.3g} +- {i['sd']:.2g}" for i in s["instruments"])
+            parts.append(f"per instrument {each} m/s (p {p_relation(s['p_instruments'])})")
+        if len(s["seasons"]) > 1:
+            each = ", ".join(f"{v['K']:.3g} +- {v['sd']:.2g}" for v in s["seasons"])
+            parts.append(f"per observing season {each} m/s (p {p_relation(s['p_seasons'])})")
+        if parts:
+            lines.append(f"K of {p['label']} at the best fit, " + "; ".join(parts) + ".")
+    return lines + [""] if lines else lines

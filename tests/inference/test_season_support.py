@@ -76,7 +76,7 @@ def test_a_fading_signal_split_into_two_beating_companions_is_named():
 
 
 def test_the_summary_gives_K_per_instrument_and_season():
-    from rvkep.report.markdown import _support_lines
+    from rvkep.report.rows import support_lines
 
     planet = {"label": "b", "support": {
         "instruments": [{"name": "alder", "K": 8.04, "sd": 0.51, "n": 60},
@@ -85,7 +85,7 @@ def test_the_summary_gives_K_per_instrument_and_season():
         "seasons": [{"start": 1.0, "end": 2.0, "K": 8.0, "sd": 0.5, "n": 40},
                     {"start": 400.0, "end": 600.0, "K": 8.8, "sd": 0.5, "n": 40}],
         "chi2_seasons": 1.3, "p_seasons": 0.25}}  # fmt: skip
-    (line, blank) = _support_lines([planet])
+    (line, blank) = support_lines([planet])
     assert line == ("K of b at the best fit, per instrument alder 8.04 +- 0.51, birch 9.3 +- 1.2 "
                     "m/s (p = 0.34); per observing season 8 +- 0.5, 8.8 +- 0.5 m/s (p = 0.25).")
     assert blank == ""
