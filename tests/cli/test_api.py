@@ -98,7 +98,8 @@ def test_a_reloaded_run_rebuilds_its_fit_and_draws_the_same_curves(tmp_path):
     pa, pb = phase_curves(fresh, "b"), phase_curves(back, "b")
     assert np.array_equal(pa["velocity"], pb["velocity"])
     written = write_figures(back, tmp_path / "figs")
-    assert {p.name for p in written} == {"timeseries.png", "phase_b.png", "corner_b.png"}
+    assert {p.name for p in written} == {"timeseries.png", "phase_b.png", "corner_b.png",
+                                        "stacked.png"}
     # a model.json that does not belong to the results is refused
     stored = json.loads((tmp_path / "model.json").read_text())
     stored["best_fit_theta"][0] += 0.01
