@@ -285,11 +285,10 @@ def seasons(time: np.ndarray) -> np.ndarray:
     return out
 
 
-def _k_by_group(fit, label: str, groups: np.ndarray) -> tuple[dict, float]:
-    """K of ``label`` solved in each group of points (integer labels ``groups``) by
-    weighted least squares with the other elements fixed and one offset per instrument
-    present in the group (weights 1 / (err^2 + jitter^2)); groups with fewer than three
-    points, or where K is not determined, are left out. Also returns the fit's K."""
+def _own_signal(fit, label: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Companion ``label``'s unit-K curve at the data times, what the fit leaves plus
+    its own curve (offsets, trend and the other companions removed), and each point's
+    variance err^2 + jitter^2."""
     from rvkep.orbit import radial_velocity
 
     model, p = fit.model, fit.params
@@ -298,7 +297,17 @@ def _k_by_group(fit, label: str, groups: np.ndarray) -> tuple[dict, float]:
                             p[f"{label}.omega"], 1.0)  # fmt: skip
     r = fit.residuals + p[f"{label}.K"] * shape
     jit = np.array([p[f"jitter.{inst.name}"] for inst in model.instruments])
-    w_all = 1.0 / (model.data.err**2 + jit[model.inst_index] ** 2)
+    return shape, r, model.data.err**2 + jit[model.inst_index] ** 2
+
+
+def _k_by_group(fit, label: str, groups: np.ndarray) -> tuple[dict, float]:
+    """K of ``label`` solved in each group of points (integer labels ``groups``) by
+    weighted least squares with the other elements fixed and one offset per instrument
+    present in the group (weights 1 / (err^2 + jitter^2)); groups with fewer than three
+    points, or where K is not determined, are left out. Also returns the fit's K."""
+    model = fit.model
+    shape, r, var = _own_signal(fit, label)
+    w_all = 1.0 / var
     rows = {}
     for g in np.unique(groups):
         m = groups == g
@@ -316,7 +325,7 @@ def _k_by_group(fit, label: str, groups: np.ndarray) -> tuple[dict, float]:
         beta = cov @ (X.T @ (w * r[m]))
         rows[int(g)] = {"K": float(beta[0]), "sd": float(np.sqrt(cov[0, 0])),
                         "n": int(m.sum())}  # fmt: skip
-    return rows, float(p[f"{label}.K"])
+    return rows, float(fit.params[f"{label}.K"])
 
 
 def _consistency(values: list[dict], fallback_K: float) -> dict:
@@ -455,20 +464,14 @@ def stacked_power(fit, label: str, n_steps: int = STACKED_STEPS) -> list[dict]:
     """
     from astropy.timeseries import LombScargle
 
-    from rvkep.orbit import radial_velocity
-
-    model, p = fit.model, fit.params
-    t = model.data.time
-    shape = radial_velocity(t, p[f"{label}.period"], p[f"{label}.tp"], p[f"{label}.ecc"],
-                            p[f"{label}.omega"], 1.0)  # fmt: skip
-    r = fit.residuals + p[f"{label}.K"] * shape
-    jit = np.array([p[f"jitter.{inst.name}"] for inst in model.instruments])
-    dy = np.sqrt(model.data.err**2 + jit[model.inst_index] ** 2)
+    t = fit.model.data.time
+    _, r, var = _own_signal(fit, label)
+    dy = np.sqrt(var)
     order = np.argsort(t, kind="stable")
     t, r, dy = t[order], r[order], dy[order]
     first = min(8, t.size)
     counts = np.unique(np.geomspace(first, t.size, n_steps).round().astype(int))
-    frequency = 1.0 / p[f"{label}.period"]
+    frequency = 1.0 / fit.params[f"{label}.period"]
     out = []
     for n in counts:
         power = LombScargle(t[:n], r[:n], dy[:n]).power(frequency) if n >= 4 else 0.0
